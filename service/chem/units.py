@@ -1,0 +1,135 @@
+"""Quantities with units, parsed with pint.
+
+Amounts arrive as text (``"250 mg"``, ``"5 mL"``, ``"0.2 mol/L"``, ``"0.2 M"``); this
+module turns them into pint quantities and converts between mass, volume and amount of
+substance. A volume becomes a mass only with a density, and a missing one is an error
+that names the substance.
+"""
+
+from __future__ import annotations
+
+import re
+from decimal import Decimal
+from typing import Optional
+
+import pint
+
+__all__ = [
+    "QuantityError",
+    "MissingDensityError",
+    "ureg",
+    "parse_quantity",
+    "kind_of",
+    "mass_g",
+    "to_decimal",
+]
+
+# A number, then a unit made of letters, "/", "*", "^", digits and spaces: no arithmetic.
+_AMOUNT = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?(\s*[A-Za-z°%][A-Za-z0-9°%/*^ ]*)?$")
+
+ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+Quantity = ureg.Quantity
+
+_KINDS = {
+    "mass": ureg.gram.dimensionality,
+    "volume": ureg.liter.dimensionality,
+    "amount": ureg.mole.dimensionality,
+    "molarity": (ureg.mole / ureg.liter).dimensionality,
+    "density": (ureg.gram / ureg.milliliter).dimensionality,
+    "temperature": ureg.kelvin.dimensionality,
+    "time": ureg.second.dimensionality,
+    "dimensionless": ureg.dimensionless.dimensionality,
+}
+
+
+class QuantityError(ValueError):
+    """An amount that cannot be used: carries the text and, if known, the field."""
+
+    def __init__(self, text: str, reason: str, field: Optional[str] = None) -> None:
+        self.text = text
+        self.reason = reason
+        self.field = field
+        where = f"{field}: " if field else ""
+        super().__init__(f"{where}{reason} ({text!r})" if text else f"{where}{reason}")
+
+
+class MissingDensityError(QuantityError):
+    """A volume was given where a mass is needed and no density is known."""
+
+    def __init__(self, text: str, substance: str, field: Optional[str] = None) -> None:
+        super().__init__(
+            text,
+            f"{substance!r} is given as a volume but has no density; "
+            "give the amount as a mass or enter a density (g/mL)",
+            field,
+        )
+        self.substance = substance
+
+
+def parse_quantity(text: str, *, expect: str | tuple[str, ...] | None = None, field: Optional[str] = None):
+    """Parse ``text`` into a pint quantity, optionally checking its kind.
+
+    ``expect`` is one kind or a tuple of kinds among: mass, volume, amount, molarity,
+    density, temperature, time, dimensionless. A bare number without a unit is refused
+    unless ``dimensionless`` is expected.
+
+    >>> parse_quantity("250 mg", expect="mass").to("g").magnitude
+    0.25
+    """
+    raw = (text or "").strip() if isinstance(text, str) else ""
+    if not raw:
+        raise QuantityError(str(text or ""), "an amount with a unit is required, e.g. '250 mg' or '5 mL'", field)
+    normalised = raw.replace("µ", "u").replace("μ", "u").replace("°C", "degC").replace("℃", "degC")
+    if "," in raw:
+        raise QuantityError(raw, "use a decimal point, not a comma", field)
+    if not _AMOUNT.match(normalised):
+        raise QuantityError(raw, "not an amount with a unit, e.g. '250 mg', '5 mL' or '0.2 mol/L'", field)
+    try:
+        quantity = ureg.Quantity(normalised)
+    except (pint.errors.UndefinedUnitError, pint.errors.DefinitionSyntaxError) as exc:
+        names = getattr(exc, "unit_names", None)
+        label = ", ".join(names) if isinstance(names, (list, tuple)) else str(names or exc)
+        raise QuantityError(raw, f"unknown unit {label!r}", field) from None
+    except Exception:  # pint/tokenize raise various errors for garbage text
+        raise QuantityError(raw, "not an amount with a unit", field) from None
+    if not isinstance(quantity, ureg.Quantity):
+        quantity = ureg.Quantity(quantity)
+    kinds = (expect,) if isinstance(expect, str) else tuple(expect or ())
+    if kinds:
+        kind = kind_of(quantity)
+        if kind not in kinds:
+            if kind == "dimensionless":
+                raise QuantityError(raw, f"a number needs a unit ({' or '.join(kinds)})", field)
+            raise QuantityError(raw, f"expected a {' or '.join(kinds)}, got a {kind or 'quantity of another kind'}", field)
+    if quantity.magnitude < 0:
+        raise QuantityError(raw, "must not be negative", field)
+    return quantity
+
+
+def kind_of(quantity) -> Optional[str]:
+    """The kind name (mass, volume, …) of a pint quantity, or None."""
+    dims = quantity.dimensionality
+    return next((name for name, d in _KINDS.items() if d == dims), None)
+
+
+def to_decimal(quantity, unit: str) -> Decimal:
+    """The magnitude of ``quantity`` in ``unit`` as a Decimal (via its shortest repr)."""
+    return Decimal(repr(float(quantity.to(unit).magnitude)))
+
+
+def mass_g(quantity, *, density_g_per_ml: Optional[float], substance: str, field: Optional[str] = None) -> Decimal:
+    """Mass in grams of a mass or volume quantity; a volume needs ``density_g_per_ml``.
+
+    Raises :class:`MissingDensityError` naming ``substance`` if a volume has no density.
+
+    >>> mass_g(parse_quantity("10 mL"), density_g_per_ml=0.789, substance="ethanol")
+    Decimal('7.8900')
+    """
+    kind = kind_of(quantity)
+    if kind == "mass":
+        return to_decimal(quantity, "g")
+    if kind == "volume":
+        if density_g_per_ml is None:
+            raise MissingDensityError(f"{quantity:~P}", substance, field)
+        return to_decimal(quantity, "mL") * Decimal(repr(float(density_g_per_ml)))
+    raise QuantityError(f"{quantity:~P}", "expected a mass or a volume", field)
