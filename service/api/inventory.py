@@ -1,0 +1,106 @@
+"""Inventory resources: labs, locations, substances, stocks, mixtures.
+
+Each view parses (pydantic), calls one service function and serialises.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable, Optional
+
+from flask import jsonify, request
+from pydantic import BaseModel, ConfigDict, Field, field_validator
+
+from service import schemas
+from service.api import bp
+from service.api.errors import ApiError
+from service.api.serialize import dump
+from service.chem.formula import atomic_weight
+from service.store import inventory
+from service.store.db import get_session
+from service.store.models import Lab, Location, Mixture, Stock, Substance
+
+
+class ListQuery(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+    include_retired: bool = False
+    lab_id: Optional[int] = None
+    location_id: Optional[int] = None
+    substance_id: Optional[int] = None
+    element: Optional[str] = None
+    limit: int = Field(default=100, ge=1, le=1000)
+    offset: int = Field(default=0, ge=0)
+
+    @field_validator("element")
+    @classmethod
+    def _element(cls, value: Optional[str]) -> Optional[str]:
+        if value is not None:
+            atomic_weight(value)  # FormulaError (a ValueError) for an unknown symbol
+        return value
+
+
+def json_body(model: type[BaseModel]) -> BaseModel:
+    """The request's JSON object validated as ``model`` (400 if it is not a JSON object)."""
+    body = request.get_json(silent=True)
+    if not isinstance(body, dict):
+        raise ApiError(400, "bad_request", "the request body must be a JSON object")
+    return model.model_validate(body)
+
+
+@dataclass(frozen=True)
+class Resource:
+    name: str  # plural, as in the URL
+    model: type
+    create_body: type[BaseModel]
+    patch_body: type[BaseModel]
+    create: Callable
+    update: Callable
+
+
+RESOURCES = (
+    Resource("labs", Lab, schemas.LabIn, schemas.LabPatch,
+             lambda s, b: inventory.create_record(s, Lab, b), inventory.update_record),
+    Resource("locations", Location, schemas.LocationIn, schemas.LocationPatch,
+             lambda s, b: inventory.create_record(s, Location, b), inventory.update_record),
+    Resource("substances", Substance, schemas.SubstanceIn, schemas.SubstancePatch,
+             lambda s, b: inventory.create_record(s, Substance, b), inventory.update_record),
+    Resource("stocks", Stock, schemas.StockIn, schemas.StockPatch, inventory.create_stock, inventory.update_stock),
+    Resource("mixtures", Mixture, schemas.MixtureIn, schemas.MixturePatch,
+             inventory.create_mixture, inventory.update_mixture),
+)
+
+
+def _register(resource: Resource) -> None:
+    name, model = resource.name, resource.model
+
+    def list_view():
+        query = ListQuery.model_validate(request.args.to_dict())
+        records = inventory.list_records(get_session(), model, **query.model_dump())
+        return jsonify({"items": [dump(r) for r in records], "count": len(records),
+                        "limit": query.limit, "offset": query.offset})
+
+    def create_view():
+        record = resource.create(get_session(), json_body(resource.create_body))
+        return jsonify(dump(record)), 201, {"Location": f"{bp.url_prefix}/{name}/{record.id}"}
+
+    def read_view(ident: int):
+        return jsonify(dump(inventory.get(get_session(), model, ident)))
+
+    def update_view(ident: int):
+        session = get_session()
+        record = inventory.get(session, model, ident)
+        return jsonify(dump(resource.update(session, record, json_body(resource.patch_body))))
+
+    def retire_view(ident: int):
+        session = get_session()
+        return jsonify(dump(inventory.retire(session, inventory.get(session, model, ident))))
+
+    bp.add_url_rule(f"/{name}", f"list_{name}", list_view, methods=["GET"])
+    bp.add_url_rule(f"/{name}", f"create_{name}", create_view, methods=["POST"])
+    bp.add_url_rule(f"/{name}/<int:ident>", f"read_{name}", read_view, methods=["GET"])
+    bp.add_url_rule(f"/{name}/<int:ident>", f"update_{name}", update_view, methods=["PATCH"])
+    bp.add_url_rule(f"/{name}/<int:ident>/retire", f"retire_{name}", retire_view, methods=["POST"])
+
+
+for _resource in RESOURCES:
+    _register(_resource)

@@ -1,0 +1,128 @@
+"""ORM records to JSON-ready dicts (units in every number's name)."""
+
+from __future__ import annotations
+
+import datetime as dt
+from typing import Any, Iterable
+
+from service.store.models import Lab, Location, Mixture, Stock, Substance
+
+__all__ = ["dump"]
+
+
+def _ts(value: dt.datetime | dt.date | None) -> str | None:
+    return None if value is None else value.isoformat()
+
+
+def _lifecycle(record) -> dict[str, Any]:
+    return {
+        "created_at": _ts(record.created_at),
+        "updated_at": _ts(record.updated_at),
+        "retired_at": _ts(record.retired_at),
+    }
+
+
+def element_rows(elements: Iterable) -> list[dict[str, Any]]:
+    return [{"element": e.element, "mass_ug": e.mass_ug, "mass_mg": e.mass_ug / 1000} for e in elements]
+
+
+def lab(record: Lab) -> dict[str, Any]:
+    return {"id": record.id, "code": record.code, "name": record.name, "building": record.building, **_lifecycle(record)}
+
+
+def location(record: Location) -> dict[str, Any]:
+    return {
+        "id": record.id,
+        "lab_id": record.lab_id,
+        "building": record.building,
+        "room": record.room,
+        "storage": record.storage,
+        "kind": record.kind,
+        **_lifecycle(record),
+    }
+
+
+def substance(record: Substance) -> dict[str, Any]:
+    return {
+        "id": record.id,
+        "key": record.key,
+        "name": record.name,
+        "synonyms": record.synonyms,
+        "formula": record.formula,
+        "cas": record.cas,
+        "state": record.state,
+        "density_g_per_ml": record.density_g_per_ml,
+        "flash_point_c": record.flash_point_c,
+        "boiling_point_c": record.boiling_point_c,
+        "autoignition_c": record.autoignition_c,
+        "hazard": record.hazard,
+        "flags": record.flags,
+        "source": record.source,
+        "physical_source": record.physical_source,
+        "origin": record.origin,
+        **_lifecycle(record),
+    }
+
+
+def _quantity(kind: str, micro: int) -> dict[str, Any]:
+    return {"value": micro / 1000, "unit": "mg" if kind == "mass" else "mL", "kind": kind}
+
+
+def stock(record: Stock) -> dict[str, Any]:
+    return {
+        "id": record.id,
+        "label": record.label,
+        "substance_id": record.substance_id,
+        "substance": record.substance.name,
+        "formula": record.substance.formula,
+        "lab_id": record.lab_id,
+        "location_id": record.location_id,
+        "amount": record.amount_text,
+        "quantity": _quantity(record.quantity_kind, record.quantity_micro),
+        "purity_percent": record.purity_percent,
+        "density_g_per_ml": record.density_g_per_ml or record.substance.density_g_per_ml,
+        "opened_on": _ts(record.opened_on),
+        "expires_on": _ts(record.expires_on),
+        "elements": element_rows(record.elements),
+        **_lifecycle(record),
+    }
+
+
+def mixture(record: Mixture) -> dict[str, Any]:
+    volume_ml = record.volume_ul / 1000
+    return {
+        "id": record.id,
+        "label": record.label,
+        "name": record.name,
+        "lab_id": record.lab_id,
+        "location_id": record.location_id,
+        "volume": record.volume_text,
+        "volume_ml": volume_ml,
+        "density_g_per_ml": record.density_g_per_ml,
+        "prepared_on": _ts(record.prepared_on),
+        "expires_on": _ts(record.expires_on),
+        "components": [
+            {
+                "substance_id": c.substance_id,
+                "substance": c.substance.name,
+                "formula": c.substance.formula,
+                "molarity": c.molarity_text,
+                "mass_fraction": c.mass_fraction,
+                "volume_fraction": c.volume_fraction,
+            }
+            for c in record.components
+        ],
+        "elements": [
+            {**row, "mg_per_ml": (row["mass_ug"] / 1000 / volume_ml) if volume_ml else None}
+            for row in element_rows(record.elements)
+        ],
+        **_lifecycle(record),
+    }
+
+
+_DUMPERS = {Lab: lab, Location: location, Substance: substance, Stock: stock, Mixture: mixture}
+
+
+def dump(record) -> dict[str, Any]:
+    """The JSON form of any inventory record."""
+    return _DUMPERS[type(record)](record)

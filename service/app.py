@@ -1,0 +1,44 @@
+"""The Flask application factory."""
+
+from __future__ import annotations
+
+from typing import Any, Mapping, Optional
+
+from flask import Flask
+
+from service.config import PROJECT_ROOT, load_config
+
+__all__ = ["create_app"]
+
+
+def create_app(test_config: Optional[Mapping[str, Any]] = None) -> Flask:
+    """Create the app: defaults, then ``DOTLEDGER_*`` environment, then ``test_config``."""
+    app = Flask(
+        __name__,
+        instance_path=str(PROJECT_ROOT / "instance"),
+        template_folder=str(PROJECT_ROOT / "templates"),
+        static_folder="web/static",
+    )
+    app.config.update(load_config(app.instance_path, test_config))
+    app.config["VERSION"] = _version()
+    app.json.sort_keys = False
+
+    from service.api import bp as api_bp
+    from service.api import errors
+    from service.store import db
+    from service.web import bp as web_bp
+
+    db.init_app(app)
+    errors.init_app(app)
+    app.register_blueprint(api_bp)
+    app.register_blueprint(web_bp)
+    return app
+
+
+def _version() -> str:
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("dotledger")
+    except PackageNotFoundError:  # pragma: no cover - running from a plain checkout
+        return "0.0.0"

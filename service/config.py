@@ -1,0 +1,33 @@
+"""Configuration: defaults, then ``DOTLEDGER_*`` environment variables, then a test mapping."""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+from typing import Any, Mapping, Optional
+
+__all__ = ["PROJECT_ROOT", "load_config"]
+
+PROJECT_ROOT = Path(__file__).resolve().parents[1]
+
+# name -> (default, parser); the environment variable is DOTLEDGER_<NAME>.
+_SETTINGS: dict[str, tuple[Any, Any]] = {
+    "DATABASE_URL": (None, str),  # default: SQLite file in the instance folder
+    "RULES_DIR": (str(PROJECT_ROOT / "rules"), str),
+    "RULE_PACKS": ("us-federal,eu,site-example", str),
+    "SECRET_KEY": ("dev-only-change-me", str),
+    "SITE_NAME": ("Demonstration site", str),
+    "PAGE_SIZE": ("A4", str),
+}
+
+
+def load_config(instance_path: str, test_config: Optional[Mapping[str, Any]] = None) -> dict[str, Any]:
+    """Build the configuration mapping (keys without the ``DOTLEDGER_`` prefix)."""
+    config: dict[str, Any] = {}
+    for name, (default, parse) in _SETTINGS.items():
+        raw = os.environ.get(f"DOTLEDGER_{name}")
+        config[name] = parse(raw) if raw not in (None, "") else default
+    if config["DATABASE_URL"] is None:
+        config["DATABASE_URL"] = f"sqlite:///{Path(instance_path) / 'dotledger.sqlite'}"
+    config.update(test_config or {})
+    return config

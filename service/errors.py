@@ -1,0 +1,38 @@
+"""Domain errors shared by the service layer; ``service.api.errors`` maps them to HTTP.
+
+Each subclasses a built-in and carries its context. The pure core has its own
+(FormulaError, QuantityError, CasNumberError, DataFileError), all ValueErrors.
+"""
+
+from __future__ import annotations
+
+from typing import Any, Optional
+
+__all__ = ["NotFound", "Conflict", "InvalidInput"]
+
+
+class NotFound(LookupError):
+    """No such record (or it is not visible)."""
+
+    def __init__(self, entity: str, ident: Any) -> None:
+        self.entity = entity
+        self.ident = ident
+        super().__init__(f"{entity} {ident} not found")
+
+
+class Conflict(ValueError):
+    """The request contradicts what is stored (a duplicate label, a retired record)."""
+
+    def __init__(self, message: str, field: Optional[str] = None, value: Any = None) -> None:
+        self.field = field
+        self.value = value
+        super().__init__(message)
+
+
+class InvalidInput(ValueError):
+    """A value that fails a check beyond its shape (an unknown reference, an empty list)."""
+
+    def __init__(self, field: str, message: str, value: Any = None) -> None:
+        self.field = field
+        self.value = value
+        super().__init__(f"{field}: {message}")

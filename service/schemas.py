@@ -1,0 +1,126 @@
+"""Request bodies at the edges (API, CSV import): pydantic models, separate from the ORM."""
+
+from __future__ import annotations
+
+import datetime as dt
+from decimal import Decimal
+from typing import Literal, Optional
+
+from pydantic import BaseModel, ConfigDict, Field, model_validator
+
+from service.chem.substances import Substance as CatalogueSubstance
+
+__all__ = [
+    "LabIn",
+    "LabPatch",
+    "LocationIn",
+    "LocationPatch",
+    "SubstanceIn",
+    "SubstancePatch",
+    "StockIn",
+    "StockPatch",
+    "ComponentIn",
+    "MixtureIn",
+    "MixturePatch",
+]
+
+LocationKind = Literal["storage", "satellite_accumulation_area"]
+
+
+class _Body(BaseModel):
+    model_config = ConfigDict(extra="forbid", str_strip_whitespace=True)
+
+
+class LabIn(_Body):
+    code: str = Field(min_length=1, max_length=40)
+    name: str = Field(min_length=1, max_length=200)
+    building: Optional[str] = Field(default=None, max_length=100)
+
+
+class LabPatch(_Body):
+    name: Optional[str] = Field(default=None, min_length=1, max_length=200)
+    building: Optional[str] = Field(default=None, max_length=100)
+
+
+class LocationIn(_Body):
+    lab_id: Optional[int] = None
+    building: str = Field(min_length=1, max_length=100)
+    room: str = Field(min_length=1, max_length=100)
+    storage: str = Field(min_length=1, max_length=200)
+    kind: LocationKind = "storage"
+
+
+class LocationPatch(_Body):
+    lab_id: Optional[int] = None
+    storage: Optional[str] = Field(default=None, min_length=1, max_length=200)
+    kind: Optional[LocationKind] = None
+
+
+class SubstanceIn(CatalogueSubstance):
+    """A locally added substance: the catalogue's own checks (formula, CAS, H-codes)."""
+
+    model_config = ConfigDict(extra="forbid", frozen=False, str_strip_whitespace=True)
+    source: str = Field(default="local entry — not from the shipped catalogue", min_length=3)
+
+
+class SubstancePatch(_Body):
+    name: Optional[str] = Field(default=None, min_length=1)
+    density_g_per_ml: Optional[float] = Field(default=None, gt=0)
+    flash_point_c: Optional[float] = None
+    boiling_point_c: Optional[float] = None
+    source: Optional[str] = Field(default=None, min_length=3)
+
+
+class StockIn(_Body):
+    label: str = Field(min_length=1, max_length=80)
+    substance_id: int
+    lab_id: int
+    location_id: int
+    amount: str = Field(description='mass or volume with unit, e.g. "25 g" or "500 mL"')
+    purity_percent: float = Field(default=100.0, gt=0, le=100)
+    density_g_per_ml: Optional[float] = Field(default=None, gt=0, description="overrides the catalogue density")
+    opened_on: Optional[dt.date] = None
+    expires_on: Optional[dt.date] = None
+
+
+class StockPatch(_Body):
+    label: Optional[str] = Field(default=None, min_length=1, max_length=80)
+    location_id: Optional[int] = None
+    amount: Optional[str] = None
+    purity_percent: Optional[float] = Field(default=None, gt=0, le=100)
+    density_g_per_ml: Optional[float] = Field(default=None, gt=0)
+    opened_on: Optional[dt.date] = None
+    expires_on: Optional[dt.date] = None
+
+
+class ComponentIn(_Body):
+    substance_id: int
+    molarity: Optional[str] = Field(default=None, description='e.g. "0.2 mol/L"')
+    mass_fraction: Optional[Decimal] = Field(default=None, ge=0, le=1)
+    volume_fraction: Optional[Decimal] = Field(default=None, ge=0, le=1)
+
+    @model_validator(mode="after")
+    def _exactly_one(self) -> "ComponentIn":
+        if sum(v is not None for v in (self.molarity, self.mass_fraction, self.volume_fraction)) != 1:
+            raise ValueError("give exactly one of molarity, mass_fraction or volume_fraction")
+        return self
+
+
+class MixtureIn(_Body):
+    label: str = Field(min_length=1, max_length=80)
+    name: str = Field(min_length=1, max_length=200)
+    lab_id: int
+    location_id: int
+    volume: str = Field(description='total volume with unit, e.g. "10 mL"')
+    density_g_per_ml: Optional[float] = Field(default=None, gt=0)
+    components: list[ComponentIn] = Field(min_length=1)
+    prepared_on: Optional[dt.date] = None
+    expires_on: Optional[dt.date] = None
+
+
+class MixturePatch(_Body):
+    name: Optional[str] = Field(default=None, min_length=1, max_length=200)
+    location_id: Optional[int] = None
+    volume: Optional[str] = None
+    density_g_per_ml: Optional[float] = Field(default=None, gt=0)
+    expires_on: Optional[dt.date] = None

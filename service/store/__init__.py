@@ -1,0 +1,1 @@
+"""Persistence: SQLAlchemy 2 models, sessions, queries and alembic migrations."""

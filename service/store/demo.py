@@ -1,0 +1,89 @@
+"""The invented demonstration scenario: one institute, one lab, a stocked inventory.
+
+Idempotent: records are looked up by their unique labels and created only if missing.
+"""
+
+from __future__ import annotations
+
+from sqlalchemy import select
+from sqlalchemy.orm import Session
+
+from service.chem.substances import SubstanceCatalogue
+from service.schemas import ComponentIn, LabIn, LocationIn, MixtureIn, StockIn
+from service.store import inventory
+from service.store.models import Lab, Location, Mixture, Stock, Substance
+
+__all__ = ["SITE_NAME", "load_demo"]
+
+SITE_NAME = "Northgate Institute of Materials"
+LAB = LabIn(code="C-214", name="Colloidal Nanocrystal Group", building="C")
+LOCATIONS = {
+    "toxics": ("C", "C-214", "toxics cabinet T1 (Cd, Se, Pb compounds)", "storage"),
+    "flammables": ("C", "C-214", "flammables cabinet F1", "storage"),
+    "glovebox": ("C", "C-214", "argon glovebox GB1", "storage"),
+    "saa": ("C", "C-214", "fume hood H2 — satellite accumulation area", "satellite_accumulation_area"),
+}
+# label, catalogue name, amount, purity %, location
+STOCKS = [
+    ("NG-0001", "cadmium oxide", "25 g", 99.99, "toxics"),
+    ("NG-0002", "cadmium acetate dihydrate", "10 g", 98.0, "toxics"),
+    ("NG-0003", "selenium", "50 g", 99.99, "toxics"),
+    ("NG-0004", "tellurium", "10 g", 99.997, "toxics"),
+    ("NG-0005", "sulfur", "100 g", 99.98, "toxics"),
+    ("NG-0006", "zinc acetate dihydrate", "25 g", 99.99, "toxics"),
+    ("NG-0007", "lead(II) bromide", "10 g", 99.999, "toxics"),
+    ("NG-0008", "cesium carbonate", "5 g", 99.9, "toxics"),
+    ("NG-0009", "trioctylphosphine", "100 mL", 97.0, "glovebox"),
+    ("NG-0010", "1-octadecene", "1 L", 90.0, "flammables"),
+    ("NG-0011", "oleic acid", "500 mL", 90.0, "flammables"),
+    ("NG-0012", "oleylamine", "250 mL", 70.0, "flammables"),
+    ("NG-0013", "acetone", "4 L", 99.5, "flammables"),
+    ("NG-0014", "toluene", "1 L", 99.8, "flammables"),
+    ("NG-0015", "hexane", "1 L", 95.0, "flammables"),
+    ("NG-0016", "methanol", "1 L", 99.8, "flammables"),
+]
+# label, name, volume, [(catalogue name, molarity | None, volume fraction | None)], location
+MIXTURES = [
+    ("NG-M01", "cadmium oleate 0.20 M in 1-octadecene", "50 mL",
+     [("cadmium oxide", "0.20 mol/L", None), ("1-octadecene", None, "0.85")], "glovebox"),
+    ("NG-M02", "TOP-Se 1.0 M", "20 mL",
+     [("selenium", "1.0 mol/L", None), ("trioctylphosphine", None, "0.9")], "glovebox"),
+    ("NG-M03", "cesium oleate 0.125 M in 1-octadecene", "40 mL",
+     [("cesium carbonate", "0.0625 mol/L", None), ("1-octadecene", None, "0.9")], "glovebox"),
+]
+
+
+def load_demo(session: Session, catalogue: SubstanceCatalogue) -> dict[str, int]:
+    """Create whatever of the demo scenario is missing; returns counts of what was added."""
+    added = {"labs": 0, "locations": 0, "stocks": 0, "mixtures": 0}
+    lab = session.scalar(select(Lab).where(Lab.code == LAB.code))
+    if lab is None:
+        lab = inventory.create_record(session, Lab, LAB)
+        added["labs"] += 1
+    places: dict[str, Location] = {}
+    for name, (building, room, storage, kind) in LOCATIONS.items():
+        place = session.scalar(select(Location).where(Location.building == building, Location.room == room, Location.storage == storage))
+        if place is None:
+            body = LocationIn(lab_id=lab.id, building=building, room=room, storage=storage, kind=kind)
+            place = inventory.create_record(session, Location, body)
+            added["locations"] += 1
+        places[name] = place
+
+    def substance_id(name: str) -> int:
+        entry = catalogue.find(name)
+        if entry is None:
+            raise LookupError(f"demo substance {name!r} is not in the catalogue")
+        return session.scalar(select(Substance.id).where(Substance.key == entry.key))
+
+    for label, name, amount, purity, place in STOCKS:
+        if session.scalar(select(Stock.id).where(Stock.label == label)) is None:
+            inventory.create_stock(session, StockIn(label=label, substance_id=substance_id(name), lab_id=lab.id,
+                                                    location_id=places[place].id, amount=amount, purity_percent=purity))
+            added["stocks"] += 1
+    for label, name, volume, parts, place in MIXTURES:
+        if session.scalar(select(Mixture.id).where(Mixture.label == label)) is None:
+            components = [ComponentIn(substance_id=substance_id(n), molarity=m, volume_fraction=v) for n, m, v in parts]
+            inventory.create_mixture(session, MixtureIn(label=label, name=name, lab_id=lab.id, location_id=places[place].id,
+                                                        volume=volume, components=components))
+            added["mixtures"] += 1
+    return added

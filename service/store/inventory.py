@@ -1,0 +1,313 @@
+"""Inventory service functions: labs, locations, substances, stocks and mixtures.
+
+Views and the importer call these; they validate references, compute element content
+with the pure core and flush, so that conflicts surface here as domain errors.
+"""
+
+from __future__ import annotations
+
+from decimal import Decimal
+from typing import Any, Iterable, Optional, TypeVar
+
+from pydantic import BaseModel
+from sqlalchemy import exists, func, select
+from sqlalchemy.orm import Session
+
+from service.chem.content import Component, mixture_element_masses_ug, substance_element_masses_ug
+from service.chem.formula import parse_formula
+from service.chem.substances import SubstanceCatalogue
+from service.chem.units import kind_of, parse_quantity, to_decimal
+from service.errors import Conflict, InvalidInput, NotFound
+from service.schemas import MixtureIn, MixturePatch, StockIn, StockPatch
+from service.store.models import (
+    Lab,
+    Location,
+    Mixture,
+    MixtureComponent,
+    MixtureElement,
+    Stock,
+    StockElement,
+    Substance,
+    utcnow,
+)
+
+__all__ = [
+    "get",
+    "create_record",
+    "update_record",
+    "retire",
+    "list_records",
+    "create_stock",
+    "update_stock",
+    "create_mixture",
+    "update_mixture",
+    "sync_catalogue",
+    "element_totals",
+]
+
+T = TypeVar("T")
+_ENTITY = {Lab: "lab", Location: "location", Substance: "substance", Stock: "stock", Mixture: "mixture"}
+_UNIQUE = {Lab: ("code",), Substance: ("key",), Stock: ("label",), Mixture: ("label",)}
+
+
+def get(session: Session, model: type[T], ident: int, *, field: Optional[str] = None) -> T:
+    """The record, or NotFound (InvalidInput naming ``field`` when it is a reference)."""
+    record = session.get(model, ident)
+    if record is None:
+        if field:
+            raise InvalidInput(field, f"no {_ENTITY[model]} with id {ident}", ident)
+        raise NotFound(_ENTITY[model], ident)
+    return record
+
+
+def _active(session: Session, model: type[T], ident: int, field: str) -> T:
+    record = get(session, model, ident, field=field)
+    if record.retired_at is not None:
+        raise InvalidInput(field, f"{_ENTITY[model]} {ident} is retired", ident)
+    return record
+
+
+def _check_unique(session: Session, model, values: dict[str, Any], own_id: Optional[int] = None) -> None:
+    for column in _UNIQUE.get(model, ()):
+        if column in values and values[column] is not None:
+            clause = getattr(model, column) == values[column]
+            if own_id is not None:
+                clause = clause & (model.id != own_id)
+            if session.scalar(select(exists().where(clause))):
+                raise Conflict(f"a {_ENTITY[model]} with {column} {values[column]!r} exists", column, values[column])
+
+
+def _check_refs(session: Session, values: dict[str, Any]) -> None:
+    for field, model in (("lab_id", Lab), ("location_id", Location), ("substance_id", Substance)):
+        if values.get(field) is not None:
+            _active(session, model, values[field], field)
+
+
+def create_record(session: Session, model: type[T], body: BaseModel, **extra: Any) -> T:
+    """Create a lab, location or substance from its validated body."""
+    values = {**body.model_dump(mode="python"), **extra}
+    if model is Substance:
+        values = _substance_values(values)
+    _check_unique(session, model, values)
+    _check_refs(session, values)
+    record = model(**values)
+    session.add(record)
+    session.flush()
+    return record
+
+
+def update_record(session: Session, record: T, patch: BaseModel) -> T:
+    """Apply the fields set in ``patch`` to a lab, location or substance."""
+    values = patch.model_dump(exclude_unset=True)
+    _check_unique(session, type(record), values, record.id)
+    _check_refs(session, values)
+    for key, value in values.items():
+        setattr(record, key, value)
+    session.flush()
+    return record
+
+
+def retire(session: Session, record: T) -> T:
+    """Mark a record retired (kept for the ledger, hidden from default listings)."""
+    if record.retired_at is not None:
+        raise Conflict(f"{_ENTITY[type(record)]} {record.id} is already retired")
+    record.retired_at = utcnow()
+    session.flush()
+    return record
+
+
+def list_records(
+    session: Session,
+    model,
+    *,
+    include_retired: bool = False,
+    lab_id: Optional[int] = None,
+    location_id: Optional[int] = None,
+    substance_id: Optional[int] = None,
+    element: Optional[str] = None,
+    limit: int = 500,
+    offset: int = 0,
+) -> list:
+    """Records of ``model`` with the filters that apply to it, in id order."""
+    query = select(model)
+    if not include_retired:
+        query = query.where(model.retired_at.is_(None))
+    for column, value in (("lab_id", lab_id), ("location_id", location_id), ("substance_id", substance_id)):
+        if value is not None and hasattr(model, column):
+            query = query.where(getattr(model, column) == value)
+    if element:
+        holder = {Stock: (StockElement, StockElement.stock_id), Mixture: (MixtureElement, MixtureElement.mixture_id)}
+        if model in holder:
+            table, fk = holder[model]
+            query = query.where(exists().where(fk == model.id, table.element == element, table.mass_ug > 0))
+        elif model is Substance:
+            # Formulas are parsed, not matched as text ("C" must not match "Cd").
+            rows = session.scalars(query.order_by(model.id)).unique()
+            return [s for s in rows if element in parse_formula(s.formula).atoms][offset : offset + limit]
+    return list(session.scalars(query.order_by(model.id).limit(limit).offset(offset)).unique())
+
+
+# --- stocks -------------------------------------------------------------------
+
+
+def _quantity_micro(amount: str) -> tuple[str, int]:
+    quantity = parse_quantity(amount, expect=("mass", "volume"), field="amount")
+    kind = kind_of(quantity)
+    unit = "ug" if kind == "mass" else "uL"
+    return kind, int(to_decimal(quantity, unit).to_integral_value())
+
+
+def _stock_elements(stock: Stock) -> list[StockElement]:
+    substance = stock.substance
+    masses = substance_element_masses_ug(
+        stock.amount_text,
+        substance.formula,
+        purity=Decimal(repr(stock.purity_percent)) / 100,
+        density_g_per_ml=stock.density_g_per_ml or substance.density_g_per_ml,
+        substance=substance.name,
+    )
+    return [StockElement(element=s, mass_ug=ug) for s, ug in sorted(masses.items())]
+
+
+def create_stock(session: Session, body: StockIn) -> Stock:
+    values = body.model_dump()
+    _check_unique(session, Stock, values)
+    _check_refs(session, values)
+    amount = values.pop("amount")
+    kind, micro = _quantity_micro(amount)
+    stock = Stock(**values, amount_text=amount, quantity_kind=kind, quantity_micro=micro)
+    stock.substance = session.get(Substance, body.substance_id)
+    stock.elements = _stock_elements(stock)
+    session.add(stock)
+    session.flush()
+    return stock
+
+
+def update_stock(session: Session, stock: Stock, patch: StockPatch) -> Stock:
+    values = patch.model_dump(exclude_unset=True)
+    _check_unique(session, Stock, values, stock.id)
+    _check_refs(session, values)
+    if "amount" in values:
+        amount = values.pop("amount")
+        stock.quantity_kind, stock.quantity_micro = _quantity_micro(amount or "")
+        stock.amount_text = amount
+    for key, value in values.items():
+        setattr(stock, key, value)
+    stock.elements = _stock_elements(stock)
+    session.flush()
+    return stock
+
+
+# --- mixtures -----------------------------------------------------------------
+
+
+def _mixture_elements(mixture: Mixture) -> list[MixtureElement]:
+    components = [
+        Component(
+            substance=c.substance.name,
+            formula=c.substance.formula,
+            molarity=c.molarity_text,
+            mass_fraction=Decimal(c.mass_fraction) if c.mass_fraction is not None else None,
+            volume_fraction=Decimal(c.volume_fraction) if c.volume_fraction is not None else None,
+            density_g_per_ml=c.substance.density_g_per_ml,
+        )
+        for c in mixture.components
+    ]
+    masses = mixture_element_masses_ug(
+        mixture.volume_text, components, density_g_per_ml=mixture.density_g_per_ml, name=mixture.name
+    )
+    return [MixtureElement(element=s, mass_ug=ug) for s, ug in sorted(masses.items())]
+
+
+def _volume_ul(volume: str) -> int:
+    quantity = parse_quantity(volume, expect="volume", field="volume")
+    return int(to_decimal(quantity, "uL").to_integral_value())
+
+
+def create_mixture(session: Session, body: MixtureIn) -> Mixture:
+    values = body.model_dump(exclude={"components"})
+    _check_unique(session, Mixture, values)
+    _check_refs(session, values)
+    volume = values.pop("volume")
+    mixture = Mixture(**values, volume_text=volume, volume_ul=_volume_ul(volume))
+    for position, comp in enumerate(body.components):
+        substance = _active(session, Substance, comp.substance_id, f"components[{position}].substance_id")
+        mixture.components.append(
+            MixtureComponent(
+                position=position,
+                substance=substance,
+                substance_id=substance.id,
+                molarity_text=comp.molarity,
+                mass_fraction=None if comp.mass_fraction is None else str(comp.mass_fraction),
+                volume_fraction=None if comp.volume_fraction is None else str(comp.volume_fraction),
+            )
+        )
+    mixture.elements = _mixture_elements(mixture)
+    session.add(mixture)
+    session.flush()
+    return mixture
+
+
+def update_mixture(session: Session, mixture: Mixture, patch: MixturePatch) -> Mixture:
+    values = patch.model_dump(exclude_unset=True)
+    _check_refs(session, values)
+    if "volume" in values:
+        volume = values.pop("volume") or ""
+        mixture.volume_ul = _volume_ul(volume)
+        mixture.volume_text = volume
+    for key, value in values.items():
+        setattr(mixture, key, value)
+    mixture.elements = _mixture_elements(mixture)
+    session.flush()
+    return mixture
+
+
+# --- catalogue ----------------------------------------------------------------
+
+
+def _substance_values(values: dict[str, Any]) -> dict[str, Any]:
+    values = dict(values)
+    values["hazard"] = dict(values.get("hazard") or {})
+    values["hazard"] = {k: list(v) if isinstance(v, tuple) else v for k, v in values["hazard"].items()}
+    values["synonyms"] = list(values.get("synonyms") or ())
+    values["flags"] = list(values.get("flags") or ())
+    values.setdefault("origin", "local")
+    return values
+
+
+def sync_catalogue(session: Session, catalogue: SubstanceCatalogue) -> tuple[int, int]:
+    """Insert or update the shipped catalogue's substances; returns (added, updated)."""
+    existing = {s.key: s for s in session.scalars(select(Substance))}
+    added = updated = 0
+    for entry in catalogue.substances:
+        values = _substance_values(entry.model_dump(mode="python"))
+        values["origin"] = "catalogue"
+        record = existing.get(entry.key)
+        if record is None:
+            session.add(Substance(**values))
+            added += 1
+        elif any(getattr(record, k) != v for k, v in values.items()):
+            for key, value in values.items():
+                setattr(record, key, value)
+            updated += 1
+    session.flush()
+    return added, updated
+
+
+
+def element_totals(session: Session) -> dict[str, int]:
+    """Element mass (µg) on hand in active stocks and mixtures, summed in SQL."""
+    totals: dict[str, int] = {}
+    for table, fk, owner in (
+        (StockElement, StockElement.stock_id, Stock),
+        (MixtureElement, MixtureElement.mixture_id, Mixture),
+    ):
+        query = (
+            select(table.element, func.sum(table.mass_ug))
+            .join(owner, owner.id == fk)
+            .where(owner.retired_at.is_(None))
+            .group_by(table.element)
+        )
+        for element, mass_ug in session.execute(query):
+            totals[element] = totals.get(element, 0) + int(mass_ug or 0)
+    return totals

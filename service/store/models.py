@@ -1,0 +1,183 @@
+"""ORM models: persistence only (no serialisation, URLs or business rules here)."""
+
+from __future__ import annotations
+
+import datetime as dt
+from typing import Any, Optional
+
+from sqlalchemy import (
+    JSON,
+    BigInteger,
+    Date,
+    DateTime,
+    Float,
+    ForeignKey,
+    Integer,
+    MetaData,
+    String,
+    Text,
+    TypeDecorator,
+    UniqueConstraint,
+)
+from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
+
+__all__ = [
+    "Base",
+    "Lab",
+    "Location",
+    "Substance",
+    "Stock",
+    "StockElement",
+    "Mixture",
+    "MixtureComponent",
+    "MixtureElement",
+    "utcnow",
+]
+
+
+def utcnow() -> dt.datetime:
+    return dt.datetime.now(dt.timezone.utc)
+
+
+class UTCDateTime(TypeDecorator):
+    """Timezone-aware UTC datetimes on every backend (SQLite keeps no zone)."""
+
+    impl = DateTime
+    cache_ok = True
+
+    def process_bind_param(self, value: Optional[dt.datetime], dialect) -> Optional[dt.datetime]:
+        if value is None:
+            return None
+        if value.tzinfo is None:
+            raise ValueError("naive datetime; use an aware UTC datetime")
+        return value.astimezone(dt.timezone.utc).replace(tzinfo=None)
+
+    def process_result_value(self, value: Optional[dt.datetime], dialect) -> Optional[dt.datetime]:
+        return None if value is None else value.replace(tzinfo=dt.timezone.utc)
+
+
+NAMING = {
+    "ix": "ix_%(column_0_label)s",
+    "uq": "uq_%(table_name)s_%(column_0_name)s",
+    "ck": "ck_%(table_name)s_%(constraint_name)s",
+    "fk": "fk_%(table_name)s_%(column_0_name)s_%(referred_table_name)s",
+    "pk": "pk_%(table_name)s",
+}
+
+
+class Base(DeclarativeBase):
+    metadata = MetaData(naming_convention=NAMING)
+    type_annotation_map = {dt.datetime: UTCDateTime, dict[str, Any]: JSON, list[Any]: JSON}
+
+
+class _Lifecycle:
+    created_at: Mapped[dt.datetime] = mapped_column(default=utcnow)
+    updated_at: Mapped[dt.datetime] = mapped_column(default=utcnow, onupdate=utcnow)
+    retired_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
+
+
+class Lab(_Lifecycle, Base):
+    __tablename__ = "labs"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    code: Mapped[str] = mapped_column(String(40), unique=True)
+    name: Mapped[str] = mapped_column(String(200))
+    building: Mapped[Optional[str]] = mapped_column(String(100))
+
+
+class Location(_Lifecycle, Base):
+    __tablename__ = "locations"
+    __table_args__ = (UniqueConstraint("building", "room", "storage"),)
+    id: Mapped[int] = mapped_column(primary_key=True)
+    lab_id: Mapped[Optional[int]] = mapped_column(ForeignKey("labs.id"))
+    building: Mapped[str] = mapped_column(String(100))
+    room: Mapped[str] = mapped_column(String(100))
+    storage: Mapped[str] = mapped_column(String(200))
+    kind: Mapped[str] = mapped_column(String(40))  # storage | satellite_accumulation_area
+
+
+class Substance(_Lifecycle, Base):
+    __tablename__ = "substances"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    key: Mapped[str] = mapped_column(String(80), unique=True)
+    name: Mapped[str] = mapped_column(String(200))
+    synonyms: Mapped[list[Any]] = mapped_column(default=list)
+    formula: Mapped[str] = mapped_column(String(200))
+    cas: Mapped[str] = mapped_column(String(20), index=True)
+    state: Mapped[str] = mapped_column(String(10))
+    density_g_per_ml: Mapped[Optional[float]] = mapped_column(Float)
+    flash_point_c: Mapped[Optional[float]] = mapped_column(Float)
+    boiling_point_c: Mapped[Optional[float]] = mapped_column(Float)
+    autoignition_c: Mapped[Optional[float]] = mapped_column(Float)
+    hazard: Mapped[dict[str, Any]] = mapped_column(default=dict)
+    flags: Mapped[list[Any]] = mapped_column(default=list)
+    source: Mapped[str] = mapped_column(Text)
+    physical_source: Mapped[Optional[str]] = mapped_column(Text)
+    origin: Mapped[str] = mapped_column(String(20), default="catalogue")  # catalogue | local
+
+
+class Stock(_Lifecycle, Base):
+    """A held quantity. The amount is kept exactly: µg for a mass, µL for a volume."""
+
+    __tablename__ = "stocks"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    label: Mapped[str] = mapped_column(String(80), unique=True)
+    substance_id: Mapped[int] = mapped_column(ForeignKey("substances.id"), index=True)
+    lab_id: Mapped[int] = mapped_column(ForeignKey("labs.id"), index=True)
+    location_id: Mapped[int] = mapped_column(ForeignKey("locations.id"), index=True)
+    amount_text: Mapped[str] = mapped_column(String(60))
+    quantity_kind: Mapped[str] = mapped_column(String(10))  # mass | volume
+    quantity_micro: Mapped[int] = mapped_column(BigInteger)  # µg or µL
+    purity_percent: Mapped[float] = mapped_column(Float, default=100.0)
+    density_g_per_ml: Mapped[Optional[float]] = mapped_column(Float)
+    opened_on: Mapped[Optional[dt.date]] = mapped_column(Date)
+    expires_on: Mapped[Optional[dt.date]] = mapped_column(Date)
+    substance: Mapped[Substance] = relationship(lazy="joined")
+    elements: Mapped[list["StockElement"]] = relationship(
+        cascade="all, delete-orphan", lazy="selectin", order_by="StockElement.element"
+    )
+
+
+class StockElement(Base):
+    __tablename__ = "stock_elements"
+    stock_id: Mapped[int] = mapped_column(ForeignKey("stocks.id"), primary_key=True)
+    element: Mapped[str] = mapped_column(String(3), primary_key=True, index=True)
+    mass_ug: Mapped[int] = mapped_column(BigInteger)
+
+
+class Mixture(_Lifecycle, Base):
+    __tablename__ = "mixtures"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    label: Mapped[str] = mapped_column(String(80), unique=True)
+    name: Mapped[str] = mapped_column(String(200))
+    lab_id: Mapped[int] = mapped_column(ForeignKey("labs.id"), index=True)
+    location_id: Mapped[int] = mapped_column(ForeignKey("locations.id"), index=True)
+    volume_text: Mapped[str] = mapped_column(String(60))
+    volume_ul: Mapped[int] = mapped_column(BigInteger)
+    density_g_per_ml: Mapped[Optional[float]] = mapped_column(Float)
+    prepared_on: Mapped[Optional[dt.date]] = mapped_column(Date)
+    expires_on: Mapped[Optional[dt.date]] = mapped_column(Date)
+    components: Mapped[list["MixtureComponent"]] = relationship(
+        cascade="all, delete-orphan", lazy="selectin", order_by="MixtureComponent.position"
+    )
+    elements: Mapped[list["MixtureElement"]] = relationship(
+        cascade="all, delete-orphan", lazy="selectin", order_by="MixtureElement.element"
+    )
+
+
+class MixtureComponent(Base):
+    __tablename__ = "mixture_components"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    mixture_id: Mapped[int] = mapped_column(ForeignKey("mixtures.id"), index=True)
+    position: Mapped[int] = mapped_column(Integer)
+    substance_id: Mapped[int] = mapped_column(ForeignKey("substances.id"))
+    molarity_text: Mapped[Optional[str]] = mapped_column(String(60))
+    mass_fraction: Mapped[Optional[str]] = mapped_column(String(30))  # decimal text, exact
+    volume_fraction: Mapped[Optional[str]] = mapped_column(String(30))
+    substance: Mapped[Substance] = relationship(lazy="joined")
+
+
+class MixtureElement(Base):
+    __tablename__ = "mixture_elements"
+    mixture_id: Mapped[int] = mapped_column(ForeignKey("mixtures.id"), primary_key=True)
+    element: Mapped[str] = mapped_column(String(3), primary_key=True, index=True)
+    mass_ug: Mapped[int] = mapped_column(BigInteger)

@@ -1,0 +1,63 @@
+"""Inventory pages: overview and stock list with element content."""
+
+from __future__ import annotations
+
+from flask import current_app, render_template, request
+
+from service.api.inventory import ListQuery
+from service.store import inventory
+from service.store.db import get_session
+from service.store.models import Lab, Location, Mixture, Stock
+from service.web import bp
+
+# Elements a nanocrystal group tracks on the overview, in this order.
+TRACKED = ("Cd", "Se", "Te", "Pb", "Zn", "S", "In", "Cs")
+
+
+@bp.get("/")
+def overview():
+    session = get_session()
+    stocks = inventory.list_records(session, Stock, limit=1000)
+    mixtures = inventory.list_records(session, Mixture, limit=1000)
+    totals = inventory.element_totals(session)
+    return render_template(
+        "pages/overview.html",
+        site=current_app.config["SITE_NAME"],
+        labs=inventory.list_records(session, Lab),
+        n_stocks=len(stocks),
+        n_mixtures=len(mixtures),
+        totals=[(symbol, totals.get(symbol, 0)) for symbol in TRACKED if totals.get(symbol)],
+    )
+
+
+@bp.get("/stocks")
+def stocks():
+    query = ListQuery.model_validate(request.args.to_dict())
+    session = get_session()
+    records = inventory.list_records(session, Stock, **query.model_dump())
+    locations = {loc.id: loc for loc in inventory.list_records(session, Location, include_retired=True, limit=1000)}
+    return render_template(
+        "pages/stocks.html",
+        site=current_app.config["SITE_NAME"],
+        stocks=records,
+        locations=locations,
+        tracked=TRACKED,
+        element=query.element,
+    )
+
+
+@bp.get("/mixtures")
+def mixtures():
+    session = get_session()
+    return render_template(
+        "pages/mixtures.html",
+        site=current_app.config["SITE_NAME"],
+        mixtures=inventory.list_records(session, Mixture, limit=1000),
+        tracked=TRACKED,
+    )
+
+
+@bp.app_template_filter("element_map")
+def element_map(elements) -> dict[str, int]:
+    """Element rows as {symbol: mass_ug} for table cells."""
+    return {e.element: e.mass_ug for e in elements}

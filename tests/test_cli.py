@@ -1,0 +1,46 @@
+"""The command line: init, demo (idempotent), and the pages serving the demo."""
+
+from __future__ import annotations
+
+from click.testing import CliRunner
+
+from service.app import create_app
+from service.cli import main
+
+
+def test_init_then_demo_twice(sqlite_url, monkeypatch):
+    monkeypatch.setenv("DOTLEDGER_DATABASE_URL", sqlite_url)
+    runner = CliRunner()
+    first = runner.invoke(main, ["init"])
+    assert first.exit_code == 0, first.output
+    assert "substance(s) added" in first.output
+    demo = runner.invoke(main, ["demo"])
+    assert demo.exit_code == 0, demo.output
+    assert "1 labs added, 4 locations added, 16 stocks added, 3 mixtures added" in demo.output
+    again = runner.invoke(main, ["demo"])
+    assert "0 labs added, 0 locations added, 0 stocks added, 0 mixtures added" in again.output
+
+    client = create_app({"DATABASE_URL": sqlite_url}).test_client()
+    overview = client.get("/").get_data(as_text=True)
+    assert "Colloidal Nanocrystal Group" in overview
+    assert "local regulations" in overview and "site safety officer" in overview
+    # 25 g CdO at 99.99 % holds 21.883 g Cd (× 0.8754098); the mixtures add 1.124 g.
+    assert ">Cd<" in overview
+    stocks = client.get("/stocks?element=Cd").get_data(as_text=True)
+    assert "NG-0001" in stocks and "NG-0003" not in stocks  # selenium has no Cd
+    assert client.get("/mixtures").status_code == 200
+
+
+def test_html_errors_for_pages(sqlite_url, monkeypatch):
+    monkeypatch.setenv("DOTLEDGER_DATABASE_URL", sqlite_url)
+    CliRunner().invoke(main, ["init"])
+    client = create_app({"DATABASE_URL": sqlite_url}).test_client()
+    missing = client.get("/no-such-page")
+    assert missing.status_code == 404 and "text/html" in missing.content_type
+    bad = client.get("/stocks?element=Qq")
+    assert bad.status_code == 422 and "does not validate" in bad.get_data(as_text=True)
+
+
+def test_import_of_a_missing_file_is_a_clear_error(tmp_path):
+    result = CliRunner().invoke(main, ["import-inventory", str(tmp_path / "nope.csv")])
+    assert result.exit_code == 2 and "does not exist" in result.output
