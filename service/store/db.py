@@ -43,7 +43,12 @@ def make_engine(url: str) -> Engine:
 
 
 def make_sessionmaker(engine: Engine) -> sessionmaker[Session]:
-    return sessionmaker(bind=engine, expire_on_commit=False)
+    """Sessions whose every flush is recorded in the hash-chained audit trail."""
+    from service.store import audit
+
+    factory = sessionmaker(bind=engine, expire_on_commit=False)
+    audit.install(factory)
+    return factory
 
 
 @contextmanager

@@ -1,0 +1,334 @@
+"""Audit log: an append-only, hash-chained record of every change to the ledger.
+
+Every flush of a session from an installed factory writes one event per created, updated,
+retired or deleted row, in the same transaction as the change. Each event stores the SHA-256
+of its content and of the event before it, so editing, removing or reordering a stored event
+breaks the chain that ``verify_chain`` walks.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+import json
+import math
+from dataclasses import dataclass
+from decimal import Decimal
+from typing import Any, NamedTuple, Optional
+
+from sqlalchemy import JSON, CheckConstraint, Index, String, Text, event, insert, inspect, select, update
+from sqlalchemy.orm import Mapped, Session, mapped_column
+
+from service.store.models import Base, utcnow
+
+__all__ = [
+    "AuditEvent",
+    "AuditHead",
+    "ChainReport",
+    "GENESIS",
+    "NOT_AUDITED",
+    "event_digest",
+    "json_safe",
+    "redact_secrets",
+    "install",
+    "verify_chain",
+    "list_events",
+]
+
+GENESIS = "0" * 64
+NOT_AUDITED = frozenset({"audit_events", "audit_head", "login_attempts", "stock_elements", "mixture_elements"})
+SECRETS = {"password_hash": "password_changed", "token_hash": "token_changed"}
+# A change to these alone is bookkeeping, not an event worth a link in the chain
+# (``last_used_at`` would otherwise add one per token-authenticated request).
+BOOKKEEPING = frozenset({"updated_at", "last_used_at"})
+SYSTEM_ACTOR = {"user_id": None, "label": "system"}
+_PENDING = "dotledger.audit.pending"
+
+
+class AuditEvent(Base):
+    """One recorded change; ascending ``id`` is chain order."""
+
+    __tablename__ = "audit_events"
+    __table_args__ = (Index("ix_audit_events_entity_entity_id", "entity", "entity_id"),)
+    id: Mapped[int] = mapped_column(primary_key=True, autoincrement=False)  # taken from the head
+    at: Mapped[dt.datetime] = mapped_column(index=True)
+    actor_user_id: Mapped[Optional[int]] = mapped_column(index=True)
+    actor_label: Mapped[str] = mapped_column(Text)
+    entity: Mapped[str] = mapped_column(String(80))
+    entity_id: Mapped[str] = mapped_column(String(80))
+    action: Mapped[str] = mapped_column(String(80))
+    before: Mapped[Optional[dict[str, Any]]] = mapped_column(JSON(none_as_null=True))
+    after: Mapped[Optional[dict[str, Any]]] = mapped_column(JSON(none_as_null=True))
+    prev_hash: Mapped[str] = mapped_column(String(64))
+    hash: Mapped[str] = mapped_column(String(64))
+
+
+class AuditHead(Base):
+    """The chain's single row (id 1): last event id (0 before any event) and its hash."""
+
+    __tablename__ = "audit_head"
+    __table_args__ = (CheckConstraint("id = 1", name="single_row"),)
+    id: Mapped[int] = mapped_column(primary_key=True, autoincrement=False)
+    last_event_id: Mapped[int]
+    last_hash: Mapped[str] = mapped_column(String(64))
+
+
+@dataclass(frozen=True)
+class ChainReport:
+    ok: bool
+    events_checked: int
+    first_broken_id: Optional[int]
+    reason: str
+
+
+def event_digest(prev_hash, at, actor_user_id, actor_label, entity, entity_id, action, before, after) -> str:
+    """SHA-256 (hex) of an event's canonical JSON, chained to ``prev_hash``.
+
+    The encoding is a JSON object of the nine arguments under their own names, keys sorted,
+    no whitespace, UTF-8 with non-ASCII characters kept; ``at`` is ISO 8601 in UTC with
+    microseconds and ``entity_id`` is text. ``before``/``after`` must already be JSON-safe.
+
+    >>> at = dt.datetime(2026, 1, 2, 3, 4, 5, tzinfo=dt.timezone.utc)
+    >>> len(event_digest(GENESIS, at, None, "system", "labs", 1, "create", None, {"code": "C-214"}))
+    64
+    """
+    if at.tzinfo is None:
+        raise ValueError("naive datetime; the audit log keeps aware UTC times")
+    document = {
+        "prev_hash": prev_hash,
+        "at": at.astimezone(dt.timezone.utc).isoformat(timespec="microseconds"),
+        "actor_user_id": actor_user_id,
+        "actor_label": actor_label,
+        "entity": entity,
+        "entity_id": str(entity_id),
+        "action": action,
+        "before": before,
+        "after": after,
+    }
+    encoded = json.dumps(document, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+    return hashlib.sha256(encoded.encode("utf-8")).hexdigest()
+
+
+def json_safe(value: Any) -> Any:
+    """``value`` with dates as ISO text, Decimals as text and containers as dicts/lists.
+
+    >>> json_safe({"on": dt.date(2026, 1, 2), "ug": Decimal("1.50"), "tags": ("a",)})
+    {'on': '2026-01-02', 'ug': '1.50', 'tags': ['a']}
+    """
+    if isinstance(value, dt.datetime):
+        if value.tzinfo is not None:
+            value = value.astimezone(dt.timezone.utc)
+        return value.isoformat(timespec="microseconds")
+    if isinstance(value, dt.date):
+        return value.isoformat()
+    if isinstance(value, Decimal):
+        return str(value)
+    if isinstance(value, float) and not math.isfinite(value):
+        return str(value)  # JSON has no NaN or infinity
+    if isinstance(value, dict):
+        return {str(k): json_safe(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple, set, frozenset)):
+        return [json_safe(v) for v in value]
+    if isinstance(value, bytes):
+        return value.hex()
+    if value is None or isinstance(value, (str, int, float)):
+        return value
+    return str(value)
+
+
+def redact_secrets(before: Optional[dict], after: Optional[dict]) -> tuple[Optional[dict], Optional[dict]]:
+    """Copies without secret columns; ``after`` gets ``<secret>_changed: true`` where one changed."""
+    before = None if before is None else dict(before)
+    after = None if after is None else dict(after)
+    for column, marker in SECRETS.items():
+        old = before.pop(column, None) if before is not None else None
+        present = after is not None and column in after
+        new = after.pop(column, None) if after is not None else None
+        if present and new != old:
+            after[marker] = True
+    return before, after
+
+
+# --- recording ------------------------------------------------------------------
+
+
+class _Change(NamedTuple):
+    entity: str
+    key: tuple
+    action: str
+    before: Optional[dict]
+    after: Optional[dict]
+
+
+def _columns(mapper) -> list[tuple[str, str]]:
+    """(attribute key, column name) for the columns of the mapped table itself."""
+    table = mapper.local_table
+    return [(p.key, p.columns[0].name) for p in mapper.column_attrs if getattr(p.columns[0], "table", None) is table]
+
+
+def _audited(state) -> bool:
+    return issubclass(state.class_, Base) and state.mapper.local_table.name not in NOT_AUDITED
+
+
+def _row(session: Session, state) -> dict[str, Any]:
+    """The row as stored right now, read with core so nothing is loaded into the session."""
+    mapper = state.mapper
+    ident = state.identity or tuple(state.dict.get(mapper.get_property_by_column(c).key) for c in mapper.primary_key)
+    query = select(mapper.local_table).where(*(c == v for c, v in zip(mapper.primary_key, ident)))
+    row = session.connection().execute(query).mappings().one_or_none()
+    return {} if row is None else {name: row[name] for _, name in _columns(mapper)}
+
+
+def _stored(session: Session, state) -> dict[str, Any]:
+    """Column values as last stored: from attribute history, or the row if one was never loaded."""
+    values = {}
+    for key, name in _columns(state.mapper):
+        history = state.attrs[key].history
+        if history.deleted:
+            values[name] = history.deleted[0]
+        elif history.unchanged:
+            values[name] = history.unchanged[0]
+        else:  # unloaded (expired) value, possibly overwritten since
+            return _row(session, state)
+    return values
+
+
+def _current(session: Session, state) -> dict[str, Any]:
+    """Column values after the flush; expired or server-made values are read back."""
+    columns = _columns(state.mapper)
+    if all(key in state.dict for key, _ in columns):
+        return {name: state.dict[key] for key, name in columns}
+    return _row(session, state)
+
+
+def _change(session: Session, state, captured: dict, new: set, isdelete: bool) -> Optional[_Change]:
+    if isdelete:
+        before, after, action = captured.get(state) or _stored(session, state), None, "delete"
+    elif state in new:
+        before, after, action = None, _current(session, state), "create"
+    else:
+        before, after = captured.get(state) or _stored(session, state), _current(session, state)
+        before, after = json_safe(before), json_safe(after)
+        if all(before.get(k) == after.get(k) for k in (before.keys() | after.keys()) - BOOKKEEPING):
+            return None
+        retired = "retired_at" in after and before.get("retired_at") is None and after["retired_at"] is not None
+        action = "retire" if retired else "update"
+    values = after if after is not None else before
+    key = tuple(values.get(c.name) for c in state.mapper.primary_key)
+    before, after = redact_secrets(json_safe(before), json_safe(after))
+    return _Change(state.mapper.local_table.name, key, action, before, after)
+
+
+def _before_flush(session: Session, flush_context, instances) -> None:
+    """Capture the stored state of rows about to change while the database still holds it."""
+    states = [inspect(o) for o in session.dirty if session.is_modified(o, include_collections=False)]
+    states += [inspect(o) for o in session.deleted]
+    session.info[_PENDING] = {s: _stored(session, s) for s in states if _audited(s) and s.has_identity}
+
+
+def _after_flush(session: Session, flush_context) -> None:
+    """Write one event per changed audited row, in this transaction, under the locked head."""
+    captured = session.info.pop(_PENDING, None)
+    if captured is None:  # a second registration of these listeners already wrote this flush
+        return
+    new = {inspect(o) for o in session.new}
+    changes = []
+    for state, (isdelete, listonly) in flush_context.states.items():
+        if not listonly and _audited(state):
+            change = _change(session, state, captured, new, isdelete)
+            if change is not None:
+                changes.append(change)
+    if changes:
+        _append(session, sorted(changes, key=lambda c: (c.entity, c.key)))
+
+
+def _append(session: Session, changes: list[_Change]) -> None:
+    actor = session.info.get("actor") or SYSTEM_ACTOR
+    user_id, label = actor.get("user_id"), str(actor.get("label") or "system")
+    head, events = AuditHead.__table__, AuditEvent.__table__
+    connection = session.connection()
+    # The lock (SQLite: the immediate transaction) makes concurrent writers queue here.
+    locked = connection.execute(select(head.c.last_event_id, head.c.last_hash).where(head.c.id == 1).with_for_update())
+    row = locked.one_or_none()
+    if row is None:
+        raise RuntimeError("the audit_head row is missing; upgrade the database (dotledger init)")
+    last_id, last_hash = row
+    at = utcnow()  # taken under the lock, so chain order is also time order
+    rows = []
+    for c in changes:
+        entity_id = ",".join(str(v) for v in c.key)
+        digest = event_digest(last_hash, at, user_id, label, c.entity, entity_id, c.action, c.before, c.after)
+        last_id += 1
+        rows.append(dict(id=last_id, at=at, actor_user_id=user_id, actor_label=label, entity=c.entity,
+                         entity_id=entity_id, action=c.action, before=c.before, after=c.after,
+                         prev_hash=last_hash, hash=digest))
+        last_hash = digest
+    connection.execute(insert(events), rows)
+    connection.execute(update(head).where(head.c.id == 1).values(last_event_id=last_id, last_hash=last_hash))
+
+
+def install(target) -> None:
+    """Record audit events for sessions made by ``target`` (a sessionmaker or Session class).
+
+    Installing again is harmless: a listener already present is not added twice, and a flush
+    seen by two registrations (a class and a factory of it) is written once.
+    """
+    for name, listener in (("before_flush", _before_flush), ("after_flush", _after_flush)):
+        if not event.contains(target, name, listener):
+            event.listen(target, name, listener)
+
+
+# --- reading --------------------------------------------------------------------
+
+
+def _broken(row: Any, prev_id: int, prev_hash: str) -> Optional[str]:
+    """Why the stored event ``row`` does not follow event ``prev_id`` (None when it does)."""
+    if row.id != prev_id + 1:
+        return f"events {prev_id + 1}..{row.id - 1} are missing"
+    if row.prev_hash != prev_hash:
+        return f"prev_hash does not match the hash of event {prev_id}"
+    digest = event_digest(prev_hash, row.at, row.actor_user_id, row.actor_label, row.entity,
+                          row.entity_id, row.action, row.before, row.after)
+    if digest != row.hash:
+        return "stored hash does not match the event's content"
+    return None
+
+
+def verify_chain(session: Session, *, batch_size: int = 1000) -> ChainReport:
+    """Recompute the chain in id order, batch by batch, and name the first broken event."""
+    head = session.execute(select(AuditHead.last_event_id, AuditHead.last_hash).where(AuditHead.id == 1)).one_or_none()
+    if head is None:
+        return ChainReport(False, 0, None, "the audit_head row is missing")
+    events = AuditEvent.__table__
+    prev_id, prev_hash, checked = 0, GENESIS, 0
+    # Only up to the head read first: events committed meanwhile are not a break.
+    while prev_id < head.last_event_id:
+        query = select(events).where(events.c.id > prev_id, events.c.id <= head.last_event_id)
+        batch = session.execute(query.order_by(events.c.id).limit(batch_size)).all()
+        if not batch:
+            break
+        for row in batch:
+            reason = _broken(row, prev_id, prev_hash)
+            if reason:
+                return ChainReport(False, checked, row.id, reason)
+            prev_id, prev_hash, checked = row.id, row.hash, checked + 1
+    if (prev_id, prev_hash) != (head.last_event_id, head.last_hash):
+        reason = f"the head names event {head.last_event_id} but the chain ends at event {prev_id}"
+        return ChainReport(False, checked, prev_id + 1 if prev_id < head.last_event_id else prev_id, reason)
+    return ChainReport(True, checked, None, f"{checked} events verified")
+
+
+def list_events(session: Session, *, entity: Optional[str] = None, entity_id: Any = None,
+                since: Optional[dt.datetime] = None, until: Optional[dt.datetime] = None,
+                limit: int = 100, offset: int = 0) -> list[AuditEvent]:
+    """Events in chain order; ``since`` is inclusive, ``until`` exclusive."""
+    query = select(AuditEvent)
+    if entity is not None:
+        query = query.where(AuditEvent.entity == entity)
+    if entity_id is not None:
+        query = query.where(AuditEvent.entity_id == str(entity_id))
+    if since is not None:
+        query = query.where(AuditEvent.at >= since)
+    if until is not None:
+        query = query.where(AuditEvent.at < until)
+    return list(session.scalars(query.order_by(AuditEvent.id).limit(limit).offset(offset)))
