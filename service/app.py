@@ -23,6 +23,7 @@ def create_app(test_config: Optional[Mapping[str, Any]] = None) -> Flask:
     app.config["VERSION"] = _version()
     app.json.sort_keys = False
 
+    from service import auth
     from service.api import bp as api_bp
     from service.api import errors
     from service.store import db
@@ -30,6 +31,7 @@ def create_app(test_config: Optional[Mapping[str, Any]] = None) -> Flask:
 
     db.init_app(app)
     errors.init_app(app)
+    auth.init_app(app)
     app.register_blueprint(api_bp)
     app.register_blueprint(web_bp)
     return app

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import sys
+from contextlib import contextmanager
 from pathlib import Path
 
 import click
@@ -26,12 +27,22 @@ def _sessions(app):
     return app.extensions["dotledger.sessions"]
 
 
+@contextmanager
+def _command_session(app, command: str):
+    """A transaction whose audit events name the command as their actor."""
+    from service.store.db import session_scope
+
+    with session_scope(_sessions(app)) as session:
+        session.info["actor"] = {"user_id": None, "label": f"cli:{command}"}
+        yield session
+
+
 def _init(app) -> tuple[int, int]:
     from service.store import inventory
-    from service.store.db import session_scope, upgrade
+    from service.store.db import upgrade
 
     upgrade(app.config["DATABASE_URL"])
-    with session_scope(_sessions(app)) as session:
+    with _command_session(app, "init") as session:
         return inventory.sync_catalogue(session, _catalogue(app))
 
 
@@ -56,14 +67,19 @@ def init() -> None:
 @main.command()
 def demo() -> None:
     """Load the invented demonstration scenario (safe to run again)."""
-    from service.store.db import session_scope
     from service.store.demo import SITE_NAME, load_demo
 
     app = _app()
     _init(app)
-    with session_scope(_sessions(app)) as session:
-        added = load_demo(session, _catalogue(app))
+    with _command_session(app, "demo") as session:
+        added, passwords = load_demo(session, _catalogue(app))
     click.echo(f"demo scenario {SITE_NAME!r}: " + ", ".join(f"{n} {k} added" for k, n in added.items()))
+    if passwords:
+        click.echo("demo accounts (passwords are shown only now; note them):")
+        for email, password in passwords.items():
+            click.echo(f"  {email:<26} {password}")
+    else:
+        click.echo("demo accounts exist already; their passwords were shown when they were created")
 
 
 @main.command()
@@ -89,7 +105,6 @@ def import_inventory_command(file: Path, dry_run: bool, report_path: Path | None
     The valid rows are written in one transaction: all of them or, on any failure, none.
     """
     from service.errors import InvalidInput
-    from service.store.db import session_scope
     from service.store.importer import import_inventory, read_table
 
     app = _app()
@@ -104,7 +119,7 @@ def import_inventory_command(file: Path, dry_run: bool, report_path: Path | None
         entry = catalogue.find(text)
         return entry.key if entry else None
 
-    with session_scope(_sessions(app)) as session:
+    with _command_session(app, "import-inventory") as session:
         with click.progressbar(length=len(frame), label="checking rows", file=sys.stderr) as bar:
             report = import_inventory(session, frame, catalogue_lookup=lookup, dry_run=dry_run, progress=bar.update)
     for row in report.rejected:
@@ -116,3 +131,58 @@ def import_inventory_command(file: Path, dry_run: bool, report_path: Path | None
         f"{report.rows} row(s) read: {verb} {report.imported}, rejected {len(report.rejected)}"
         + (f", {report.locations_created} new location(s)" if report.locations_created else "")
     )
+
+
+@main.command("add-user")
+@click.argument("email")
+@click.option("--name", "display_name", required=True, help="Name shown on records and documents.")
+@click.option("--role", type=click.Choice(["researcher", "safety_officer", "lab_manager", "auditor", "admin"]),
+              required=True)
+@click.option("--lab", "lab_codes", multiple=True, help="Lab code the user belongs to (repeatable).")
+@click.password_option(help="At least 12 characters; asked for when not given.")
+def add_user(email: str, display_name: str, role: str, lab_codes: tuple[str, ...], password: str) -> None:
+    """Create an account (e.g. the first administrator of a new site)."""
+    from pydantic import ValidationError
+    from sqlalchemy import select
+
+    from service.errors import Conflict, InvalidInput
+    from service.schemas import UserIn
+    from service.store import identity
+    from service.store.models import Lab
+
+    app = _app()
+    _init(app)
+    try:
+        with _command_session(app, "add-user") as session:
+            lab_ids = []
+            for code in lab_codes:
+                lab_id = session.scalar(select(Lab.id).where(Lab.code == code))
+                if lab_id is None:
+                    raise click.ClickException(f"no lab with code {code!r}")
+                lab_ids.append(lab_id)
+            user = identity.create_user(session, UserIn(email=email, display_name=display_name, role=role,
+                                                        password=password, lab_ids=lab_ids))
+            click.echo(f"created {user.email} ({user.role})")
+    except ValidationError as exc:
+        raise click.ClickException("; ".join(f"{'.'.join(map(str, e['loc']))}: {e['msg']}" for e in exc.errors()))
+    except (Conflict, InvalidInput) as exc:
+        raise click.ClickException(str(exc)) from None
+
+
+@main.command("audit-verify")
+def audit_verify() -> None:
+    """Recompute the audit trail's hash chain; name the first broken event (exit status 1)."""
+    from service.store import audit
+    from service.store.db import session_scope
+
+    app = _app()
+    with session_scope(_sessions(app)) as session:
+        head = session.get(audit.AuditHead, 1)
+        report = audit.verify_chain(session)
+    if report.ok:
+        click.echo(f"audit chain intact: {report.events_checked} event(s); head hash {head.last_hash}")
+        click.echo("keep the head hash outside the database (e.g. in the lab notebook) to detect a rewritten tail")
+        return
+    click.echo(f"audit chain BROKEN at event {report.first_broken_id}: {report.reason} "
+               f"({report.events_checked} event(s) before it verified)", err=True)
+    sys.exit(1)

@@ -18,6 +18,10 @@ _SETTINGS: dict[str, tuple[Any, Any]] = {
     "SECRET_KEY": ("dev-only-change-me", str),
     "SITE_NAME": ("Demonstration site", str),
     "PAGE_SIZE": ("A4", str),
+    "SECURE_COOKIES": ("false", lambda v: str(v).lower() in ("1", "true", "yes")),
+    "LOGIN_MAX_FAILURES_PER_ACCOUNT": (5, int),
+    "LOGIN_MAX_FAILURES_PER_ADDRESS": (20, int),
+    "LOGIN_WINDOW_S": (900, int),
 }
 
 
@@ -26,7 +30,7 @@ def load_config(instance_path: str, test_config: Optional[Mapping[str, Any]] = N
     config: dict[str, Any] = {}
     for name, (default, parse) in _SETTINGS.items():
         raw = os.environ.get(f"DOTLEDGER_{name}")
-        config[name] = parse(raw) if raw not in (None, "") else default
+        config[name] = parse(raw if raw not in (None, "") else default)
     if config["DATABASE_URL"] is None:
         config["DATABASE_URL"] = f"sqlite:///{Path(instance_path) / 'dotledger.sqlite'}"
     config.update(test_config or {})

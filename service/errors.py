@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from typing import Any, Optional
 
-__all__ = ["NotFound", "Conflict", "InvalidInput"]
+__all__ = ["NotFound", "Conflict", "InvalidInput", "Unauthenticated", "Forbidden", "CsrfFailed"]
 
 
 class NotFound(LookupError):
@@ -36,3 +36,19 @@ class InvalidInput(ValueError):
         self.field = field
         self.value = value
         super().__init__(f"{field}: {message}")
+
+
+class Unauthenticated(PermissionError):
+    """No signed-in user and no valid token."""
+
+
+class Forbidden(PermissionError):
+    """The signed-in user may not do this; carries what was refused."""
+
+    def __init__(self, message: str, details: Any = None) -> None:
+        self.details = details
+        super().__init__(message)
+
+
+class CsrfFailed(PermissionError):
+    """A form arrived without its security token, or with a stale one."""

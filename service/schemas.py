@@ -6,7 +6,7 @@ import datetime as dt
 from decimal import Decimal
 from typing import Literal, Optional
 
-from pydantic import BaseModel, ConfigDict, Field, model_validator
+from pydantic import BaseModel, ConfigDict, Field, SecretStr, model_validator
 
 from service.chem.substances import Substance as CatalogueSubstance
 
@@ -22,6 +22,10 @@ __all__ = [
     "ComponentIn",
     "MixtureIn",
     "MixturePatch",
+    "UserIn",
+    "UserPatch",
+    "TokenRequest",
+    "AuditQuery",
 ]
 
 LocationKind = Literal["storage", "satellite_accumulation_area"]
@@ -124,3 +128,36 @@ class MixturePatch(_Body):
     volume: Optional[str] = None
     density_g_per_ml: Optional[float] = Field(default=None, gt=0)
     expires_on: Optional[dt.date] = None
+
+
+Role = Literal["researcher", "safety_officer", "lab_manager", "auditor", "admin"]
+
+
+class UserIn(_Body):
+    email: str = Field(pattern=r"^[^@\s]+@[^@\s]+\.[^@\s]+$", max_length=254)
+    display_name: str = Field(min_length=1, max_length=200)
+    role: Role
+    password: SecretStr = Field(min_length=12, description="at least 12 characters")
+    lab_ids: list[int] = []
+
+
+class UserPatch(_Body):
+    display_name: Optional[str] = Field(default=None, min_length=1, max_length=200)
+    role: Optional[Role] = None
+    password: Optional[SecretStr] = Field(default=None, min_length=12)
+    lab_ids: Optional[list[int]] = None
+
+
+class TokenRequest(_Body):
+    email: str = Field(min_length=3, max_length=254)
+    password: SecretStr
+    name: str = Field(default="api", min_length=1, max_length=100)
+
+
+class AuditQuery(_Body):
+    entity: Optional[str] = None
+    entity_id: Optional[str] = None
+    since: Optional[dt.datetime] = None
+    until: Optional[dt.datetime] = None
+    limit: int = Field(default=100, ge=1, le=1000)
+    offset: int = Field(default=0, ge=0)

@@ -16,7 +16,8 @@ from sqlalchemy import create_engine, text
 
 from service.app import create_app
 from service.chem.substances import load_catalogue
-from service.store import inventory
+from service.schemas import UserIn
+from service.store import identity, inventory
 from service.store.db import session_scope, upgrade
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -86,14 +87,28 @@ def client(app):
     return app.test_client()
 
 
-class Api:
-    """A small helper over the test client that checks the error shape on every 4xx."""
+def make_user(app, email: str, role: str, lab_ids=(), password: str = "correct horse battery") -> str:
+    """Create a user directly and return a fresh personal token for them."""
+    with session_scope(app.extensions["dotledger.sessions"]) as session:
+        user = identity.create_user(session, UserIn(email=email, display_name=email.split("@")[0], role=role,
+                                                    password=password, lab_ids=list(lab_ids)))
+        return identity.issue_token(session, user, "test").secret
 
-    def __init__(self, client) -> None:
+
+class Api:
+    """A small helper over the test client that sends a bearer token and checks the
+    error shape on every 4xx."""
+
+    def __init__(self, client, token: str | None = None) -> None:
         self.client = client
+        self.token = token
+
+    def as_(self, token: str | None) -> "Api":
+        return Api(self.client, token)
 
     def call(self, method: str, path: str, json=None, expect: int = 200):
-        response = self.client.open(f"/api/v1{path}", method=method, json=json)
+        headers = {"Authorization": f"Bearer {self.token}"} if self.token else {}
+        response = self.client.open(f"/api/v1{path}", method=method, json=json, headers=headers)
         assert response.status_code == expect, (response.status_code, response.get_json())
         body = response.get_json()
         if response.status_code >= 400:
@@ -112,5 +127,6 @@ class Api:
 
 
 @pytest.fixture
-def api(client) -> Api:
-    return Api(client)
+def api(app, client) -> Api:
+    """The API as a site administrator."""
+    return Api(client, make_user(app, "admin@test.example", "admin"))

@@ -127,7 +127,8 @@ def test_volume_without_density_is_refused_naming_the_substance(api):
 )
 def test_errors_are_4xx_with_the_error_shape(api, method, path, body, status):
     if isinstance(body, str):
-        response = api.client.open(f"/api/v1{path}", method=method, data=body, content_type="application/json")
+        response = api.client.open(f"/api/v1{path}", method=method, data=body, content_type="application/json",
+                                   headers={"Authorization": f"Bearer {api.token}"})
         assert response.status_code == status
         assert response.get_json()["error"]["code"] == "bad_request"
     else:

@@ -16,11 +16,16 @@ def test_init_then_demo_twice(sqlite_url, monkeypatch):
     assert "substance(s) added" in first.output
     demo = runner.invoke(main, ["demo"])
     assert demo.exit_code == 0, demo.output
-    assert "1 labs added, 4 locations added, 16 stocks added, 3 mixtures added" in demo.output
+    assert "1 labs added, 4 locations added, 16 stocks added, 3 mixtures added, 4 accounts added" in demo.output
+    passwords = dict(line.split() for line in demo.output.splitlines() if line.startswith("  ") and "@" in line)
+    assert set(passwords) == {"researcher@example.org", "safety@example.org", "manager@example.org", "admin@example.org"}
     again = runner.invoke(main, ["demo"])
-    assert "0 labs added, 0 locations added, 0 stocks added, 0 mixtures added" in again.output
+    assert "0 labs added, 0 locations added, 0 stocks added, 0 mixtures added, 0 accounts added" in again.output
+    assert not any(p in again.output for p in passwords.values())
 
     client = create_app({"DATABASE_URL": sqlite_url}).test_client()
+    assert client.get("/").status_code == 302  # pages need a signed-in user
+    sign_in(client, "manager@example.org", passwords["manager@example.org"])
     overview = client.get("/").get_data(as_text=True)
     assert "Colloidal Nanocrystal Group" in overview
     assert "local regulations" in overview and "site safety officer" in overview
@@ -31,10 +36,19 @@ def test_init_then_demo_twice(sqlite_url, monkeypatch):
     assert client.get("/mixtures").status_code == 200
 
 
+def sign_in(client, email: str, password: str) -> None:
+    page = client.get("/login").get_data(as_text=True)
+    token = page.split('name="csrf_token" value="', 1)[1].split('"', 1)[0]
+    response = client.post("/login", data={"email": email, "password": password, "csrf_token": token, "next": "/"})
+    assert response.status_code == 302, response.get_data(as_text=True)
+
+
 def test_html_errors_for_pages(sqlite_url, monkeypatch):
     monkeypatch.setenv("DOTLEDGER_DATABASE_URL", sqlite_url)
-    CliRunner().invoke(main, ["init"])
+    result = CliRunner().invoke(main, ["demo"])
+    passwords = dict(line.split() for line in result.output.splitlines() if line.startswith("  ") and "@" in line)
     client = create_app({"DATABASE_URL": sqlite_url}).test_client()
+    sign_in(client, "researcher@example.org", passwords["researcher@example.org"])
     missing = client.get("/no-such-page")
     assert missing.status_code == 404 and "text/html" in missing.content_type
     bad = client.get("/stocks?element=Qq")

@@ -17,7 +17,7 @@ from service.chem.cas import CasNumberError
 from service.chem.formula import FormulaError
 from service.chem.units import QuantityError
 from service.datafiles import DataFileError
-from service.errors import Conflict, InvalidInput, NotFound
+from service.errors import Conflict, CsrfFailed, Forbidden, InvalidInput, NotFound, Unauthenticated
 
 __all__ = ["ApiError", "error_response", "init_app"]
 
@@ -58,6 +58,18 @@ def init_app(app: Flask) -> None:
     @app.errorhandler(ApiError)
     def _api_error(exc: ApiError):
         return error_response(exc.status, exc.code, exc.message, exc.details)
+
+    @app.errorhandler(Unauthenticated)
+    def _unauthenticated(exc: Unauthenticated):
+        return error_response(401, "unauthenticated", str(exc))
+
+    @app.errorhandler(Forbidden)
+    def _forbidden(exc: Forbidden):
+        return error_response(403, "forbidden", str(exc), exc.details)
+
+    @app.errorhandler(CsrfFailed)
+    def _csrf(exc: CsrfFailed):
+        return error_response(400, "csrf_failed", str(exc))
 
     @app.errorhandler(ValidationError)
     def _validation(exc: ValidationError):

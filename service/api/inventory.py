@@ -15,6 +15,7 @@ from service import schemas
 from service.api import bp
 from service.api.errors import ApiError
 from service.api.serialize import dump
+from service.auth import check_lab, lab_scope
 from service.chem.formula import atomic_weight
 from service.store import inventory
 from service.store.db import get_session
@@ -75,25 +76,34 @@ def _register(resource: Resource) -> None:
 
     def list_view():
         query = ListQuery.model_validate(request.args.to_dict())
-        records = inventory.list_records(get_session(), model, **query.model_dump())
+        records = inventory.list_records(get_session(), model, **query.model_dump(), lab_ids=lab_scope())
         return jsonify({"items": [dump(r) for r in records], "count": len(records),
                         "limit": query.limit, "offset": query.offset})
 
     def create_view():
-        record = resource.create(get_session(), json_body(resource.create_body))
+        body = json_body(resource.create_body)
+        if hasattr(body, "lab_id"):
+            check_lab(body.lab_id)
+        record = resource.create(get_session(), body)
         return jsonify(dump(record)), 201, {"Location": f"{bp.url_prefix}/{name}/{record.id}"}
 
+    def visible(ident: int):
+        record = inventory.get(get_session(), model, ident)
+        if model is Lab:
+            check_lab(record.id)
+        elif getattr(record, "lab_id", None) is not None:  # a location without a lab is shared
+            check_lab(record.lab_id)
+        return record
+
     def read_view(ident: int):
-        return jsonify(dump(inventory.get(get_session(), model, ident)))
+        return jsonify(dump(visible(ident)))
 
     def update_view(ident: int):
-        session = get_session()
-        record = inventory.get(session, model, ident)
-        return jsonify(dump(resource.update(session, record, json_body(resource.patch_body))))
+        body = json_body(resource.patch_body)
+        return jsonify(dump(resource.update(get_session(), visible(ident), body)))
 
     def retire_view(ident: int):
-        session = get_session()
-        return jsonify(dump(inventory.retire(session, inventory.get(session, model, ident))))
+        return jsonify(dump(inventory.retire(get_session(), visible(ident))))
 
     bp.add_url_rule(f"/{name}", f"list_{name}", list_view, methods=["GET"])
     bp.add_url_rule(f"/{name}", f"create_{name}", create_view, methods=["POST"])

@@ -5,13 +5,15 @@ Idempotent: records are looked up by their unique labels and created only if mis
 
 from __future__ import annotations
 
+import secrets
+
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from service.chem.substances import SubstanceCatalogue
-from service.schemas import ComponentIn, LabIn, LocationIn, MixtureIn, StockIn
-from service.store import inventory
-from service.store.models import Lab, Location, Mixture, Stock, Substance
+from service.schemas import ComponentIn, LabIn, LocationIn, MixtureIn, StockIn, UserIn
+from service.store import identity, inventory
+from service.store.models import Lab, Location, Mixture, Stock, Substance, User
 
 __all__ = ["SITE_NAME", "load_demo"]
 
@@ -53,13 +55,34 @@ MIXTURES = [
 ]
 
 
-def load_demo(session: Session, catalogue: SubstanceCatalogue) -> dict[str, int]:
-    """Create whatever of the demo scenario is missing; returns counts of what was added."""
-    added = {"labs": 0, "locations": 0, "stocks": 0, "mixtures": 0}
+# email, display name, role, member of the demo lab
+ACCOUNTS = [
+    ("researcher@example.org", "Demo researcher", "researcher", True),
+    ("safety@example.org", "Demo safety officer", "safety_officer", False),
+    ("manager@example.org", "Demo lab manager", "lab_manager", True),
+    ("admin@example.org", "Demo administrator", "admin", False),
+]
+
+
+def load_demo(session: Session, catalogue: SubstanceCatalogue) -> tuple[dict[str, int], dict[str, str]]:
+    """Create whatever of the demo scenario is missing.
+
+    Returns counts of what was added and the passwords of the accounts created now
+    (email -> password), to be shown once; accounts that exist keep their password.
+    """
+    added = {"labs": 0, "locations": 0, "stocks": 0, "mixtures": 0, "accounts": 0}
+    passwords: dict[str, str] = {}
     lab = session.scalar(select(Lab).where(Lab.code == LAB.code))
     if lab is None:
         lab = inventory.create_record(session, Lab, LAB)
         added["labs"] += 1
+    for email, name, role, member in ACCOUNTS:
+        if session.scalar(select(User.id).where(User.email == email)) is None:
+            password = secrets.token_urlsafe(12)
+            identity.create_user(session, UserIn(email=email, display_name=name, role=role, password=password,
+                                                 lab_ids=[lab.id] if member else []))
+            passwords[email] = password
+            added["accounts"] += 1
     places: dict[str, Location] = {}
     for name, (building, room, storage, kind) in LOCATIONS.items():
         place = session.scalar(select(Location).where(Location.building == building, Location.room == room, Location.storage == storage))
@@ -86,4 +109,4 @@ def load_demo(session: Session, catalogue: SubstanceCatalogue) -> dict[str, int]
             inventory.create_mixture(session, MixtureIn(label=label, name=name, lab_id=lab.id, location_id=places[place].id,
                                                         volume=volume, components=components))
             added["mixtures"] += 1
-    return added
+    return added, passwords

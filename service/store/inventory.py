@@ -28,6 +28,7 @@ from service.store.models import (
     Stock,
     StockElement,
     Substance,
+    User,
     utcnow,
 )
 
@@ -46,7 +47,7 @@ __all__ = [
 ]
 
 T = TypeVar("T")
-_ENTITY = {Lab: "lab", Location: "location", Substance: "substance", Stock: "stock", Mixture: "mixture"}
+_ENTITY = {Lab: "lab", Location: "location", Substance: "substance", Stock: "stock", Mixture: "mixture", User: "user"}
 _UNIQUE = {Lab: ("code",), Substance: ("key",), Stock: ("label",), Mixture: ("label",)}
 
 
@@ -125,13 +126,22 @@ def list_records(
     location_id: Optional[int] = None,
     substance_id: Optional[int] = None,
     element: Optional[str] = None,
+    lab_ids: Optional[set[int]] = None,
     limit: int = 500,
     offset: int = 0,
 ) -> list:
-    """Records of ``model`` with the filters that apply to it, in id order."""
+    """Records of ``model`` with the filters that apply to it, in id order.
+
+    ``lab_ids`` limits labs, locations, stocks and mixtures to those labs.
+    """
     query = select(model)
     if not include_retired:
         query = query.where(model.retired_at.is_(None))
+    if lab_ids is not None:  # a lab-scoped user: only records of their labs
+        column = model.id if model is Lab else getattr(model, "lab_id", None)
+        if column is not None:
+            clause = column.in_(sorted(lab_ids))
+            query = query.where(clause | Location.lab_id.is_(None) if model is Location else clause)
     for column, value in (("lab_id", lab_id), ("location_id", location_id), ("substance_id", substance_id)):
         if value is not None and hasattr(model, column):
             query = query.where(getattr(model, column) == value)

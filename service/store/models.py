@@ -31,6 +31,11 @@ __all__ = [
     "Mixture",
     "MixtureComponent",
     "MixtureElement",
+    "ROLES",
+    "User",
+    "Membership",
+    "ApiToken",
+    "LoginAttempt",
     "utcnow",
 ]
 
@@ -181,3 +186,51 @@ class MixtureElement(Base):
     mixture_id: Mapped[int] = mapped_column(ForeignKey("mixtures.id"), primary_key=True)
     element: Mapped[str] = mapped_column(String(3), primary_key=True, index=True)
     mass_ug: Mapped[int] = mapped_column(BigInteger)
+
+
+# --- identity -------------------------------------------------------------------
+
+ROLES = ("researcher", "safety_officer", "lab_manager", "auditor", "admin")
+
+
+class User(_Lifecycle, Base):
+    __tablename__ = "users"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    email: Mapped[str] = mapped_column(String(254), unique=True)
+    display_name: Mapped[str] = mapped_column(String(200))
+    role: Mapped[str] = mapped_column(String(20))  # one of ROLES
+    password_hash: Mapped[str] = mapped_column(String(300))
+    memberships: Mapped[list["Membership"]] = relationship(cascade="all, delete-orphan", lazy="selectin")
+
+    @property
+    def lab_ids(self) -> set[int]:
+        return {m.lab_id for m in self.memberships}
+
+
+class Membership(Base):
+    __tablename__ = "memberships"
+    user_id: Mapped[int] = mapped_column(ForeignKey("users.id"), primary_key=True)
+    lab_id: Mapped[int] = mapped_column(ForeignKey("labs.id"), primary_key=True)
+
+
+class ApiToken(Base):
+    """A personal API token; only its SHA-256 is kept."""
+
+    __tablename__ = "api_tokens"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    user_id: Mapped[int] = mapped_column(ForeignKey("users.id"), index=True)
+    name: Mapped[str] = mapped_column(String(100))
+    prefix: Mapped[str] = mapped_column(String(12))
+    token_hash: Mapped[str] = mapped_column(String(64), unique=True)
+    created_at: Mapped[dt.datetime] = mapped_column(default=utcnow)
+    last_used_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
+    revoked_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
+
+
+class LoginAttempt(Base):
+    __tablename__ = "login_attempts"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    email: Mapped[str] = mapped_column(String(254), index=True)
+    address: Mapped[str] = mapped_column(String(64), index=True)
+    at: Mapped[dt.datetime] = mapped_column(default=utcnow, index=True)
+    succeeded: Mapped[bool] = mapped_column(default=False)

@@ -4,6 +4,6 @@ from flask import Blueprint
 
 bp = Blueprint("web", __name__)
 
-from service.web import pages  # noqa: E402,F401
+from service.web import account, pages  # noqa: E402,F401
 
 __all__ = ["bp"]

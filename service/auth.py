@@ -1,0 +1,102 @@
+"""Who is asking, and may they: sign-in sessions, bearer tokens, the matrix, CSRF.
+
+Pages use a signed session cookie (HttpOnly, SameSite=Lax) and a CSRF token on every
+form; the API uses personal bearer tokens only, so a browser's cookie never authorises
+an API call. Every request is checked against ``service.permissions`` before its view.
+"""
+
+from __future__ import annotations
+
+import hmac
+import secrets
+from typing import Optional
+
+from flask import Flask, g, redirect, request, session, url_for
+
+from service.errors import CsrfFailed, Forbidden, Unauthenticated
+from service.permissions import LAB_SCOPED_ROLES, MATRIX, PUBLIC
+from service.store import identity
+from service.store.db import get_session
+from service.store.models import User
+
+__all__ = ["init_app", "current_user", "csrf_token", "lab_scope", "check_lab", "sign_in", "sign_out"]
+
+
+def current_user() -> Optional[User]:
+    return g.get("user")
+
+
+def lab_scope() -> Optional[set[int]]:
+    """The lab ids the current user is limited to, or None for site-wide roles."""
+    user = current_user()
+    return user.lab_ids if user is not None and user.role in LAB_SCOPED_ROLES else None
+
+
+def check_lab(lab_id: Optional[int]) -> None:
+    """403 unless the current user may act on records of ``lab_id``."""
+    scope = lab_scope()
+    if scope is not None and lab_id not in scope:
+        raise Forbidden("this record belongs to a lab you are not a member of", {"lab_id": lab_id})
+
+
+def csrf_token() -> str:
+    if "csrf" not in session:
+        session["csrf"] = secrets.token_urlsafe(32)
+    return session["csrf"]
+
+
+def sign_in(user: User) -> None:
+    session.clear()
+    session["user_id"] = user.id
+    session["csrf"] = secrets.token_urlsafe(32)
+
+
+def sign_out() -> None:
+    session.clear()
+
+
+def _identify() -> Optional[User]:
+    db = get_session()
+    if request.path.startswith("/api/"):
+        header = request.headers.get("Authorization", "")
+        scheme, _, secret = header.partition(" ")
+        if scheme.lower() != "bearer" or not secret:
+            return None
+        return identity.user_for_token(db, secret.strip())
+    user_id = session.get("user_id")
+    user = db.get(User, user_id) if isinstance(user_id, int) else None
+    return user if user is not None and user.retired_at is None else None
+
+
+def _authorize():
+    endpoint = request.endpoint
+    if endpoint is None:  # no such route: the 404/405 handler answers
+        return None
+    is_page = not request.path.startswith("/api/")
+    if is_page and request.method == "POST":
+        sent = request.form.get("csrf_token", "")
+        if not sent or not hmac.compare_digest(sent, session.get("csrf", "")):
+            raise CsrfFailed("the form is missing its security token or it has expired; reload and retry")
+    user = _identify()
+    if user is not None:
+        g.user = user
+        get_session().info["actor"] = {"user_id": user.id, "label": user.email}
+    if endpoint in PUBLIC:
+        return None
+    if user is None:
+        if is_page:
+            return redirect(url_for("web.login", next=request.full_path))
+        raise Unauthenticated("sign in or send a personal token: Authorization: Bearer <token>")
+    roles = MATRIX.get(endpoint)
+    if roles is None or user.role not in roles:
+        raise Forbidden(f"the role {user.role!r} may not do this", {"endpoint": endpoint})
+    return None
+
+
+def init_app(app: Flask) -> None:
+    app.config["SESSION_COOKIE_HTTPONLY"] = True
+    app.config["SESSION_COOKIE_SAMESITE"] = "Lax"
+    app.config["SESSION_COOKIE_SECURE"] = bool(app.config.get("SECURE_COOKIES"))
+    app.before_request(_authorize)
+    app.jinja_env.globals["csrf_token"] = csrf_token
+    app.jinja_env.globals["current_user"] = current_user

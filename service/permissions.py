@@ -1,0 +1,58 @@
+"""The role-permission matrix: which roles may call which route (by Flask endpoint name).
+
+One table for the whole service. A route that is neither public nor in the matrix is
+refused for everyone (fail closed), and tests/test_permissions.py walks every route ×
+role against this table, so a new route without a rule fails the test.
+"""
+
+from __future__ import annotations
+
+__all__ = ["ROLES", "PUBLIC", "MATRIX", "LAB_SCOPED_ROLES", "allowed"]
+
+ROLES = ("researcher", "safety_officer", "lab_manager", "auditor", "admin")
+EVERYONE = frozenset(ROLES)
+
+# Reachable without signing in.
+PUBLIC = frozenset({"static", "api.index", "api.openapi", "api.issue_token", "web.login", "web.login_submit"})
+
+# Roles that see and change only the records of their own labs.
+LAB_SCOPED_ROLES = frozenset({"researcher"})
+
+# Who may change each inventory resource (everyone may read; the auditor never writes).
+_INVENTORY_WRITERS = {
+    "labs": {"lab_manager", "admin"},
+    "locations": {"lab_manager", "safety_officer", "admin"},
+    "substances": {"lab_manager", "safety_officer", "admin"},
+    "stocks": {"researcher", "lab_manager", "admin"},
+    "mixtures": {"researcher", "lab_manager", "admin"},
+}
+
+MATRIX: dict[str, frozenset[str]] = {
+    # account and tokens
+    "api.me": EVERYONE,
+    "api.list_tokens": EVERYONE,
+    "api.revoke_token": EVERYONE,
+    "web.logout": EVERYONE,
+    # users: administrators only
+    "api.list_users": frozenset({"admin"}),
+    "api.create_users": frozenset({"admin"}),
+    "api.read_users": frozenset({"admin"}),
+    "api.update_users": frozenset({"admin"}),
+    "api.retire_users": frozenset({"admin"}),
+    # audit trail
+    "api.list_audit_events": frozenset({"auditor", "admin"}),
+    # pages
+    "web.overview": EVERYONE,
+    "web.stocks": EVERYONE,
+    "web.mixtures": EVERYONE,
+}
+for _name, _writers in _INVENTORY_WRITERS.items():
+    MATRIX[f"api.list_{_name}"] = EVERYONE
+    MATRIX[f"api.read_{_name}"] = EVERYONE
+    for _verb in ("create", "update", "retire"):
+        MATRIX[f"api.{_verb}_{_name}"] = frozenset(_writers)
+
+
+def allowed(endpoint: str, role: str) -> bool:
+    """Whether ``role`` may call ``endpoint`` (public endpoints are allowed for all)."""
+    return endpoint in PUBLIC or role in MATRIX.get(endpoint, frozenset())

@@ -1,0 +1,167 @@
+"""Users, lab memberships, personal API tokens and rate-limited sign-in."""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+import secrets
+from dataclasses import dataclass
+from typing import Optional
+
+from sqlalchemy import func, select
+from sqlalchemy.orm import Session
+from werkzeug.security import check_password_hash, generate_password_hash
+
+from service.errors import Conflict, InvalidInput, NotFound
+from service.schemas import UserIn, UserPatch
+from service.store.models import ApiToken, Lab, LoginAttempt, Membership, User, utcnow
+
+__all__ = [
+    "LoginLocked",
+    "LoginLimits",
+    "IssuedToken",
+    "create_user",
+    "update_user",
+    "authenticate",
+    "issue_token",
+    "revoke_token",
+    "user_for_token",
+]
+
+TOKEN_PREFIX = "dlt_"
+
+
+class LoginLocked(PermissionError):
+    """Too many failed sign-ins for this account or address; carries the wait in seconds."""
+
+    def __init__(self, retry_after_s: int, scope: str) -> None:
+        self.retry_after_s = retry_after_s
+        self.scope = scope
+        minutes = max(1, round(retry_after_s / 60))
+        super().__init__(f"too many failed sign-ins for this {scope}; try again in about {minutes} minute(s)")
+
+
+class BadCredentials(PermissionError):
+    def __init__(self) -> None:
+        super().__init__("unknown email or wrong password")
+
+
+@dataclass(frozen=True)
+class LoginLimits:
+    max_failures_per_account: int = 5
+    max_failures_per_address: int = 20
+    window_s: int = 900
+
+
+@dataclass(frozen=True)
+class IssuedToken:
+    token: ApiToken
+    secret: str  # shown once, never stored
+
+
+def _set_labs(session: Session, user: User, lab_ids: list[int]) -> None:
+    for lab_id in lab_ids:
+        lab = session.get(Lab, lab_id)
+        if lab is None or lab.retired_at is not None:
+            raise InvalidInput("lab_ids", f"no active lab with id {lab_id}", lab_id)
+    user.memberships = [Membership(lab_id=lab_id) for lab_id in sorted(set(lab_ids))]
+
+
+def create_user(session: Session, body: UserIn) -> User:
+    email = body.email.lower()
+    if session.scalar(select(User.id).where(func.lower(User.email) == email)) is not None:
+        raise Conflict(f"a user with email {email!r} exists", "email", email)
+    user = User(email=email, display_name=body.display_name, role=body.role,
+                password_hash=generate_password_hash(body.password.get_secret_value()))
+    _set_labs(session, user, body.lab_ids)
+    session.add(user)
+    session.flush()
+    return user
+
+
+def update_user(session: Session, user: User, patch: UserPatch) -> User:
+    values = patch.model_dump(exclude_unset=True)
+    if "password" in values:
+        values.pop("password")
+        user.password_hash = generate_password_hash(patch.password.get_secret_value())
+    if "lab_ids" in values:
+        _set_labs(session, user, values.pop("lab_ids") or [])
+    for key, value in values.items():
+        setattr(user, key, value)
+    session.flush()
+    return user
+
+
+def _locked_until(session: Session, column, value: str, limit: int, window_s: int, now: dt.datetime):
+    """When the lock on ``value`` lifts, or None if fewer than ``limit`` failures are in the window.
+
+    The lock lifts when the ``limit``-th most recent failure leaves the window.
+    """
+    query = (
+        select(LoginAttempt.at)
+        .where(column == value, LoginAttempt.succeeded.is_(False), LoginAttempt.at >= now - dt.timedelta(seconds=window_s))
+        .order_by(LoginAttempt.at.desc())
+        .offset(limit - 1)
+        .limit(1)
+    )
+    oldest_counted = session.scalar(query)
+    return None if oldest_counted is None else oldest_counted + dt.timedelta(seconds=window_s)
+
+
+def authenticate(session: Session, email: str, password: str, address: str, limits: LoginLimits) -> User:
+    """The active user with this email and password, recording the attempt.
+
+    Raises LoginLocked before checking the password when the account or the address has
+    too many recent failures, and BadCredentials for a wrong email or password.
+    """
+    email = (email or "").strip().lower()
+    now = utcnow()
+    for column, value, limit, scope in (
+        (LoginAttempt.email, email, limits.max_failures_per_account, "account"),
+        (LoginAttempt.address, address, limits.max_failures_per_address, "address"),
+    ):
+        until = _locked_until(session, column, value, limit, limits.window_s, now)
+        if until is not None:
+            raise LoginLocked(max(1, int((until - now).total_seconds()) + 1), scope)
+    user = session.scalar(select(User).where(User.email == email))
+    ok = user is not None and user.retired_at is None and check_password_hash(user.password_hash, password or "")
+    session.add(LoginAttempt(email=email, address=address, at=now, succeeded=ok))
+    session.flush()
+    if not ok:
+        raise BadCredentials()
+    return user
+
+
+def _digest(secret: str) -> str:
+    return hashlib.sha256(secret.encode()).hexdigest()
+
+
+def issue_token(session: Session, user: User, name: str) -> IssuedToken:
+    """A new personal token for ``user``; the secret is returned once and only its hash kept."""
+    secret = TOKEN_PREFIX + secrets.token_urlsafe(32)
+    token = ApiToken(user_id=user.id, name=name, prefix=secret[: len(TOKEN_PREFIX) + 6], token_hash=_digest(secret))
+    session.add(token)
+    session.flush()
+    return IssuedToken(token, secret)
+
+
+def revoke_token(session: Session, user: User, token_id: int) -> ApiToken:
+    token = session.get(ApiToken, token_id)
+    if token is None or token.user_id != user.id:
+        raise NotFound("token", token_id)
+    if token.revoked_at is not None:
+        raise Conflict(f"token {token_id} is already revoked")
+    token.revoked_at = utcnow()
+    session.flush()
+    return token
+
+
+def user_for_token(session: Session, secret: str) -> Optional[User]:
+    """The active user owning an unrevoked token, or None."""
+    if not secret.startswith(TOKEN_PREFIX):
+        return None
+    token = session.scalar(select(ApiToken).where(ApiToken.token_hash == _digest(secret)))
+    if token is None or token.revoked_at is not None:
+        return None
+    user = session.get(User, token.user_id)
+    return user if user is not None and user.retired_at is None else None
