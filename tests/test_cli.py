@@ -52,7 +52,8 @@ def test_html_errors_for_pages(sqlite_url, monkeypatch):
     missing = client.get("/no-such-page")
     assert missing.status_code == 404 and "text/html" in missing.content_type
     bad = client.get("/stocks?element=Qq")
-    assert bad.status_code == 422 and "does not validate" in bad.get_data(as_text=True)
+    page = bad.get_data(as_text=True)
+    assert bad.status_code == 422 and "query parameters do not validate" in page and "not an element symbol" in page
 
 
 def test_import_of_a_missing_file_is_a_clear_error(tmp_path):

@@ -44,12 +44,15 @@ def error_response(status: int, code: str, message: str, details: object = None)
         response = jsonify({"error": {"code": code, "message": message, "details": details}})
         response.status_code = status
         return response
-    return render_template("pages/error.html", status=status, code=code, message=message, details=details), status
+    rows = details if isinstance(details, list) and all(isinstance(d, dict) for d in details) else None
+    return render_template("pages/error.html", status=status, code=code, message=message, details=details,
+                           rows=rows), status
 
 
 def _validation_details(exc: ValidationError) -> list[dict]:
     return [
-        {"field": ".".join(str(p) for p in err["loc"]) or None, "message": err["msg"], "type": err["type"]}
+        {"field": ".".join(str(p) for p in err["loc"]) or None, "message": err["msg"].removeprefix("Value error, "),
+         "type": err["type"]}
         for err in exc.errors()
     ]
 
@@ -73,7 +76,8 @@ def init_app(app: Flask) -> None:
 
     @app.errorhandler(ValidationError)
     def _validation(exc: ValidationError):
-        return error_response(422, "invalid_input", "the request body does not validate", _validation_details(exc))
+        message = "the query parameters do not validate" if request.method == "GET" else "the request body does not validate"
+        return error_response(422, "invalid_input", message, _validation_details(exc))
 
     @app.errorhandler(NotFound)
     def _not_found(exc: NotFound):

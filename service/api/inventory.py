@@ -36,7 +36,10 @@ class ListQuery(BaseModel):
     @classmethod
     def _element(cls, value: Optional[str]) -> Optional[str]:
         if value is not None:
-            atomic_weight(value)  # FormulaError (a ValueError) for an unknown symbol
+            try:
+                atomic_weight(value)
+            except ValueError:
+                raise ValueError(f"{value!r} is not an element symbol (e.g. Cd, Se, Pb)") from None
         return value
 
 

@@ -305,8 +305,8 @@ def sync_catalogue(session: Session, catalogue: SubstanceCatalogue) -> tuple[int
 
 
 
-def element_totals(session: Session) -> dict[str, int]:
-    """Element mass (µg) on hand in active stocks and mixtures, summed in SQL."""
+def element_totals(session: Session, *, lab_ids: Optional[set[int]] = None) -> dict[str, int]:
+    """Element mass (µg) on hand in active stocks and mixtures, summed in SQL (optionally for some labs)."""
     totals: dict[str, int] = {}
     for table, fk, owner in (
         (StockElement, StockElement.stock_id, Stock),
@@ -318,6 +318,8 @@ def element_totals(session: Session) -> dict[str, int]:
             .where(owner.retired_at.is_(None))
             .group_by(table.element)
         )
+        if lab_ids is not None:
+            query = query.where(owner.lab_id.in_(sorted(lab_ids)))
         for element, mass_ug in session.execute(query):
             totals[element] = totals.get(element, 0) + int(mass_ug or 0)
     return totals

@@ -4,6 +4,14 @@ from flask import Blueprint
 
 bp = Blueprint("web", __name__)
 
+
+@bp.app_context_processor
+def _site():
+    # Every page, error pages included, names the site in its header.
+    from flask import current_app
+
+    return {"site": current_app.config["SITE_NAME"]}
+
 from service.web import account, pages  # noqa: E402,F401
 
 __all__ = ["bp"]

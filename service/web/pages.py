@@ -5,6 +5,7 @@ from __future__ import annotations
 from flask import current_app, render_template, request
 
 from service.api.inventory import ListQuery
+from service.auth import lab_scope
 from service.store import inventory
 from service.store.db import get_session
 from service.store.models import Lab, Location, Mixture, Stock
@@ -17,13 +18,14 @@ TRACKED = ("Cd", "Se", "Te", "Pb", "Zn", "S", "In", "Cs")
 @bp.get("/")
 def overview():
     session = get_session()
-    stocks = inventory.list_records(session, Stock, limit=1000)
-    mixtures = inventory.list_records(session, Mixture, limit=1000)
-    totals = inventory.element_totals(session)
+    scope = lab_scope()
+    stocks = inventory.list_records(session, Stock, limit=1000, lab_ids=scope)
+    mixtures = inventory.list_records(session, Mixture, limit=1000, lab_ids=scope)
+    totals = inventory.element_totals(session, lab_ids=scope)
     return render_template(
         "pages/overview.html",
         site=current_app.config["SITE_NAME"],
-        labs=inventory.list_records(session, Lab),
+        labs=inventory.list_records(session, Lab, lab_ids=scope),
         n_stocks=len(stocks),
         n_mixtures=len(mixtures),
         totals=[(symbol, totals.get(symbol, 0)) for symbol in TRACKED if totals.get(symbol)],
@@ -34,14 +36,14 @@ def overview():
 def stocks():
     query = ListQuery.model_validate(request.args.to_dict())
     session = get_session()
-    records = inventory.list_records(session, Stock, **query.model_dump())
+    records = inventory.list_records(session, Stock, **query.model_dump(), lab_ids=lab_scope())
     locations = {loc.id: loc for loc in inventory.list_records(session, Location, include_retired=True, limit=1000)}
     return render_template(
         "pages/stocks.html",
         site=current_app.config["SITE_NAME"],
         stocks=records,
         locations=locations,
-        tracked=TRACKED,
+        tracked=_present(records),
         element=query.element,
     )
 
@@ -49,12 +51,19 @@ def stocks():
 @bp.get("/mixtures")
 def mixtures():
     session = get_session()
+    records = inventory.list_records(session, Mixture, limit=1000, lab_ids=lab_scope())
     return render_template(
         "pages/mixtures.html",
         site=current_app.config["SITE_NAME"],
-        mixtures=inventory.list_records(session, Mixture, limit=1000),
-        tracked=TRACKED,
+        mixtures=records,
+        tracked=_present(records),
     )
+
+
+def _present(records) -> list[str]:
+    """The tracked elements that occur in ``records`` (columns worth showing)."""
+    held = {e.element for r in records for e in r.elements if e.mass_ug}
+    return [symbol for symbol in TRACKED if symbol in held]
 
 
 @bp.app_template_filter("element_map")
