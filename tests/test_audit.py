@@ -14,7 +14,7 @@ from alembic.autogenerate import compare_metadata
 from alembic.config import Config
 from alembic.migration import MigrationContext
 from sqlalchemy import event, inspect, select, text
-from sqlalchemy.orm import Session
+from sqlalchemy.orm import Session, sessionmaker
 
 from service.schemas import LabIn, LabPatch
 from service.store import audit, inventory
@@ -335,3 +335,18 @@ def test_migration_downgrades_and_upgrades(sqlite_url):
             assert {"audit_events", "audit_head"} <= set(inspect(connection).get_table_names())
     finally:
         engine.dispose()
+
+
+
+def test_every_new_factory_records(sessions):
+    # Regression: event.contains() keys on id(), and a fresh factory may reuse the id of a
+    # collected one; installing must not be skipped for it, or its writes go unrecorded.
+    engine = sessions.kw["bind"]
+    for i in range(30):
+        factory = sessionmaker(bind=engine, expire_on_commit=False)
+        audit.install(factory)
+        with session_scope(factory) as session:
+            inventory.create_record(session, Lab, LabIn(code=f"F-{i}", name="factory check"))
+        del factory
+    assert len(_lab_events(sessions)) == 30
+    assert _verify(sessions).ok

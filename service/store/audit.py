@@ -43,6 +43,7 @@ SECRETS = {"password_hash": "password_changed", "token_hash": "token_changed"}
 BOOKKEEPING = frozenset({"updated_at", "last_used_at"})
 SYSTEM_ACTOR = {"user_id": None, "label": "system"}
 _PENDING = "dotledger.audit.pending"
+_INSTALLED = "_dotledger_audit_installed"
 
 
 class AuditEvent(Base):
@@ -273,9 +274,13 @@ def install(target) -> None:
     Installing again is harmless: a listener already present is not added twice, and a flush
     seen by two registrations (a class and a factory of it) is written once.
     """
+    # The mark lives on the target itself: event.contains() looks listeners up by id(), and
+    # a new factory can reuse the id of a collected one, which would skip the install.
+    if target.__dict__.get(_INSTALLED):
+        return
     for name, listener in (("before_flush", _before_flush), ("after_flush", _after_flush)):
-        if not event.contains(target, name, listener):
-            event.listen(target, name, listener)
+        event.listen(target, name, listener)
+    setattr(target, _INSTALLED, True)
 
 
 # --- reading --------------------------------------------------------------------
