@@ -30,7 +30,8 @@ def load_config(instance_path: str, test_config: Optional[Mapping[str, Any]] = N
     config: dict[str, Any] = {}
     for name, (default, parse) in _SETTINGS.items():
         raw = os.environ.get(f"DOTLEDGER_{name}")
-        config[name] = parse(raw if raw not in (None, "") else default)
+        value = raw if raw not in (None, "") else default
+        config[name] = None if value is None else parse(value)
     if config["DATABASE_URL"] is None:
         config["DATABASE_URL"] = f"sqlite:///{Path(instance_path) / 'dotledger.sqlite'}"
     config.update(test_config or {})
