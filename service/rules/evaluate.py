@@ -1,0 +1,123 @@
+"""Evaluating layered rules against a subject: which rules fire, and the findings they give.
+
+Each measure is computed once per call; a measure that does not apply (``None``) skips
+its rules. Values and thresholds are compared as exact decimals in the measure's unit.
+Every finding carries its pack's disclaimer: findings are suggestions, and local
+regulations and the site safety officer decide.
+"""
+
+from __future__ import annotations
+
+import operator
+from dataclasses import dataclass
+from decimal import ROUND_HALF_EVEN, Decimal
+from typing import Iterable, Optional
+
+from service.rules.loader import ActiveRule, LayeredRules, convert_exact, unit_symbol
+from service.rules.measures import MeasureResult
+from service.rules.model import LEVELS, SuggestedCode
+
+__all__ = ["Finding", "evaluate", "highest_level", "SEVERITY"]
+
+SEVERITY = {level: rank for rank, level in enumerate(LEVELS)}  # note 0 … block 3
+_COMPARE = {
+    ">": operator.gt,
+    ">=": operator.ge,
+    "<": operator.lt,
+    "<=": operator.le,
+    "==": operator.eq,
+    "!=": operator.ne,
+}
+_SHOWN_PLACES = Decimal("0.000001")  # values in messages: at most six decimals
+
+
+@dataclass(frozen=True)
+class Finding:
+    """A rule that fired: what was measured, against which threshold, and what to do."""
+
+    rule_id: str
+    pack: str
+    pack_version: str
+    level: str
+    measure: str
+    value: float  # in ``unit``; int for counts and µg
+    unit: str  # the measure's pint unit, "" for dimensionless
+    comparator: str
+    threshold_text: str
+    threshold_value: Decimal  # exact, in ``unit``
+    message: str
+    source: str
+    suggested_code: Optional[SuggestedCode]
+    detail: str
+    disclaimer: str
+
+
+def _exact(value: float | int | Decimal) -> Decimal:
+    """A measured value as an exact Decimal (floats via their shortest repr)."""
+    if isinstance(value, Decimal):
+        return value
+    return Decimal(value) if isinstance(value, int) else Decimal(repr(float(value)))
+
+
+def _shown(value: Decimal, active: ActiveRule) -> str:
+    """The value for a message, in the unit the threshold was written in ("512.3 mg")."""
+    converted = convert_exact(value, active.definition.unit, active.threshold_unit)
+    if converted != converted.to_integral_value():
+        converted = converted.quantize(_SHOWN_PLACES, rounding=ROUND_HALF_EVEN)
+    number = f"{converted.normalize():f}"
+    symbol = unit_symbol(active.threshold_unit)
+    return f"{number} {symbol}" if symbol else number
+
+
+def _finding(active: ActiveRule, result: MeasureResult, value: Decimal) -> Finding:
+    rule = active.rule
+    message = rule.message.format(value=_shown(value, active), threshold=rule.threshold.strip(), detail=result.detail)
+    return Finding(
+        rule_id=rule.id,
+        pack=active.pack,
+        pack_version=active.pack_version,
+        level=rule.level,
+        measure=rule.measure,
+        value=result.value,
+        unit=result.unit,
+        comparator=rule.comparator,
+        threshold_text=rule.threshold,
+        threshold_value=active.threshold_value,
+        message=message,
+        source=rule.source,
+        suggested_code=rule.suggested_code,
+        detail=result.detail,
+        disclaimer=active.disclaimer,
+    )
+
+
+def evaluate(rules: LayeredRules, scope: str, subject: object) -> list[Finding]:
+    """Evaluate the active rules of ``scope`` against ``subject``.
+
+    :param rules: the layered rule packs (:func:`service.rules.loader.load_packs`)
+    :param scope: procedure, run, waste_container or inventory
+    :param subject: the facts the scope's measures read, e.g. a ProcedureSubject
+    :returns: the findings, most severe level first, then by rule id
+    :raises ValueError: an unknown scope, or a measure answering in the wrong unit
+    """
+    results: dict[str, Optional[MeasureResult]] = {}
+    findings = []
+    for active in rules.rules_for(scope):
+        name = active.rule.measure
+        if name not in results:
+            results[name] = active.definition.compute(subject, active.argument)
+        result = results[name]
+        if result is None:
+            continue
+        if result.unit != active.definition.unit:
+            raise ValueError(f"measure {name!r} answered in {result.unit!r}, not {active.definition.unit!r}")
+        value = _exact(result.value)
+        if _COMPARE[active.rule.comparator](value, active.threshold_value):
+            findings.append(_finding(active, result, value))
+    return sorted(findings, key=lambda f: (-SEVERITY[f.level], f.rule_id))
+
+
+def highest_level(findings: Iterable[Finding]) -> Optional[str]:
+    """The most severe level among ``findings`` (block > review > caution > note), or None."""
+    levels = [f.level for f in findings]
+    return max(levels, key=SEVERITY.__getitem__) if levels else None

@@ -1,0 +1,232 @@
+"""The measure registry: the fixed vocabulary of numbers that rules may compare.
+
+A measure turns a subject (see :mod:`service.rules.subjects`) into a
+:class:`MeasureResult` in the measure's unit, or ``None`` when it does not apply (the rule
+is then skipped). A parameterised measure is named ``name:<argument>``
+(``element_mass:Cd``). Adding a measure is one decorator line above its function:
+``@measure("volume_l", scope="waste_container", unit="L")``; the scope check and the
+vocabulary follow from it. The first docstring line of each function is its description.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+from decimal import Decimal
+from typing import Callable, Iterable, Optional
+
+from service.chem.formula import FormulaError, atomic_weight
+from service.rules.subjects import INERT_ATMOSPHERES, ProcedureSubject, ReagentFacts, StepFacts
+
+__all__ = ["MeasureResult", "Measure", "MeasureNameError", "MEASURES", "measure", "resolve_measure", "vocabulary"]
+
+
+@dataclass(frozen=True)
+class MeasureResult:
+    """A computed value (int for counts and µg, else float) in ``unit``, with a readable detail."""
+
+    value: float
+    unit: str
+    detail: str = ""
+
+
+@dataclass(frozen=True)
+class Measure:
+    """A named measure: its scope, pint unit ("" for dimensionless) and how to compute it."""
+
+    name: str
+    scope: str
+    unit: str
+    description: str
+    compute: Callable[[object, Optional[str]], Optional[MeasureResult]]
+    parameter: Optional[str] = None  # kind of the ":<argument>", e.g. "element"
+
+
+class MeasureNameError(ValueError):
+    """A measure name that is unknown or has a missing, unexpected or bad argument."""
+
+
+MEASURES: dict[str, Measure] = {}
+_PARAMETER_LABELS = {"element": "<El>"}
+_SYMBOL = re.compile(r"^[A-Z][a-z]{0,2}$")
+LIQUID_STATES = frozenset({"liquid", "solution"})
+TOXIC_METALS = ("Cd", "Pb", "Se", "Te", "Hg", "Tl", "As")
+
+
+def measure(name: str, *, scope: str, unit: str, parameter: Optional[str] = None):
+    """Register the decorated function as measure ``name`` (description: its docstring's first line)."""
+
+    def register(compute):
+        description = (compute.__doc__ or "").strip().splitlines()[0]
+        MEASURES[name] = Measure(name, scope, unit, description, compute, parameter)
+        return compute
+
+    return register
+
+
+def _check_element(symbol: str) -> str:
+    """Return ``symbol`` if it is a chemical element symbol; raise MeasureNameError otherwise."""
+    try:
+        if _SYMBOL.match(symbol) and atomic_weight(symbol) > 0:
+            return symbol
+    except FormulaError:
+        pass
+    raise MeasureNameError(f"{symbol!r} is not an element symbol (write it as Cd, Se, Pb, …)")
+
+
+_PARAMETER_CHECKS = {"element": _check_element}
+
+
+def resolve_measure(name: str) -> tuple[Measure, Optional[str]]:
+    """Look up ``name`` (``base`` or ``base:arg``) in the registry.
+
+    :returns: the measure and its checked argument (None if it takes none)
+    :raises MeasureNameError: unknown name, missing/unexpected argument, bad element symbol
+    """
+    base, sep, arg = name.partition(":")
+    found = MEASURES.get(base)
+    if found is None:
+        known = ", ".join(sorted(entry["name"] for entry in vocabulary()))
+        raise MeasureNameError(f"unknown measure {name!r}; known measures: {known}")
+    if found.parameter is None:
+        if sep:
+            raise MeasureNameError(f"measure {base!r} takes no ':<argument>'")
+        return found, None
+    if not arg:
+        raise MeasureNameError(f"measure {base!r} needs an argument: {base}:{_PARAMETER_LABELS[found.parameter]}")
+    return found, _PARAMETER_CHECKS[found.parameter](arg)
+
+
+def vocabulary() -> list[dict]:
+    """The measure table for documentation: name, scope, unit, description, in registry order."""
+    rows = []
+    for entry in MEASURES.values():
+        label = f"{entry.name}:{_PARAMETER_LABELS[entry.parameter]}" if entry.parameter else entry.name
+        rows.append({"name": label, "scope": entry.scope, "unit": entry.unit, "description": entry.description})
+    return rows
+
+
+# ---------------------------------------------------------------- helpers ----
+
+
+def _dec(number: float) -> Decimal:
+    """A float as the Decimal of its shortest repr (300.5 -> Decimal('300.5'))."""
+    return Decimal(repr(float(number)))
+
+
+def _plain(number: Decimal) -> float | int:
+    """An int when ``number`` is integral, else a float."""
+    return int(number) if number == number.to_integral_value() else float(number)
+
+
+def _text(number: Decimal) -> str:
+    """Decimal without exponent or trailing zeros: Decimal('151.0') -> '151'."""
+    return f"{number.normalize():f}"
+
+
+def _step_label(step: StepFacts) -> str:
+    return f"step {step.position} ({step.operation})"
+
+
+def _names(reagents: Iterable[ReagentFacts]) -> str:
+    return ", ".join(r.name for r in reagents)
+
+
+def _count(reagents: list[ReagentFacts]) -> MeasureResult:
+    return MeasureResult(len(reagents), "", _names(reagents))
+
+
+# ------------------------------------------------------ procedure measures ----
+
+
+@measure("element_mass", scope="procedure", unit="ug", parameter="element")
+def element_mass(subject: ProcedureSubject, element: Optional[str]) -> MeasureResult:
+    """Total mass of the element over all reagent draws of one batch, in µg; detail: top contributors."""
+    parts = [(r.element_mass_ug.get(element, 0), r.name) for r in subject.reagents]
+    parts = sorted((p for p in parts if p[0] > 0), key=lambda p: (-p[0], p[1]))
+    shown = [f"{name} {_text(Decimal(mass_ug) / 1000)} mg" for mass_ug, name in parts[:3]]
+    if len(parts) > 3:
+        shown.append(f"{len(parts) - 3} more")
+    return MeasureResult(sum(p[0] for p in parts), "ug", ", ".join(shown))
+
+
+@measure("max_temperature_minus_flash_point", scope="procedure", unit="delta_degC")
+def max_temperature_minus_flash_point(subject: ProcedureSubject, _arg: None) -> Optional[MeasureResult]:
+    """Highest step temperature minus the lowest known flash point of a liquid or solution.
+
+    Not applicable when no step has a temperature or no liquid has a known flash point.
+    """
+    hot = [s for s in subject.steps if s.temperature_c is not None]
+    liquids = [r for r in subject.reagents if r.state in LIQUID_STATES and r.flash_point_c is not None]
+    if not hot or not liquids:
+        return None
+    step = max(hot, key=lambda s: s.temperature_c)
+    liquid = min(liquids, key=lambda r: r.flash_point_c)
+    step_c, flash_c = _dec(step.temperature_c), _dec(liquid.flash_point_c)
+    detail = f"{_step_label(step)} at {_text(step_c)} °C; {liquid.name} flash point {_text(flash_c)} °C"
+    return MeasureResult(_plain(step_c - flash_c), "delta_degC", detail)
+
+
+@measure("flammable_liquids_with_unknown_flash_point", scope="procedure", unit="")
+def flammable_liquids_with_unknown_flash_point(subject: ProcedureSubject, _arg: None) -> MeasureResult:
+    """Count of flammable liquids or solutions whose flash point is not known (never taken as safe)."""
+    return _count([r for r in subject.reagents if r.flammable and r.state in LIQUID_STATES and r.flash_point_c is None])
+
+
+@measure("air_sensitive_without_inert_step", scope="procedure", unit="")
+def air_sensitive_without_inert_step(subject: ProcedureSubject, _arg: None) -> MeasureResult:
+    """Count of air-sensitive or pyrophoric reagents when no step runs under an inert atmosphere (else 0)."""
+    inert = any((s.atmosphere or "").strip().lower() in INERT_ATMOSPHERES for s in subject.steps)
+    sensitive = [r for r in subject.reagents if r.flags & {"air_sensitive", "pyrophoric"}]
+    return _count([] if inert else sensitive)
+
+
+@measure("carcinogen_1a_1b_count", scope="procedure", unit="")
+def carcinogen_1a_1b_count(subject: ProcedureSubject, _arg: None) -> MeasureResult:
+    """Count of reagents classified as carcinogens of CLP category 1A or 1B; detail names them."""
+    return _count([r for r in subject.reagents if (r.carcinogen_category or "").strip().upper() in {"1A", "1B"}])
+
+
+@measure("chalcogen_with_acid", scope="procedure", unit="")
+def chalcogen_with_acid(subject: ProcedureSubject, _arg: None) -> MeasureResult:
+    """1 if a reagent contains Se or Te and a reagent is an acid (H2Se / H2Te risk), else 0."""
+    chalcogens = [r for r in subject.reagents if any(r.element_mass_ug.get(el, 0) > 0 for el in ("Se", "Te"))]
+    acids = [r for r in subject.reagents if "acid" in r.flags]
+    if chalcogens and acids:
+        return MeasureResult(1, "", f"{_names(chalcogens)} with acid {_names(acids)}")
+    return MeasureResult(0, "", "")
+
+
+@measure("toxic_metal_powders", scope="procedure", unit="")
+def toxic_metal_powders(subject: ProcedureSubject, _arg: None) -> MeasureResult:
+    """Count of acutely toxic solids containing Cd, Pb, Se, Te, Hg, Tl or As; detail names them."""
+    return _count(
+        [
+            r
+            for r in subject.reagents
+            if r.state == "solid"
+            and "acutely_toxic" in r.flags
+            and any(r.element_mass_ug.get(el, 0) > 0 for el in TOXIC_METALS)
+        ]
+    )
+
+
+@measure("scale_factor_over_last_approved", scope="procedure", unit="")
+def scale_factor_over_last_approved(subject: ProcedureSubject, _arg: None) -> Optional[MeasureResult]:
+    """Scale of this batch divided by the last approved scale; not applicable if never approved."""
+    if subject.last_approved_scale is None or subject.last_approved_scale <= 0:
+        return None
+    factor = _dec(subject.scale) / _dec(subject.last_approved_scale)
+    detail = f"scale {_text(_dec(subject.scale))}, last approved {_text(_dec(subject.last_approved_scale))}"
+    return MeasureResult(_plain(factor), "", detail)
+
+
+@measure("max_injection_temperature", scope="procedure", unit="degC")
+def max_injection_temperature(subject: ProcedureSubject, _arg: None) -> Optional[MeasureResult]:
+    """Highest temperature of an inject step, in °C; not applicable without an inject step at a known temperature."""
+    injections = [s for s in subject.steps if s.operation.strip().lower() == "inject" and s.temperature_c is not None]
+    if not injections:
+        return None
+    step = max(injections, key=lambda s: s.temperature_c)
+    step_c = _dec(step.temperature_c)
+    return MeasureResult(_plain(step_c), "degC", f"{_step_label(step)} at {_text(step_c)} °C")
