@@ -25,13 +25,14 @@ def create_app(test_config: Optional[Mapping[str, Any]] = None) -> Flask:
 
     from service import auth
     from service.api import bp as api_bp
-    from service.api import errors
+    from service.api import errors, procedures
     from service.store import db
     from service.web import bp as web_bp
 
     db.init_app(app)
     errors.init_app(app)
     auth.init_app(app)
+    procedures.init_app(app)
     app.register_blueprint(api_bp)
     app.register_blueprint(web_bp)
     return app

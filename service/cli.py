@@ -67,12 +67,13 @@ def init() -> None:
 @main.command()
 def demo() -> None:
     """Load the invented demonstration scenario (safe to run again)."""
-    from service.store.demo import SITE_NAME, load_demo
+    from service.store.demo import SITE_NAME, load_demo, load_demo_procedures
 
     app = _app()
     _init(app)
     with _command_session(app, "demo") as session:
         added, passwords = load_demo(session, _catalogue(app))
+        added["procedures"] = load_demo_procedures(session, app.extensions["dotledger.rules"])
     click.echo(f"demo scenario {SITE_NAME!r}: " + ", ".join(f"{n} {k} added" for k, n in added.items()))
     if passwords:
         click.echo("demo accounts (passwords are shown only now; note them):")
@@ -186,3 +187,34 @@ def audit_verify() -> None:
     click.echo(f"audit chain BROKEN at event {report.first_broken_id}: {report.reason} "
                f"({report.events_checked} event(s) before it verified)", err=True)
     sys.exit(1)
+
+
+@main.command()
+@click.argument("procedure_id", type=int)
+@click.option("--scale", "scales", default="2,5,10", show_default=True, help="Comma-separated scale factors.")
+def preview(procedure_id: int, scales: str) -> None:
+    """Evaluate a procedure at other scales and list the thresholds each would cross."""
+    from pydantic import ValidationError
+
+    from service.api.procedures import PreviewQuery
+    from service.store import procedures
+    from service.store.db import session_scope
+    from service.store.models import Procedure
+
+    try:
+        factors = PreviewQuery.model_validate({"scales": scales}).scales
+    except ValidationError as exc:
+        raise click.BadParameter(exc.errors()[0]["msg"].removeprefix("Value error, "), param_hint="--scale")
+    app = _app()
+    with session_scope(_sessions(app)) as session:
+        proc = session.get(Procedure, procedure_id)
+        if proc is None:
+            raise click.ClickException(f"no procedure with id {procedure_id}")
+        rows = procedures.preview(session, proc, app.extensions["dotledger.rules"], factors)
+        click.echo(f"procedure {proc.id} rev {proc.revision} '{proc.title}' ({proc.state}, scale {proc.scale:g})")
+        for scale, level, masses, findings in rows:
+            metals = ", ".join(f"{s} {ug / 1000:,.1f} mg" for s, ug in masses.items() if s in ("Cd", "Se", "Te", "Pb", "Zn"))
+            click.echo(f"\n× {scale:g}: highest finding {level or 'none'}; per batch {metals or 'no tracked metals'}")
+            for f in findings:
+                click.echo(f"  [{f.level}] {f.rule_id} ({f.pack}@{f.pack_version}): {f.message}")
+    click.echo("\nSuggestions only: approval rests with the site safety officer and local regulations.")

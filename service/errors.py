@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from typing import Any, Optional
 
-__all__ = ["NotFound", "Conflict", "InvalidInput", "Unauthenticated", "Forbidden", "CsrfFailed"]
+__all__ = ["NotFound", "Conflict", "InvalidInput", "Unauthenticated", "Forbidden", "CsrfFailed", "Blocked"]
 
 
 class NotFound(LookupError):
@@ -52,3 +52,11 @@ class Forbidden(PermissionError):
 
 class CsrfFailed(PermissionError):
     """A form arrived without its security token, or with a stale one."""
+
+
+class Blocked(Conflict):
+    """A step refused because rule findings at level ``block`` stand in its way; carries them."""
+
+    def __init__(self, message: str, findings: list) -> None:
+        super().__init__(message)
+        self.findings = findings

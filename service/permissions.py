@@ -41,6 +41,20 @@ MATRIX: dict[str, frozenset[str]] = {
     "api.retire_users": frozenset({"admin"}),
     # audit trail
     "api.list_audit_events": frozenset({"auditor", "admin"}),
+    # procedures: researchers register and submit; safety officers decide
+    "api.list_procedures": EVERYONE,
+    "api.read_procedures": EVERYONE,
+    "api.list_procedure_revisions": EVERYONE,
+    "api.list_procedure_decisions": EVERYONE,
+    "api.preview_procedure": EVERYONE,
+    "api.create_procedures": frozenset({"researcher", "lab_manager", "admin"}),
+    "api.update_procedures": frozenset({"researcher", "lab_manager", "admin"}),
+    "api.submit_procedure": frozenset({"researcher", "lab_manager", "admin"}),
+    "api.approve_procedure": frozenset({"safety_officer"}),
+    "api.request_changes_procedure": frozenset({"safety_officer"}),
+    "api.decline_procedure": frozenset({"safety_officer"}),
+    "api.retire_procedure": frozenset({"safety_officer", "lab_manager", "admin"}),
+    "api.review_queue": frozenset({"safety_officer", "auditor", "admin"}),
     # pages
     "web.overview": EVERYONE,
     "web.stocks": EVERYONE,

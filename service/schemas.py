@@ -26,6 +26,12 @@ __all__ = [
     "UserPatch",
     "TokenRequest",
     "AuditQuery",
+    "StepIn",
+    "DrawIn",
+    "WastePlanIn",
+    "ProcedureIn",
+    "ProcedurePatch",
+    "DecisionIn",
 ]
 
 LocationKind = Literal["storage", "satellite_accumulation_area"]
@@ -161,3 +167,57 @@ class AuditQuery(_Body):
     until: Optional[dt.datetime] = None
     limit: int = Field(default=100, ge=1, le=1000)
     offset: int = Field(default=0, ge=0)
+
+
+Operation = Literal["charge", "degas", "heat", "inject", "hold", "grow_shell", "cool", "ligand_exchange",
+                    "precipitate", "centrifuge", "wash", "dry", "mix", "transfer"]
+Atmosphere = Literal["air", "argon", "nitrogen", "glovebox", "vacuum"]
+
+
+class StepIn(_Body):
+    operation: Operation
+    temperature_c: Optional[float] = Field(default=None, ge=-196, le=1200)
+    atmosphere: Optional[Atmosphere] = None
+    duration_min: Optional[float] = Field(default=None, ge=0)
+    note: Optional[str] = Field(default=None, max_length=2000)
+
+
+class DrawIn(_Body):
+    stock_id: Optional[int] = None
+    mixture_id: Optional[int] = None
+    amount: str = Field(description='amount drawn at scale 1, e.g. "25.7 mg" or "4 mL"')
+
+    @model_validator(mode="after")
+    def _one_source(self) -> "DrawIn":
+        if (self.stock_id is None) == (self.mixture_id is None):
+            raise ValueError("give exactly one of stock_id or mixture_id")
+        return self
+
+
+class WastePlanIn(_Body):
+    stream: str = Field(min_length=1, max_length=60, description="e.g. non-halogenated solvent with heavy metals")
+    contents: str = Field(min_length=1, max_length=2000)
+    expected_amount: Optional[str] = Field(default=None, max_length=60)
+
+
+class ProcedureIn(_Body):
+    lab_id: int
+    title: str = Field(min_length=3, max_length=300)
+    summary: Optional[str] = Field(default=None, max_length=5000)
+    scale: float = Field(default=1.0, gt=0, le=1000)
+    steps: list[StepIn] = Field(min_length=1, max_length=200)
+    draws: list[DrawIn] = Field(min_length=1, max_length=200)
+    waste_plan: list[WastePlanIn] = Field(default_factory=list, max_length=50)
+
+
+class ProcedurePatch(_Body):
+    title: Optional[str] = Field(default=None, min_length=3, max_length=300)
+    summary: Optional[str] = Field(default=None, max_length=5000)
+    scale: Optional[float] = Field(default=None, gt=0, le=1000)
+    steps: Optional[list[StepIn]] = Field(default=None, min_length=1, max_length=200)
+    draws: Optional[list[DrawIn]] = Field(default=None, min_length=1, max_length=200)
+    waste_plan: Optional[list[WastePlanIn]] = Field(default=None, max_length=50)
+
+
+class DecisionIn(_Body):
+    comment: Optional[str] = Field(default=None, max_length=5000)

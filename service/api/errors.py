@@ -7,6 +7,7 @@ answered with a generic message.
 
 from __future__ import annotations
 
+import dataclasses
 import logging
 
 from flask import Flask, jsonify, render_template, request
@@ -17,7 +18,7 @@ from service.chem.cas import CasNumberError
 from service.chem.formula import FormulaError
 from service.chem.units import QuantityError
 from service.datafiles import DataFileError
-from service.errors import Conflict, CsrfFailed, Forbidden, InvalidInput, NotFound, Unauthenticated
+from service.errors import Blocked, Conflict, CsrfFailed, Forbidden, InvalidInput, NotFound, Unauthenticated
 
 __all__ = ["ApiError", "error_response", "init_app"]
 
@@ -82,6 +83,11 @@ def init_app(app: Flask) -> None:
     @app.errorhandler(NotFound)
     def _not_found(exc: NotFound):
         return error_response(404, "not_found", str(exc), {"entity": exc.entity, "id": exc.ident})
+
+    @app.errorhandler(Blocked)
+    def _blocked(exc: Blocked):
+        findings = [dataclasses.asdict(f) if dataclasses.is_dataclass(f) else f for f in exc.findings]
+        return error_response(409, "blocked", str(exc), {"findings": findings})
 
     @app.errorhandler(Conflict)
     def _conflict(exc: Conflict):

@@ -23,7 +23,13 @@ def _lifecycle(record) -> dict[str, Any]:
 
 
 def element_rows(elements: Iterable) -> list[dict[str, Any]]:
-    return [{"element": e.element, "mass_ug": e.mass_ug, "mass_mg": e.mass_ug / 1000} for e in elements]
+    """Rows of stored element records (``.element``, ``.mass_ug``)."""
+    return element_rows_from({e.element: e.mass_ug for e in elements})
+
+
+def element_rows_from(masses_ug: dict[str, int]) -> list[dict[str, Any]]:
+    """Element masses {symbol: µg} as rows with units in the names."""
+    return [{"element": s, "mass_ug": ug, "mass_mg": ug / 1000} for s, ug in masses_ug.items()]
 
 
 def lab(record: Lab) -> dict[str, Any]:

@@ -214,6 +214,8 @@ def _change(session: Session, state, captured: dict, new: set, isdelete: bool) -
             return None
         retired = "retired_at" in after and before.get("retired_at") is None and after["retired_at"] is not None
         action = "retire" if retired else "update"
+        if "state" in after and before.get("state") != after["state"]:  # workflow transitions name both ends
+            action = f"state_change:{before.get('state')}->{after['state']}"
     values = after if after is not None else before
     key = tuple(values.get(c.name) for c in state.mapper.primary_key)
     before, after = redact_secrets(json_safe(before), json_safe(after))

@@ -110,3 +110,81 @@ def load_demo(session: Session, catalogue: SubstanceCatalogue) -> tuple[dict[str
                                                         volume=volume, components=components))
             added["mixtures"] += 1
     return added, passwords
+
+
+# title, [(stock or mixture label, amount)], steps, waste plan, end state
+_INERT = "argon"
+PROCEDURES = [
+    ("CdSe cores by hot injection",
+     [("NG-0001", "25.7 mg"), ("NG-0011", "0.6 mL"), ("NG-0010", "10 mL"), ("NG-M02", "1.0 mL"), ("NG-0013", "40 mL")],
+     [("charge", None, "air", None, "CdO, oleic acid and 1-octadecene into a 50 mL three-neck flask"),
+      ("degas", 120, "vacuum", 30, "until bubbling stops"),
+      ("heat", 300, _INERT, None, "until the solution turns clear and colourless"),
+      ("inject", 270, _INERT, None, "TOP-Se swiftly by syringe"),
+      ("hold", 250, _INERT, 3, "growth"),
+      ("cool", None, _INERT, None, "remove the mantle"),
+      ("precipitate", None, "air", None, "acetone"),
+      ("centrifuge", None, "air", 10, "4000 rpm, balanced, sealed tubes")],
+     [("non-halogenated solvent with heavy metals", "supernatants and acetone washes", "45 mL"),
+      ("contaminated solids", "gloves, wipes, pipette tips", None)],
+     "approved"),
+    ("CdSe/ZnS core-shell growth",
+     [("NG-0006", "110 mg"), ("NG-0005", "16 mg"), ("NG-0009", "1.0 mL"), ("NG-0010", "8 mL"), ("NG-0012", "2 mL"),
+      ("NG-0014", "10 mL"), ("NG-0013", "30 mL")],
+     [("charge", None, "air", None, "purified CdSe cores in hexane, zinc acetate, oleylamine, 1-octadecene"),
+      ("degas", 100, "vacuum", 30, "removes hexane"),
+      ("grow_shell", 240, _INERT, 60, "dropwise S in TOP, two monolayers"),
+      ("cool", None, _INERT, None, None),
+      ("precipitate", None, "air", None, "acetone; redisperse in toluene"),
+      ("centrifuge", None, "air", 10, None)],
+     [("non-halogenated solvent with heavy metals", "supernatants, toluene and acetone washes", "40 mL")],
+     "submitted"),
+    ("CsPbBr3 perovskite nanocrystals",
+     [("NG-0007", "69 mg"), ("NG-0010", "5 mL"), ("NG-0011", "0.5 mL"), ("NG-0012", "0.5 mL"), ("NG-M03", "0.4 mL"),
+      ("NG-0015", "10 mL")],
+     [("charge", None, "air", None, "PbBr2 and 1-octadecene"),
+      ("degas", 120, "vacuum", 60, None),
+      ("heat", 170, _INERT, None, "add oleic acid and oleylamine"),
+      ("inject", 170, _INERT, None, "cesium oleate, then ice bath after 5 s"),
+      ("cool", 0, _INERT, None, "ice-water bath"),
+      ("centrifuge", None, "air", 10, "redisperse in hexane")],
+     [("non-halogenated solvent with heavy metals", "supernatant, hexane washes (Pb)", "20 mL")],
+     "draft"),
+]
+
+
+def load_demo_procedures(session: Session, rules) -> int:
+    """The three demo procedures, in the states the scenario needs; returns how many were added."""
+    from service.schemas import DrawIn, ProcedureIn, StepIn, WastePlanIn
+    from service.store import procedures
+    from service.store.models import Procedure
+
+    researcher = session.scalar(select(User).where(User.email == "researcher@example.org"))
+    officer = session.scalar(select(User).where(User.email == "safety@example.org"))
+    lab = session.scalar(select(Lab).where(Lab.code == LAB.code))
+    added = 0
+    for title, draws, steps, waste, state in PROCEDURES:
+        if session.scalar(select(Procedure.id).where(Procedure.title == title)) is not None:
+            continue
+        draw_bodies = []
+        for label, amount in draws:
+            stock = session.scalar(select(Stock.id).where(Stock.label == label))
+            mixture = session.scalar(select(Mixture.id).where(Mixture.label == label))
+            draw_bodies.append(DrawIn(stock_id=stock, mixture_id=None if stock else mixture, amount=amount))
+        body = ProcedureIn(
+            lab_id=lab.id, title=title,
+            steps=[StepIn(operation=o, temperature_c=t, atmosphere=a, duration_min=d, note=n) for o, t, a, d, n in steps],
+            draws=draw_bodies,
+            waste_plan=[WastePlanIn(stream=s, contents=c, expected_amount=e) for s, c, e in waste],
+        )
+        session.info["actor"] = {"user_id": researcher.id, "label": researcher.email}
+        proc = procedures.create_procedure(session, body, researcher)
+        if state in ("submitted", "approved"):
+            procedures.transition(session, proc, "submit", researcher, None, rules)
+        if state == "approved":
+            session.info["actor"] = {"user_id": officer.id, "label": officer.email}
+            procedures.transition(session, proc, "approve", officer,
+                                  "Reviewed: argon manifold and temperature controller checked; "
+                                  "run in fume hood H2 with face shield for the injection.", rules)
+        added += 1
+    return added

@@ -24,6 +24,7 @@ from service.store.models import (
     Location,
     Mixture,
     MixtureComponent,
+    Procedure,
     MixtureElement,
     Stock,
     StockElement,
@@ -47,7 +48,8 @@ __all__ = [
 ]
 
 T = TypeVar("T")
-_ENTITY = {Lab: "lab", Location: "location", Substance: "substance", Stock: "stock", Mixture: "mixture", User: "user"}
+_ENTITY = {Lab: "lab", Location: "location", Substance: "substance", Stock: "stock", Mixture: "mixture", User: "user",
+           Procedure: "procedure"}
 _UNIQUE = {Lab: ("code",), Substance: ("key",), Stock: ("label",), Mixture: ("label",)}
 
 

@@ -36,6 +36,12 @@ __all__ = [
     "Membership",
     "ApiToken",
     "LoginAttempt",
+    "PROCEDURE_STATES",
+    "Procedure",
+    "ProcedureStep",
+    "ReagentDraw",
+    "WastePlanItem",
+    "ProcedureDecision",
     "utcnow",
 ]
 
@@ -234,3 +240,87 @@ class LoginAttempt(Base):
     address: Mapped[str] = mapped_column(String(64), index=True)
     at: Mapped[dt.datetime] = mapped_column(default=utcnow, index=True)
     succeeded: Mapped[bool] = mapped_column(default=False)
+
+
+# --- procedures -----------------------------------------------------------------
+
+PROCEDURE_STATES = ("draft", "submitted", "approved", "changes_requested", "declined", "retired")
+
+
+class Procedure(_Lifecycle, Base):
+    """One revision of a registered synthesis plan; revisions share a ``family_id``."""
+
+    __tablename__ = "procedures"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    family_id: Mapped[Optional[int]] = mapped_column(Integer, index=True)  # id of revision 1
+    revision: Mapped[int] = mapped_column(Integer, default=1)
+    revision_of_id: Mapped[Optional[int]] = mapped_column(ForeignKey("procedures.id"))
+    lab_id: Mapped[int] = mapped_column(ForeignKey("labs.id"), index=True)
+    researcher_id: Mapped[int] = mapped_column(ForeignKey("users.id"), index=True)
+    title: Mapped[str] = mapped_column(String(300))
+    summary: Mapped[Optional[str]] = mapped_column(Text)
+    scale: Mapped[float] = mapped_column(Float, default=1.0)
+    state: Mapped[str] = mapped_column(String(20), default="draft", index=True)
+    submitted_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
+    decided_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
+    decided_by_id: Mapped[Optional[int]] = mapped_column(ForeignKey("users.id"))
+    decision_comment: Mapped[Optional[str]] = mapped_column(Text)
+    steps: Mapped[list["ProcedureStep"]] = relationship(
+        cascade="all, delete-orphan", lazy="selectin", order_by="ProcedureStep.position"
+    )
+    draws: Mapped[list["ReagentDraw"]] = relationship(
+        cascade="all, delete-orphan", lazy="selectin", order_by="ReagentDraw.position"
+    )
+    waste_plan: Mapped[list["WastePlanItem"]] = relationship(
+        cascade="all, delete-orphan", lazy="selectin", order_by="WastePlanItem.position"
+    )
+
+
+class ProcedureStep(Base):
+    __tablename__ = "procedure_steps"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    procedure_id: Mapped[int] = mapped_column(ForeignKey("procedures.id"), index=True)
+    position: Mapped[int] = mapped_column(Integer)
+    operation: Mapped[str] = mapped_column(String(40))
+    temperature_c: Mapped[Optional[float]] = mapped_column(Float)
+    atmosphere: Mapped[Optional[str]] = mapped_column(String(20))
+    duration_min: Mapped[Optional[float]] = mapped_column(Float)
+    note: Mapped[Optional[str]] = mapped_column(Text)
+
+
+class ReagentDraw(Base):
+    """A planned draw from a stock or a mixture, at scale 1."""
+
+    __tablename__ = "reagent_draws"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    procedure_id: Mapped[int] = mapped_column(ForeignKey("procedures.id"), index=True)
+    position: Mapped[int] = mapped_column(Integer)
+    stock_id: Mapped[Optional[int]] = mapped_column(ForeignKey("stocks.id"))
+    mixture_id: Mapped[Optional[int]] = mapped_column(ForeignKey("mixtures.id"))
+    amount_text: Mapped[str] = mapped_column(String(60))
+    stock: Mapped[Optional[Stock]] = relationship(lazy="joined")
+    mixture: Mapped[Optional[Mixture]] = relationship(lazy="joined")
+
+
+class WastePlanItem(Base):
+    __tablename__ = "waste_plan_items"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    procedure_id: Mapped[int] = mapped_column(ForeignKey("procedures.id"), index=True)
+    position: Mapped[int] = mapped_column(Integer)
+    stream: Mapped[str] = mapped_column(String(60))
+    contents: Mapped[str] = mapped_column(Text)
+    expected_amount: Mapped[Optional[str]] = mapped_column(String(60))
+
+
+class ProcedureDecision(Base):
+    """The review history of a procedure: every transition with its actor and comment."""
+
+    __tablename__ = "procedure_decisions"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    procedure_id: Mapped[int] = mapped_column(ForeignKey("procedures.id"), index=True)
+    actor_id: Mapped[int] = mapped_column(ForeignKey("users.id"))
+    from_state: Mapped[str] = mapped_column(String(20))
+    to_state: Mapped[str] = mapped_column(String(20))
+    comment: Mapped[Optional[str]] = mapped_column(Text)
+    highest_level: Mapped[Optional[str]] = mapped_column(String(10))
+    at: Mapped[dt.datetime] = mapped_column(default=utcnow)

@@ -1,0 +1,312 @@
+"""Procedures: registration, revisions, the approval workflow and what the rules see.
+
+The rule evaluation itself is pure (``service.rules``); this module turns a stored
+procedure into a :class:`ProcedureSubject` and moves procedures between states.
+"""
+
+from __future__ import annotations
+
+from decimal import Decimal
+from typing import Optional
+
+from sqlalchemy import select
+from sqlalchemy.orm import Session
+
+from service.chem.content import round_ug, substance_element_masses_ug
+from service.chem.units import parse_quantity, to_decimal
+from service.errors import Blocked, Conflict, Forbidden, InvalidInput
+from service.rules import LayeredRules, evaluate, highest_level
+from service.rules.subjects import ProcedureSubject, ReagentFacts, StepFacts
+from service.schemas import DrawIn, ProcedureIn, ProcedurePatch, StepIn, WastePlanIn
+from service.store.models import (
+    Lab,
+    Mixture,
+    Procedure,
+    ProcedureDecision,
+    ProcedureStep,
+    ReagentDraw,
+    Stock,
+    User,
+    WastePlanItem,
+    utcnow,
+)
+
+__all__ = [
+    "TRANSITIONS",
+    "create_procedure",
+    "update_procedure",
+    "subject_of",
+    "element_totals_ug",
+    "findings_of",
+    "last_approved_scale",
+    "transition",
+    "review_queue",
+    "decisions_of",
+    "list_procedures",
+    "preview",
+    "highest_level",
+]
+
+# action -> (states it may start from, state it leads to, comment required)
+TRANSITIONS: dict[str, tuple[frozenset[str], str, bool]] = {
+    "submit": (frozenset({"draft", "changes_requested"}), "submitted", False),
+    "approve": (frozenset({"submitted"}), "approved", False),  # required when a finding needs review
+    "request_changes": (frozenset({"submitted"}), "changes_requested", True),
+    "decline": (frozenset({"submitted"}), "declined", True),
+    "retire": (frozenset({"approved"}), "retired", False),
+}
+EDITABLE = frozenset({"draft", "changes_requested"})
+_SEVERITY = {"note": 0, "caution": 1, "review": 2, "block": 3}
+
+
+# --- building -----------------------------------------------------------------
+
+
+def _draw(session: Session, lab_id: int, position: int, body: DrawIn) -> ReagentDraw:
+    field = f"draws[{position}]"
+    if body.stock_id is not None:
+        source = session.get(Stock, body.stock_id)
+        kind = "stock"
+    else:
+        source = session.get(Mixture, body.mixture_id)
+        kind = "mixture"
+    if source is None or source.retired_at is not None:
+        raise InvalidInput(f"{field}.{kind}_id", f"no active {kind} with id {body.stock_id or body.mixture_id}")
+    if source.lab_id != lab_id:
+        raise InvalidInput(f"{field}.{kind}_id", f"{kind} {source.label} belongs to another lab")
+    draw = ReagentDraw(position=position, stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount)
+    draw.stock, draw.mixture = (source, None) if kind == "stock" else (None, source)
+    _reagent(draw, 1.0, field)  # checks the amount now: unit, kind, density
+    return draw
+
+
+def _fill(session: Session, proc: Procedure, steps: list[StepIn] | None, draws: list[DrawIn] | None,
+          waste: list[WastePlanIn] | None) -> None:
+    if steps is not None:
+        proc.steps = [ProcedureStep(position=i, **s.model_dump()) for i, s in enumerate(steps)]
+    if draws is not None:
+        proc.draws = [_draw(session, proc.lab_id, i, d) for i, d in enumerate(draws)]
+    if waste is not None:
+        proc.waste_plan = [WastePlanItem(position=i, **w.model_dump()) for i, w in enumerate(waste)]
+
+
+def create_procedure(session: Session, body: ProcedureIn, researcher: User) -> Procedure:
+    """Register a new procedure (revision 1, draft) for ``researcher``."""
+    lab = session.get(Lab, body.lab_id)
+    if lab is None or lab.retired_at is not None:
+        raise InvalidInput("lab_id", f"no active lab with id {body.lab_id}", body.lab_id)
+    proc = Procedure(lab_id=lab.id, researcher_id=researcher.id, title=body.title, summary=body.summary,
+                     scale=body.scale, state="draft", revision=1)
+    _fill(session, proc, body.steps, body.draws, body.waste_plan)
+    session.add(proc)
+    session.flush()
+    proc.family_id = proc.id
+    session.flush()
+    return proc
+
+
+def update_procedure(session: Session, proc: Procedure, patch: ProcedurePatch) -> tuple[Procedure, bool]:
+    """Edit a draft in place, or make a new draft revision of an approved procedure.
+
+    Returns the procedure and whether it is a new revision. Other states refuse edits.
+    """
+    values = patch.model_dump(exclude_unset=True)
+    if proc.state == "approved":
+        proc = _new_revision(session, proc)
+        created = True
+    elif proc.state in EDITABLE:
+        created = False
+    else:
+        raise Conflict(f"a {proc.state} procedure cannot be edited", "state", proc.state)
+    for key in ("title", "summary", "scale"):
+        if key in values:
+            setattr(proc, key, values[key])
+    _fill(session, proc, patch.steps if "steps" in values else None, patch.draws if "draws" in values else None,
+          patch.waste_plan if "waste_plan" in values else None)
+    session.flush()
+    return proc, created
+
+
+def _new_revision(session: Session, old: Procedure) -> Procedure:
+    latest = session.scalar(select(Procedure.revision).where(Procedure.family_id == old.family_id)
+                            .order_by(Procedure.revision.desc()).limit(1))
+    if session.scalar(select(Procedure.id).where(Procedure.family_id == old.family_id,
+                                                 Procedure.state.in_(("draft", "submitted", "changes_requested")))):
+        raise Conflict("this procedure already has an open revision; edit that one", "state", old.state)
+    new = Procedure(family_id=old.family_id, revision=latest + 1, revision_of_id=old.id, lab_id=old.lab_id,
+                    researcher_id=old.researcher_id, title=old.title, summary=old.summary, scale=old.scale,
+                    state="draft")
+    new.steps = [ProcedureStep(position=s.position, operation=s.operation, temperature_c=s.temperature_c,
+                               atmosphere=s.atmosphere, duration_min=s.duration_min, note=s.note) for s in old.steps]
+    new.draws = [ReagentDraw(position=d.position, stock_id=d.stock_id, mixture_id=d.mixture_id,
+                             amount_text=d.amount_text, stock=d.stock, mixture=d.mixture) for d in old.draws]
+    new.waste_plan = [WastePlanItem(position=w.position, stream=w.stream, contents=w.contents,
+                                    expected_amount=w.expected_amount) for w in old.waste_plan]
+    session.add(new)
+    session.flush()
+    return new
+
+
+# --- what the rules see -------------------------------------------------------
+
+
+def _scaled(masses: dict[str, int], scale: float) -> dict[str, int]:
+    factor = Decimal(repr(float(scale)))
+    return {s: round_ug(Decimal(ug) * factor) for s, ug in masses.items()}
+
+
+def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFacts:
+    if draw.stock is not None:
+        stock, substance = draw.stock, draw.stock.substance
+        masses = substance_element_masses_ug(
+            draw.amount_text, substance.formula, purity=Decimal(repr(stock.purity_percent)) / 100,
+            density_g_per_ml=stock.density_g_per_ml or substance.density_g_per_ml, substance=substance.name,
+        )
+        classes = (substance.hazard or {}).get("classes", [])
+        return ReagentFacts(
+            name=substance.name, amount_text=draw.amount_text, state=substance.state,
+            element_mass_ug=_scaled(masses, scale), flags=frozenset(substance.flags or ()),
+            carcinogen_category=next((c.split(" ", 1)[1] for c in classes if c.startswith("Carc. ")), None),
+            flash_point_c=substance.flash_point_c,
+            flammable="flammable" in (substance.flags or ()) and substance.state == "liquid",
+        )
+    mixture = draw.mixture
+    volume_ul = to_decimal(parse_quantity(draw.amount_text, expect="volume", field=f"{field}.amount"), "uL")
+    share = volume_ul / Decimal(mixture.volume_ul)
+    masses = {e.element: round_ug(Decimal(e.mass_ug) * share) for e in mixture.elements}
+    parts = [c.substance for c in mixture.components]
+    liquids = [p for p in parts if p.state == "liquid"]
+    flash = [p.flash_point_c for p in liquids if p.flash_point_c is not None]
+    categories = sorted(c.split(" ", 1)[1] for p in parts for c in (p.hazard or {}).get("classes", [])
+                        if c.startswith("Carc. "))
+    return ReagentFacts(
+        name=mixture.name, amount_text=draw.amount_text, state="solution", element_mass_ug=_scaled(masses, scale),
+        flags=frozenset(f for p in parts for f in (p.flags or ())),
+        carcinogen_category=categories[0] if categories else None,
+        flash_point_c=min(flash) if flash else None,
+        flammable=any("flammable" in (p.flags or ()) for p in liquids),
+    )
+
+
+def last_approved_scale(session: Session, proc: Procedure) -> Optional[float]:
+    """The scale of the newest approved (or since retired) earlier revision, or None."""
+    query = (select(Procedure.scale).where(Procedure.family_id == proc.family_id, Procedure.id != proc.id,
+                                           Procedure.decided_at.is_not(None), Procedure.state.in_(("approved", "retired")))
+             .order_by(Procedure.revision.desc()).limit(1))
+    return session.scalar(query)
+
+
+def subject_of(proc: Procedure, *, scale: Optional[float] = None, approved_scale: Optional[float] = None) -> ProcedureSubject:
+    """The facts the rules evaluate, at the procedure's scale or another one."""
+    scale = proc.scale if scale is None else scale
+    return ProcedureSubject(
+        title=proc.title,
+        reagents=tuple(_reagent(d, scale) for d in proc.draws),
+        steps=tuple(StepFacts(position=s.position, operation=s.operation, temperature_c=s.temperature_c,
+                              atmosphere=s.atmosphere, duration_min=s.duration_min) for s in proc.steps),
+        scale=scale,
+        last_approved_scale=approved_scale,
+    )
+
+
+def element_totals_ug(subject: ProcedureSubject) -> dict[str, int]:
+    totals: dict[str, int] = {}
+    for reagent in subject.reagents:
+        for symbol, ug in reagent.element_mass_ug.items():
+            totals[symbol] = totals.get(symbol, 0) + ug
+    return dict(sorted(totals.items()))
+
+
+def reference_scale(session: Session, proc: Procedure) -> Optional[float]:
+    """The approved scale a scale-up is measured against: its own once approved, else the last approved revision's."""
+    if proc.state in ("approved", "retired") and proc.decided_at is not None:
+        return proc.scale
+    return last_approved_scale(session, proc)
+
+
+def findings_of(session: Session, proc: Procedure, rules: LayeredRules, *, scale: Optional[float] = None) -> list:
+    subject = subject_of(proc, scale=scale, approved_scale=reference_scale(session, proc))
+    return evaluate(rules, "procedure", subject)
+
+
+# --- workflow -----------------------------------------------------------------
+
+
+def transition(session: Session, proc: Procedure, action: str, actor: User, comment: Optional[str],
+               rules: LayeredRules) -> Procedure:
+    """Move ``proc`` by ``action`` (see TRANSITIONS), recording the decision.
+
+    Raises Conflict for a wrong state, Blocked for block findings on submit or
+    approve, Forbidden for approving one's own procedure, InvalidInput for a missing comment.
+    """
+    starts, target, needs_comment = TRANSITIONS[action]
+    if proc.state not in starts:
+        raise Conflict(f"cannot {action.replace('_', ' ')} a procedure that is {proc.state.replace('_', ' ')}",
+                       "state", proc.state)
+    findings = findings_of(session, proc, rules)
+    level = highest_level(findings)
+    comment = (comment or "").strip() or None
+    if action in ("submit", "approve") and level == "block":
+        blocking = [f for f in findings if f.level == "block"]
+        raise Blocked(f"{len(blocking)} finding(s) block this procedure; change it first", findings)
+    if action == "approve":
+        if proc.researcher_id == actor.id:
+            raise Forbidden("nobody approves their own procedure", {"procedure_id": proc.id})
+        if level == "review" and not comment:
+            needs_comment = True
+    if needs_comment and not comment:
+        raise InvalidInput("comment", f"a comment is required to {action.replace('_', ' ')} this procedure")
+    now = utcnow()
+    session.add(ProcedureDecision(procedure_id=proc.id, actor_id=actor.id, from_state=proc.state, to_state=target,
+                                  comment=comment, highest_level=level, at=now))
+    if action == "submit":
+        proc.submitted_at = now
+    elif action in ("approve", "request_changes", "decline"):
+        proc.decided_at, proc.decided_by_id, proc.decision_comment = now, actor.id, comment
+    if action == "approve":
+        for older in session.scalars(select(Procedure).where(Procedure.family_id == proc.family_id,
+                                                             Procedure.id != proc.id, Procedure.state == "approved")):
+            older.state = "retired"  # superseded by this revision
+    if action == "retire":
+        proc.retired_at = now
+    proc.state = target
+    session.flush()
+    return proc
+
+
+def review_queue(session: Session, rules: LayeredRules) -> list[tuple[Procedure, Optional[str]]]:
+    """Submitted procedures, oldest submission first, each with its highest finding level."""
+    procs = session.scalars(select(Procedure).where(Procedure.state == "submitted")
+                            .order_by(Procedure.submitted_at, Procedure.id))
+    return [(p, highest_level(findings_of(session, p, rules))) for p in procs]
+
+
+def decisions_of(session: Session, proc: Procedure) -> list[ProcedureDecision]:
+    return list(session.scalars(select(ProcedureDecision).where(ProcedureDecision.procedure_id == proc.id)
+                                .order_by(ProcedureDecision.id)))
+
+
+def list_procedures(session: Session, *, state: Optional[str] = None, lab_id: Optional[int] = None,
+                    lab_ids: Optional[set[int]] = None, family_id: Optional[int] = None,
+                    limit: int = 100, offset: int = 0) -> list[Procedure]:
+    query = select(Procedure)
+    if state is not None:
+        query = query.where(Procedure.state == state)
+    if lab_id is not None:
+        query = query.where(Procedure.lab_id == lab_id)
+    if lab_ids is not None:
+        query = query.where(Procedure.lab_id.in_(sorted(lab_ids)))
+    if family_id is not None:
+        query = query.where(Procedure.family_id == family_id)
+    return list(session.scalars(query.order_by(Procedure.id).limit(limit).offset(offset)).unique())
+
+
+def preview(session: Session, proc: Procedure, rules: LayeredRules, scales: list[float]):
+    """Per scale: (scale, highest level, element masses per batch, findings)."""
+    rows = []
+    approved = reference_scale(session, proc)
+    for scale in scales:
+        subject = subject_of(proc, scale=scale, approved_scale=approved)
+        findings = evaluate(rules, "procedure", subject)
+        rows.append((scale, highest_level(findings), element_totals_ug(subject), findings))
+    return rows

@@ -1,0 +1,195 @@
+"""The procedure workflow through the API, with the shipped rule packs.
+
+Physical values behind the findings come from rules/substances.yaml (sources named there):
+1-octadecene flash point ≈149 °C (from memory — verify), n-hexane −22 °C and toluene 4 °C
+(Prudent Practices in the Laboratory / NIOSH Pocket Guide, seen).
+"""
+
+from __future__ import annotations
+
+import pytest
+
+from service.store import audit
+from service.store.db import session_scope
+from tests.conftest import Api, make_user
+
+
+@pytest.fixture
+def lab(app, client):
+    """A lab with a researcher, a safety officer, stocks and a Cd oleate solution."""
+    admin = Api(client, make_user(app, "admin@test.example", "admin"))
+    lab_id = admin.call("POST", "/labs", {"code": "N-1", "name": "Nano group"}, 201)["id"]
+    place = admin.call("POST", "/locations", {"lab_id": lab_id, "building": "N", "room": "N-1",
+                                              "storage": "cabinet"}, 201)["id"]
+    stocks = {}
+    for label, name, amount in [("CdO", "cadmium oxide", "25 g"), ("Se", "selenium", "50 g"),
+                                ("TOP", "trioctylphosphine", "100 mL"), ("ODE", "1-octadecene", "1 L"),
+                                ("OA", "oleic acid", "500 mL"), ("HEX", "n-hexane", "1 L"),
+                                ("TOL", "toluene", "1 L"), ("ACE", "acetone", "4 L")]:
+        stocks[label] = admin.call("POST", "/stocks", {"label": label, "substance_id": admin.substance_id(name),
+                                                       "lab_id": lab_id, "location_id": place, "amount": amount}, 201)["id"]
+    researcher = Api(client, make_user(app, "res@test.example", "researcher", lab_ids=[lab_id]))
+    officer = Api(client, make_user(app, "so@test.example", "safety_officer"))
+    return {"id": lab_id, "stocks": stocks, "researcher": researcher, "officer": officer, "admin": admin}
+
+
+def cdse_core(lab, *, atmosphere="argon", temperature=300.0, solvent="ODE", cdo="25.7 mg", extra=()):
+    """A CdSe core synthesis as planned at scale 1 (0.2 mmol CdO = 25.7 mg)."""
+    s = lab["stocks"]
+    return {
+        "lab_id": lab["id"], "title": "CdSe cores by hot injection",
+        "steps": [
+            {"operation": "charge", "note": "CdO, oleic acid and solvent into the flask"},
+            {"operation": "degas", "temperature_c": 120, "atmosphere": "vacuum", "duration_min": 30},
+            {"operation": "heat", "temperature_c": temperature, "atmosphere": atmosphere},
+            {"operation": "inject", "temperature_c": temperature - 30, "atmosphere": atmosphere},
+            {"operation": "cool", "atmosphere": atmosphere},
+            {"operation": "precipitate", "note": "acetone"},
+            {"operation": "centrifuge", "duration_min": 10},
+        ],
+        "draws": [{"stock_id": s["CdO"], "amount": cdo}, {"stock_id": s["OA"], "amount": "0.6 mL"},
+                  {"stock_id": s[solvent], "amount": "10 mL"}, {"stock_id": s["Se"], "amount": "15.8 mg"},
+                  {"stock_id": s["TOP"], "amount": "1 mL"}, *extra],
+        "waste_plan": [{"stream": "non-halogenated solvent with heavy metals", "contents": "supernatants, acetone washes"},
+                       {"stream": "contaminated solids", "contents": "gloves, wipes, filter paper"}],
+    }
+
+
+def _measures(procedure):
+    return {f["measure"]: f for f in procedure["findings"]}
+
+
+def test_register_submit_approve_with_three_users(app, lab):
+    researcher, officer = lab["researcher"], lab["officer"]
+    proc = researcher.call("POST", "/procedures", cdse_core(lab), 201)
+    assert proc["state"] == "draft"
+    cd = next(e for e in proc["element_masses_per_batch"] if e["element"] == "Cd")
+    # 25.7 mg CdO at 100 % × 112.414/128.413 = 22.498 mg Cd (CIAAW 2021)
+    assert cd["mass_ug"] == pytest.approx(22_498, abs=1)
+    assert proc["rule_packs"] and proc["caution"]
+    assert all(f["disclaimer"] for f in proc["findings"])
+    submitted = researcher.call("POST", f"/procedures/{proc['id']}/submit", {}, 200)
+    assert submitted["state"] == "submitted"
+    researcher.call("POST", f"/procedures/{proc['id']}/approve", {"comment": "mine"}, 403)  # own approval
+    queue = officer.call("GET", "/review_queue")["items"]
+    assert [p["id"] for p in queue] == [proc["id"]]
+    if submitted["highest_level"] == "review":
+        officer.call("POST", f"/procedures/{proc['id']}/approve", {}, 422)  # review needs a comment
+    approved = officer.call("POST", f"/procedures/{proc['id']}/approve",
+                            {"comment": "Argon line checked; heating mantle with controller."})
+    assert approved["state"] == "approved" and approved["decided_by_id"] is not None
+    with session_scope(app.extensions["dotledger.sessions"]) as session:
+        assert audit.verify_chain(session).ok
+        actions = [e.action for e in audit.list_events(session, entity="procedures", limit=100)]
+    assert "state_change:draft->submitted" in actions and "state_change:submitted->approved" in actions
+    decisions = officer.call("GET", f"/procedures/{proc['id']}/decisions")["items"]
+    assert [(d["from_state"], d["to_state"]) for d in decisions] == [("draft", "submitted"), ("submitted", "approved")]
+
+
+def test_hot_ode_gives_the_flash_point_finding(lab):
+    # 300 °C against 1-octadecene's closed-cup flash point (≈149 °C, from memory — verify): 151 degrees above.
+    body = cdse_core(lab)
+    body["draws"] = [d for d in body["draws"] if d["stock_id"] in (lab["stocks"]["CdO"], lab["stocks"]["ODE"])]
+    proc = lab["researcher"].call("POST", "/procedures", body, 201)
+    finding = _measures(proc)["max_temperature_minus_flash_point"]
+    assert finding["value"] == pytest.approx(151, abs=0.5) and "1-octadecene" in finding["detail"]
+    assert finding["level"] == "review"
+
+
+@pytest.mark.parametrize("solvent", ["HEX", "TOL"])
+def test_low_flash_point_solvents_at_300_c_give_the_finding(lab, solvent):
+    proc = lab["researcher"].call("POST", "/procedures", cdse_core(lab, solvent=solvent), 201)
+    finding = _measures(proc)["max_temperature_minus_flash_point"]
+    # n-hexane −22 °C, toluene 4 °C: 300 − (−22) = 322 and 300 − 4 = 296 degrees above
+    assert finding["value"] == pytest.approx({"HEX": 322, "TOL": 296}[solvent], abs=0.5)
+
+
+def test_air_sensitive_without_inert_gas_blocks_submission(lab):
+    body = cdse_core(lab, atmosphere="air")
+    body["steps"][1]["atmosphere"] = "air"  # no vacuum or inert step anywhere
+    proc = lab["researcher"].call("POST", "/procedures", body, 201)
+    assert proc["highest_level"] == "block"
+    error = lab["researcher"].call("POST", f"/procedures/{proc['id']}/submit", {}, 409)["error"]
+    assert any(f["measure"] == "air_sensitive_without_inert_step" for f in error["details"]["findings"])
+
+
+def test_changes_requested_then_revised_and_resubmitted(lab):
+    researcher, officer = lab["researcher"], lab["officer"]
+    proc = researcher.call("POST", "/procedures", cdse_core(lab), 201)
+    researcher.call("POST", f"/procedures/{proc['id']}/submit")
+    researcher.call("PATCH", f"/procedures/{proc['id']}", {"title": "while submitted"}, 409)
+    officer.call("POST", f"/procedures/{proc['id']}/request_changes", {}, 422)  # a comment is required
+    officer.call("POST", f"/procedures/{proc['id']}/request_changes", {"comment": "Add the quench step."})
+    edited = researcher.call("PATCH", f"/procedures/{proc['id']}", {"title": "CdSe cores, with quench"})
+    assert edited["state"] == "changes_requested" and edited["revision"] == 1
+    assert researcher.call("POST", f"/procedures/{proc['id']}/submit")["state"] == "submitted"
+
+
+def test_editing_an_approved_procedure_makes_a_new_revision(lab):
+    researcher, officer = lab["researcher"], lab["officer"]
+    proc = researcher.call("POST", "/procedures", cdse_core(lab), 201)
+    researcher.call("POST", f"/procedures/{proc['id']}/submit")
+    officer.call("POST", f"/procedures/{proc['id']}/approve", {"comment": "ok"})
+    revision = researcher.call("PATCH", f"/procedures/{proc['id']}", {"scale": 3}, 201)
+    assert (revision["revision"], revision["state"], revision["revision_of_id"]) == (2, "draft", proc["id"])
+    assert researcher.call("GET", f"/procedures/{proc['id']}")["state"] == "approved"  # old one still readable
+    assert "scale_factor_over_last_approved" in _measures(revision)  # 3× the approved scale
+    researcher.call("PATCH", f"/procedures/{proc['id']}", {"scale": 2}, 409)  # one open revision at a time
+    researcher.call("POST", f"/procedures/{revision['id']}/submit")
+    officer.call("POST", f"/procedures/{revision['id']}/approve", {"comment": "scale-up reviewed"})
+    assert researcher.call("GET", f"/procedures/{proc['id']}")["state"] == "retired"
+    family = researcher.call("GET", f"/procedures/{revision['id']}/revisions")["items"]
+    assert [(p["revision"], p["state"]) for p in family] == [(1, "retired"), (2, "approved")]
+
+
+def test_scale_up_preview_lists_thresholds_crossed(lab, app):
+    proc = lab["researcher"].call("POST", "/procedures", cdse_core(lab), 201)
+    preview = lab["researcher"].call("GET", f"/procedures/{proc['id']}/preview?scales=1,10,1000")
+    by_scale = {row["scale"]: row for row in preview["scales"]}
+    cd = lambda row: next(e["mass_ug"] for e in row["element_masses_per_batch"] if e["element"] == "Cd")  # noqa: E731
+    assert cd(by_scale[10.0]) == pytest.approx(10 * cd(by_scale[1.0]), abs=10)
+    rules = app.extensions["dotledger.rules"]
+    cd_rules = [r for r in rules.rules_for("procedure") if r.measure == "element_mass:Cd"]
+    crossed_at_1000 = {f["rule_id"] for f in by_scale[1000.0]["findings"] if f["measure"] == "element_mass:Cd"}
+    crossed_at_1 = {f["rule_id"] for f in by_scale[1.0]["findings"] if f["measure"] == "element_mass:Cd"}
+    assert crossed_at_1 < crossed_at_1000 <= {r.id for r in cd_rules}
+    lab["researcher"].call("GET", f"/procedures/{proc['id']}/preview?scales=0", expect=422)
+    lab["researcher"].call("GET", f"/procedures/{proc['id']}/preview?scales=abc", expect=422)
+
+
+def test_review_queue_is_oldest_first(lab):
+    researcher, officer = lab["researcher"], lab["officer"]
+    ids = []
+    for title in ("first", "second", "third"):
+        body = {**cdse_core(lab), "title": f"CdSe {title}"}
+        proc = researcher.call("POST", "/procedures", body, 201)
+        ids.append(proc["id"])
+    for ident in (ids[1], ids[0], ids[2]):
+        researcher.call("POST", f"/procedures/{ident}/submit")
+    queue = officer.call("GET", "/review_queue")["items"]
+    assert [p["id"] for p in queue] == [ids[1], ids[0], ids[2]]
+    assert all(p["highest_level"] for p in queue)
+    researcher.call("GET", "/review_queue", expect=403)
+
+
+@pytest.mark.parametrize(
+    "change, field",
+    [
+        ({"draws": [{"stock_id": 99999, "amount": "1 g"}]}, "draws[0].stock_id"),
+        ({"draws": [{"amount": "1 g"}]}, None),
+        ({"steps": [{"operation": "teleport"}]}, "steps.0.operation"),
+        ({"steps": []}, "steps"),
+        ({"lab_id": 99999}, None),
+    ],
+)
+def test_bad_procedure_bodies(lab, change, field):
+    status = 403 if "lab_id" in change else 422  # a researcher may only register in their labs
+    error = lab["researcher"].call("POST", "/procedures", {**cdse_core(lab), **change}, status)["error"]
+    if field:
+        assert any(d.get("field") == field for d in error["details"]), error
+
+
+@pytest.mark.parametrize("amount, words", [("0.2 mol/L", "expected a mass or volume"), ("25", "needs a unit")])
+def test_a_draw_amount_must_be_a_mass_or_volume(lab, amount, words):
+    error = lab["researcher"].call("POST", "/procedures", cdse_core(lab, cdo=amount), 422)["error"]
+    assert words in error["message"] and error["details"][0]["field"] == "amount"
