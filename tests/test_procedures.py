@@ -193,3 +193,39 @@ def test_bad_procedure_bodies(lab, change, field):
 def test_a_draw_amount_must_be_a_mass_or_volume(lab, amount, words):
     error = lab["researcher"].call("POST", "/procedures", cdse_core(lab, cdo=amount), 422)["error"]
     assert words in error["message"] and error["details"][0]["field"] == "amount"
+
+
+def test_nobody_approves_their_own_procedure_even_as_safety_officer(app, lab):
+    from service.errors import Forbidden
+    from service.store import procedures
+    from service.store.models import Procedure, User
+
+    proc = lab["researcher"].call("POST", "/procedures", cdse_core(lab), 201)
+    lab["researcher"].call("POST", f"/procedures/{proc['id']}/submit")
+    with session_scope(app.extensions["dotledger.sessions"]) as session:
+        record = session.get(Procedure, proc["id"])
+        officer = session.query(User).filter(User.email == "so@test.example").one()
+        record.researcher_id = officer.id  # the officer wrote this one
+        session.flush()
+        with pytest.raises(Forbidden, match="nobody approves their own procedure"):
+            procedures.transition(session, record, "approve", officer, "looks fine", app.extensions["dotledger.rules"])
+
+
+def test_preview_command(sqlite_url, monkeypatch):
+    from click.testing import CliRunner
+
+    from service.cli import main
+
+    monkeypatch.setenv("DOTLEDGER_DATABASE_URL", sqlite_url)
+    runner = CliRunner()
+    assert runner.invoke(main, ["demo"]).exit_code == 0
+    result = runner.invoke(main, ["preview", "1", "--scale", "1,500"])
+    assert result.exit_code == 0, result.output
+    assert "× 1:" in result.output and "× 500:" in result.output
+    at_500 = result.output.split("× 500:", 1)[1]
+    assert "site.cd-per-batch-block" in at_500 and "highest finding block" in at_500  # 500 × 22.5 mg Cd > 5 g
+    assert "safety officer" in result.output
+    bad = runner.invoke(main, ["preview", "1", "--scale", "0"])
+    assert bad.exit_code == 2 and "above 0" in bad.output
+    missing = runner.invoke(main, ["preview", "999"])
+    assert missing.exit_code == 1 and "no procedure with id 999" in missing.output
