@@ -230,3 +230,6 @@ def max_injection_temperature(subject: ProcedureSubject, _arg: None) -> Optional
     step = max(injections, key=lambda s: s.temperature_c)
     step_c = _dec(step.temperature_c)
     return MeasureResult(_plain(step_c), "degC", f"{_step_label(step)} at {_text(step_c)} °C")
+
+# The waste_container measures register themselves on import (kept in their own module).
+from service.rules import container_measures  # noqa: E402,F401

@@ -9,7 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Literal, Mapping, Optional
 
-__all__ = ["ReagentFacts", "StepFacts", "ProcedureSubject", "INERT_ATMOSPHERES"]
+__all__ = ["ReagentFacts", "StepFacts", "ProcedureSubject", "ContainerComponent", "ContainerSubject", "INERT_ATMOSPHERES"]
 
 INERT_ATMOSPHERES = frozenset({"argon", "nitrogen", "glovebox", "vacuum"})
 
@@ -51,3 +51,39 @@ class ProcedureSubject:
     steps: tuple[StepFacts, ...]
     scale: float = 1.0
     last_approved_scale: Optional[float] = None  # None: never approved before
+
+
+@dataclass(frozen=True)
+class ContainerComponent:
+    """One liquid (or solid) constituent of a waste container, by share of the contents."""
+
+    name: str
+    key: Optional[str]  # catalogue key (e.g. "acetone"); None for an unlisted constituent
+    volume_fraction: float  # 0–1 of the container's liquid volume (solids: mass fraction)
+    flash_point_c: Optional[float] = None
+    flags: frozenset[str] = frozenset()
+    halogenated: bool = False
+
+
+@dataclass(frozen=True)
+class ContainerSubject:
+    """A waste accumulation container as the container-scope rules see it.
+
+    ``volume_l`` is the liquid volume (0 for a solids container), ``mass_kg`` the solids
+    mass; ``element_mass_ug`` the summed element masses of all entries;
+    ``filterable_solids_percent`` decides whether the liquid itself counts as the
+    toxicity-characteristic extract (< 0.5 %, 40 CFR 261.24(a)).
+    """
+
+    label: str
+    stream: str
+    form: Literal["liquid", "solid"]
+    volume_l: float
+    mass_kg: float
+    capacity_l: Optional[float]
+    element_mass_ug: Mapping[str, int] = field(default_factory=dict)
+    components: tuple[ContainerComponent, ...] = ()
+    filterable_solids_percent: float = 0.0
+    days_since_first_entry: Optional[float] = None
+    days_since_full: Optional[float] = None
+    acute_hazardous: bool = False
