@@ -1,0 +1,108 @@
+"""Ledger reports: waste leaving and inventory on hand, as JSON, CSV or XLSX.
+
+``GET /api/v1/reports/waste?by=element,stream,month&since=2026-01-01&until=2026-03-31&element=Cd&format=csv``
+``GET /api/v1/reports/inventory?by=element,location&format=xlsx``
+
+Researchers see their own labs' figures; every other role sees the whole site.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from typing import ClassVar, Literal, Optional
+
+from flask import Response, jsonify, request
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+
+from service.api import bp
+from service.auth import lab_scope
+from service.chem.formula import atomic_weight
+from service.store import ledger
+from service.store.db import get_session
+
+XLSX = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
+
+
+class _ReportQuery(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+    report: ClassVar[str]
+    by: tuple[str, ...] = Field(default=(), validate_default=True)  # "a,b,c" in the query; () = default
+    element: Optional[str] = None
+    format: Literal["json", "csv", "xlsx"] = "json"
+
+    @field_validator("by", mode="before")
+    @classmethod
+    def _split(cls, value):
+        if isinstance(value, str):
+            return tuple(part.strip() for part in value.split(",") if part.strip())
+        return value
+
+    @field_validator("element")
+    @classmethod
+    def _element(cls, value: Optional[str]) -> Optional[str]:
+        if value is not None:
+            try:
+                atomic_weight(value)
+            except ValueError:
+                raise ValueError(f"{value!r} is not an element symbol (e.g. Cd, Se, Pb)") from None
+        return value
+
+    @field_validator("by", mode="after")
+    @classmethod
+    def _keys(cls, value: tuple[str, ...]) -> tuple[str, ...]:
+        return ledger.REPORTS[cls.report].check_by(value)  # UnknownGroupKey is a ValueError: 422
+
+    def filters(self) -> dict:
+        return {"element": self.element}
+
+
+class WasteQuery(_ReportQuery):
+    report: ClassVar[str] = "waste"
+    since: Optional[dt.date] = None
+    until: Optional[dt.date] = None
+
+    @model_validator(mode="after")
+    def _order(self):
+        if self.since and self.until and self.since > self.until:
+            raise ValueError(f"since ({self.since}) is after until ({self.until})")
+        return self
+
+    def filters(self) -> dict:
+        return {**super().filters(), "since": self.since, "until": self.until}
+
+
+class InventoryQuery(_ReportQuery):
+    report: ClassVar[str] = "inventory"
+
+
+def _parse(model: type[_ReportQuery]) -> _ReportQuery:
+    return model.model_validate(request.args.to_dict())
+
+
+def render(frame, query: _ReportQuery):
+    """The frame as the JSON envelope or as a CSV/XLSX attachment."""
+    if query.format == "json":
+        return jsonify({"report": query.report, "by": list(query.by), "columns": list(frame.columns),
+                        "rows": frame.to_dict(orient="records"), "count": len(frame),
+                        "units": ledger.UNITS, "caution": ledger.CAUTION})
+    stamp = dt.datetime.now(dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
+    if query.format == "csv":
+        body, mimetype = ledger.to_csv_bytes(frame), "text/csv; charset=utf-8"
+    else:
+        body, mimetype = ledger.to_xlsx_bytes(frame, sheet=query.report), XLSX
+    filename = f"dotledger-{query.report}-{stamp}.{query.format}"
+    return Response(body, content_type=mimetype, headers={"Content-Disposition": f'attachment; filename="{filename}"'})
+
+
+@bp.get("/reports/waste", endpoint="report_waste")
+def report_waste():
+    query = _parse(WasteQuery)
+    frame = ledger.run_report(get_session(), "waste", query.by, lab_ids=lab_scope(), **query.filters())
+    return render(frame, query)
+
+
+@bp.get("/reports/inventory", endpoint="report_inventory")
+def report_inventory():
+    query = _parse(InventoryQuery)
+    frame = ledger.run_report(get_session(), "inventory", query.by, lab_ids=lab_scope(), **query.filters())
+    return render(frame, query)

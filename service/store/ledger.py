@@ -1,0 +1,194 @@
+"""Ledger reports: element mass leaving as waste and on hand, as pandas DataFrames.
+
+Every figure is summed in SQL (GROUP BY with SUM over the stored integer µg), so a report
+over a million waste entries moves only its groups, never the entries, into Python.
+Entries are signed (a reversal is negative), so the sums are net. Months are the UTC
+calendar month of the entry's ``at``, bucketed in SQL as ``'YYYY-MM'``.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import io
+from dataclasses import dataclass
+from typing import Callable, Iterable, Optional, Sequence
+
+import pandas as pd
+from sqlalchemy import BigInteger, String, cast, func, literal_column, select, union_all
+from sqlalchemy.orm import Session
+
+from service.store.models import (
+    Lab,
+    Location,
+    Mixture,
+    MixtureElement,
+    Stock,
+    StockElement,
+    WasteContainer,
+    WasteEntry,
+    WasteEntryElement,
+)
+
+__all__ = ["CAUTION", "UNITS", "UnknownGroupKey", "Report", "REPORTS", "waste_by", "inventory_on_hand",
+           "run_report", "to_csv_bytes", "to_xlsx_bytes"]
+
+CAUTION = ("These figures are records for the site's own use, summed from the entries as recorded. "
+           "Waste classification and reporting obligations rest with local regulations and the site safety officer.")
+UNITS = {"mass_ug": "µg", "mass_mg": "mg"}
+
+WASTE_KEYS = ("element", "stream", "lab", "container", "month")
+INVENTORY_KEYS = ("element", "location", "lab")
+
+
+class UnknownGroupKey(ValueError):
+    """A ``by`` key a report cannot group by; carries the key, the report and the allowed keys."""
+
+    def __init__(self, report: str, key: str, allowed: Sequence[str]) -> None:
+        self.report, self.key, self.allowed = report, key, tuple(allowed)
+        super().__init__(f"the {report} report cannot group by {key!r}; choose from {', '.join(allowed)}")
+
+
+def _month(session: Session, column):
+    """'YYYY-MM' of a (naive UTC) timestamp column, in the session's SQL dialect."""
+    dialect = session.get_bind().dialect.name
+    # Literal format strings (not bound parameters), so SELECT and GROUP BY hold the same expression.
+    if dialect == "sqlite":
+        return func.strftime(literal_column("'%Y-%m'"), column, type_=String)
+    if dialect == "postgresql":
+        return func.to_char(column, literal_column("'YYYY-MM'"), type_=String)
+    raise NotImplementedError(f"month bucketing is written for SQLite and PostgreSQL, not {dialect!r}")
+
+
+def _start_of(day: dt.date | dt.datetime) -> dt.datetime:
+    if isinstance(day, dt.datetime):
+        return day if day.tzinfo else day.replace(tzinfo=dt.timezone.utc)
+    return dt.datetime(day.year, day.month, day.day, tzinfo=dt.timezone.utc)
+
+
+def _frame(session: Session, query, columns: list[str]) -> pd.DataFrame:
+    frame = pd.DataFrame.from_records(session.execute(query).all(), columns=[*columns, "mass_ug"])
+    frame["mass_ug"] = frame["mass_ug"].astype("int64")
+    frame["mass_mg"] = frame["mass_ug"] / 1000
+    return frame
+
+
+def waste_by(session: Session, by: Sequence[str], *, since: dt.date | dt.datetime | None = None,
+             until: dt.date | dt.datetime | None = None, lab_ids: Optional[Iterable[int]] = None,
+             element: Optional[str] = None) -> pd.DataFrame:
+    """Net element mass put into waste containers, grouped by ``by`` (keys of ``WASTE_KEYS``).
+
+    ``since`` is inclusive; ``until`` is inclusive of the whole day when it is a date (a
+    datetime is an exclusive bound). Columns: the keys (lab code, container label, stream,
+    'YYYY-MM') in the order given, then ``mass_ug`` (int) and ``mass_mg`` (float).
+    """
+    by = REPORTS["waste"].check_by(by)
+    keys = {"element": WasteEntryElement.element, "stream": WasteContainer.stream, "lab": Lab.code,
+            "container": WasteContainer.label, "month": _month(session, WasteEntry.at)}
+    groups = [keys[k].label(k) for k in by]
+    query = (
+        select(*groups, cast(func.coalesce(func.sum(WasteEntryElement.mass_ug), 0), BigInteger))
+        .select_from(WasteEntryElement)
+        .join(WasteEntry, WasteEntry.id == WasteEntryElement.entry_id)
+        .join(WasteContainer, WasteContainer.id == WasteEntry.container_id)
+    )
+    if "lab" in by:  # every container has a lab: the join only adds the code
+        query = query.join(Lab, Lab.id == WasteContainer.lab_id)
+    if since is not None:
+        query = query.where(WasteEntry.at >= _start_of(since))
+    if until is not None:
+        end = _start_of(until) if isinstance(until, dt.datetime) else _start_of(until + dt.timedelta(days=1))
+        query = query.where(WasteEntry.at < end)
+    if lab_ids is not None:
+        query = query.where(WasteContainer.lab_id.in_(sorted(lab_ids)))
+    if element is not None:
+        query = query.where(WasteEntryElement.element == element)
+    if groups:
+        query = query.group_by(*[keys[k] for k in by]).order_by(*[keys[k] for k in by])
+    return _frame(session, query, list(by))
+
+
+def inventory_on_hand(session: Session, by: Sequence[str] = ("element", "location"), *,
+                      lab_ids: Optional[Iterable[int]] = None, element: Optional[str] = None) -> pd.DataFrame:
+    """Element mass on hand in active stocks and mixtures (both together), grouped by ``by``.
+
+    ``location`` expands to the columns building, room and storage. Columns: the keys, then
+    ``mass_ug`` (int) and ``mass_mg`` (float).
+    """
+    by = REPORTS["inventory"].check_by(by)
+    held = []
+    for rows, fk, owner in ((StockElement, StockElement.stock_id, Stock),
+                            (MixtureElement, MixtureElement.mixture_id, Mixture)):
+        part = (select(rows.element.label("element"), owner.location_id.label("location_id"),
+                       owner.lab_id.label("lab_id"), rows.mass_ug.label("mass_ug"))
+                .join(owner, owner.id == fk).where(owner.retired_at.is_(None)))
+        if lab_ids is not None:
+            part = part.where(owner.lab_id.in_(sorted(lab_ids)))
+        if element is not None:
+            part = part.where(rows.element == element)
+        held.append(part)
+    held = union_all(*held).subquery("held")
+    keys = {"element": [("element", held.c.element)], "lab": [("lab", Lab.code)],
+            "location": [("building", Location.building), ("room", Location.room), ("storage", Location.storage)]}
+    groups = [pair for k in by for pair in keys[k]]
+    query = (
+        select(*[column.label(name) for name, column in groups],
+               cast(func.coalesce(func.sum(held.c.mass_ug), 0), BigInteger))
+        .select_from(held)
+        .join(Location, Location.id == held.c.location_id)
+        .join(Lab, Lab.id == held.c.lab_id)
+    )
+    if groups:
+        plain = [column for _, column in groups]
+        query = query.group_by(*plain).order_by(*plain)
+    return _frame(session, query, [name for name, _ in groups])
+
+
+@dataclass(frozen=True)
+class Report:
+    """A named report: the keys it may group by, its default grouping and its builder."""
+
+    name: str
+    keys: tuple[str, ...]
+    default_by: tuple[str, ...]
+    build: Callable[..., pd.DataFrame]
+
+    def check_by(self, by: Optional[Sequence[str]]) -> tuple[str, ...]:
+        """``by`` without repeats, or the default when empty; UnknownGroupKey for a foreign key."""
+        if not by:
+            return self.default_by
+        for key in by:
+            if key not in self.keys:
+                raise UnknownGroupKey(self.name, key, self.keys)
+        return tuple(dict.fromkeys(by))
+
+
+REPORTS = {
+    "waste": Report("waste", WASTE_KEYS, ("element", "stream", "month"), waste_by),
+    "inventory": Report("inventory", INVENTORY_KEYS, ("element", "location"), inventory_on_hand),
+}
+
+
+def run_report(session: Session, name: str, by: Optional[Sequence[str]] = None, **filters) -> pd.DataFrame:
+    """The report ``name`` (a key of REPORTS) grouped by ``by`` with its filters."""
+    report = REPORTS[name]
+    return report.build(session, report.check_by(by), **filters)
+
+
+def to_csv_bytes(df: pd.DataFrame, *, caution: Optional[str] = CAUTION) -> bytes:
+    """UTF-8 CSV; the first line is ``# <caution>`` unless ``caution`` is None.
+
+    Read it back with ``pd.read_csv(buffer, skiprows=1)``.
+    """
+    head = f"# {caution}\n" if caution else ""
+    return (head + df.to_csv(index=False, lineterminator="\n")).encode("utf-8")
+
+
+def to_xlsx_bytes(df: pd.DataFrame, *, caution: Optional[str] = CAUTION, sheet: str = "report") -> bytes:
+    """An XLSX workbook: the table on the first sheet, the caution and units on a sheet "about"."""
+    buffer = io.BytesIO()
+    with pd.ExcelWriter(buffer, engine="openpyxl") as writer:
+        df.to_excel(writer, sheet_name=sheet, index=False)
+        notes = [caution] if caution else []
+        notes += [f"{column}: {unit}" for column, unit in UNITS.items()]
+        pd.DataFrame({"about": notes}).to_excel(writer, sheet_name="about", index=False)
+    return buffer.getvalue()
