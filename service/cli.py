@@ -67,13 +67,15 @@ def init() -> None:
 @main.command()
 def demo() -> None:
     """Load the invented demonstration scenario (safe to run again)."""
-    from service.store.demo import SITE_NAME, load_demo, load_demo_procedures
+    from service.store.demo import SITE_NAME, load_demo, load_demo_procedures, load_demo_waste
 
     app = _app()
     _init(app)
     with _command_session(app, "demo") as session:
         added, passwords = load_demo(session, _catalogue(app))
         added["procedures"] = load_demo_procedures(session, app.extensions["dotledger.rules"])
+        added["waste containers"] = load_demo_waste(session, app.extensions["dotledger.rules"],
+                                                    app.config["BALANCE_TOLERANCE"], app.config["BALANCE_ELEMENTS"])
     click.echo(f"demo scenario {SITE_NAME!r}: " + ", ".join(f"{n} {k} added" for k, n in added.items()))
     if passwords:
         click.echo("demo accounts (passwords are shown only now; note them):")
@@ -218,3 +220,67 @@ def preview(procedure_id: int, scales: str) -> None:
             for f in findings:
                 click.echo(f"  [{f.level}] {f.rule_id} ({f.pack}@{f.pack_version}): {f.message}")
     click.echo("\nSuggestions only: approval rests with the site safety officer and local regulations.")
+
+
+def _report_frame(name: str, by: str | None, since, until, element: str | None):
+    """The ledger report ``name`` from the configured database (read-only session)."""
+    from service.store import ledger
+    from service.store.db import session_scope
+
+    keys = [part.strip() for part in by.split(",") if part.strip()] if by else None
+    filters = {"element": element}
+    if name == "waste":
+        filters.update(since=since.date() if since else None, until=until.date() if until else None)
+    elif since or until:
+        raise click.UsageError("--since and --until apply to the waste report only")
+    try:
+        keys = ledger.REPORTS[name].check_by(keys)
+    except ledger.UnknownGroupKey as exc:
+        raise click.BadParameter(str(exc), param_hint="--by") from None
+    app = _app()
+    with session_scope(_sessions(app)) as session:
+        return ledger.run_report(session, name, keys, **filters)
+
+
+_REPORT_OPTIONS = (
+    click.argument("name", type=click.Choice(["waste", "inventory"])),
+    click.option("--by", help="Comma-separated group keys (waste: element,stream,lab,container,month; "
+                              "inventory: element,location,lab)."),
+    click.option("--since", type=click.DateTime(["%Y-%m-%d"]), help="Waste from this day (UTC), inclusive."),
+    click.option("--until", type=click.DateTime(["%Y-%m-%d"]), help="Waste up to this day (UTC), inclusive."),
+    click.option("--element", help="Only this element (e.g. Cd)."),
+)
+
+
+def _report_options(command):
+    for option in reversed(_REPORT_OPTIONS):
+        command = option(command)
+    return command
+
+
+@main.command()
+@_report_options
+def report(name: str, by: str | None, since, until, element: str | None) -> None:
+    """Print a ledger report (masses in mg): waste leaving, or inventory on hand."""
+    from service.store.ledger import CAUTION
+
+    frame = _report_frame(name, by, since, until, element).drop(columns="mass_ug")
+    if frame.empty:
+        click.echo("no records match")
+    else:
+        click.echo(frame.to_string(index=False, float_format=lambda mg: f"{mg:,.3f}"))
+    click.echo(f"\n{CAUTION}")
+
+
+@main.command()
+@_report_options
+@click.option("--format", "fmt", type=click.Choice(["csv", "xlsx"]), default="csv", show_default=True)
+@click.option("--output", required=True, type=click.Path(dir_okay=False, path_type=Path), help="File to write.")
+def export(name: str, by: str | None, since, until, element: str | None, fmt: str, output: Path) -> None:
+    """Write a ledger report to a CSV or XLSX file (masses in µg and mg)."""
+    from service.store.ledger import CAUTION, to_csv_bytes, to_xlsx_bytes
+
+    frame = _report_frame(name, by, since, until, element)
+    output.write_bytes(to_csv_bytes(frame) if fmt == "csv" else to_xlsx_bytes(frame, sheet=name))
+    click.echo(f"wrote {len(frame)} row(s) of the {name} report to {output}")
+    click.echo(CAUTION)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+from decimal import Decimal
 from pathlib import Path
 from typing import Any, Mapping, Optional
 
@@ -22,6 +23,10 @@ _SETTINGS: dict[str, tuple[Any, Any]] = {
     "LOGIN_MAX_FAILURES_PER_ACCOUNT": (5, int),
     "LOGIN_MAX_FAILURES_PER_ADDRESS": (20, int),
     "LOGIN_WINDOW_S": (900, int),
+    # Share of a run's input (per element) that may stay unaccounted for the run to close.
+    "BALANCE_TOLERANCE": ("0.05", lambda v: Decimal(str(v))),
+    # Elements a run's mass balance follows (carbon, hydrogen and the like from solvents are not).
+    "BALANCE_ELEMENTS": ("Cd,Se,Te,Pb,Zn,In,Cs,Hg,As,Ag,Cu", lambda v: tuple(e.strip() for e in str(v).split(",") if e.strip())),
 }
 
 

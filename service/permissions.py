@@ -55,6 +55,27 @@ MATRIX: dict[str, frozenset[str]] = {
     "api.decline_procedure": frozenset({"safety_officer"}),
     "api.retire_procedure": frozenset({"safety_officer", "lab_manager", "admin"}),
     "api.review_queue": frozenset({"safety_officer", "auditor", "admin"}),
+    # ledger reports (waste leaving, inventory on hand): read-only, everyone; researchers lab-scoped
+    "api.report_waste": EVERYONE,
+    "api.report_inventory": EVERYONE,
+    # runs: researchers record their batches
+    "api.list_runs": EVERYONE,
+    "api.read_runs": EVERYONE,
+    "api.read_run_balance": EVERYONE,
+    "api.create_runs": frozenset({"researcher", "lab_manager", "admin"}),
+    "api.add_run_output": frozenset({"researcher", "lab_manager", "admin"}),
+    "api.add_run_loss": frozenset({"researcher", "lab_manager", "admin"}),
+    "api.close_run": frozenset({"researcher", "lab_manager", "admin"}),
+    # waste containers: researchers add entries; the safety officer and lab manager run the containers
+    "api.list_waste_containers": EVERYONE,
+    "api.read_waste_containers": EVERYONE,
+    "api.list_waste_entries": EVERYONE,
+    "api.create_waste_containers": frozenset({"safety_officer", "lab_manager", "admin"}),
+    "api.add_waste_entry": frozenset({"researcher", "lab_manager", "safety_officer", "admin"}),
+    "api.reverse_waste_entry": frozenset({"researcher", "lab_manager", "safety_officer", "admin"}),
+    "api.mark_full_waste_container": frozenset({"researcher", "lab_manager", "safety_officer", "admin"}),
+    "api.request_pickup_waste_container": frozenset({"lab_manager", "safety_officer", "admin"}),
+    "api.collect_waste_container": frozenset({"safety_officer", "admin"}),
     # pages
     "web.overview": EVERYONE,
     "web.stocks": EVERYONE,

@@ -32,6 +32,16 @@ __all__ = [
     "ProcedureIn",
     "ProcedurePatch",
     "DecisionIn",
+    "ElementAmountIn",
+    "AssayIn",
+    "ContainerIn",
+    "ContainerPatch",
+    "EntryComponentIn",
+    "EntryIn",
+    "ReverseIn",
+    "RunIn",
+    "OutputIn",
+    "LossIn",
 ]
 
 LocationKind = Literal["storage", "satellite_accumulation_area"]
@@ -221,3 +231,80 @@ class ProcedurePatch(_Body):
 
 class DecisionIn(_Body):
     comment: Optional[str] = Field(default=None, max_length=5000)
+
+
+Stream = Literal["non_halogenated_solvent_heavy_metals", "halogenated_solvent_heavy_metals", "aqueous_heavy_metals",
+                 "contaminated_solids", "sharps"]
+
+
+class ElementAmountIn(_Body):
+    element: str = Field(min_length=1, max_length=3)
+    mass: str = Field(description='e.g. "2.5 mg"')
+
+
+class AssayIn(_Body):
+    element: str = Field(min_length=1, max_length=3)
+    concentration: str = Field(description='measured concentration, e.g. "12.5 mg/L" (ICP-OES of a digest)')
+    volume: str = Field(description='volume the concentration applies to, e.g. "4.0 mL"')
+
+
+class ContainerIn(_Body):
+    label: str = Field(min_length=1, max_length=80)
+    lab_id: int
+    location_id: int
+    stream: Stream
+    capacity: str = Field(description='"20 L" for liquids, "5 kg" for solids')
+    acute_hazardous: bool = False
+
+
+class ContainerPatch(_Body):
+    location_id: Optional[int] = None
+    acute_hazardous: Optional[bool] = None
+
+
+class EntryComponentIn(_Body):
+    substance_id: int
+    volume: str
+
+
+class EntryIn(_Body):
+    description: str = Field(min_length=1, max_length=2000)
+    run_id: Optional[int] = None
+    volume: Optional[str] = Field(default=None, description="liquid containers")
+    mass: Optional[str] = Field(default=None, description="solid containers")
+    components: list[EntryComponentIn] = Field(default_factory=list, max_length=50)
+    elements: list[ElementAmountIn] = Field(default_factory=list, max_length=30)
+    filterable_solids_percent: Optional[float] = Field(default=None, ge=0, le=100)
+
+
+class ReverseIn(_Body):
+    reason: str = Field(min_length=3, max_length=2000)
+
+
+class RunIn(_Body):
+    procedure_id: int
+    scale: float = Field(default=1.0, gt=0, le=1000)
+    draws: Optional[list[DrawIn]] = Field(default=None, description="actual draws; omitted: the planned ones × scale")
+    note: Optional[str] = Field(default=None, max_length=5000)
+
+
+class OutputIn(_Body):
+    label: str = Field(min_length=1, max_length=120)
+    method: Literal["measured", "by_difference"]
+    description: Optional[str] = Field(default=None, max_length=2000)
+    elements: list[ElementAmountIn] = Field(default_factory=list, max_length=30)
+    assays: list[AssayIn] = Field(default_factory=list, max_length=30)
+
+    @model_validator(mode="after")
+    def _basis(self) -> "OutputIn":
+        given = bool(self.elements) + bool(self.assays)
+        if self.method == "measured" and given != 1:
+            raise ValueError("a measured output gives either element masses or assays")
+        if self.method == "by_difference" and given:
+            raise ValueError("a by-difference output takes no masses: it is what the balance leaves")
+        return self
+
+
+class LossIn(_Body):
+    description: str = Field(min_length=3, max_length=2000)
+    elements: list[ElementAmountIn] = Field(min_length=1, max_length=30)

@@ -16,11 +16,11 @@ def test_init_then_demo_twice(sqlite_url, monkeypatch):
     assert "substance(s) added" in first.output
     demo = runner.invoke(main, ["demo"])
     assert demo.exit_code == 0, demo.output
-    assert "1 labs added, 4 locations added, 16 stocks added, 3 mixtures added, 4 accounts added, 3 procedures added" in demo.output
+    assert "1 labs added, 4 locations added, 16 stocks added, 3 mixtures added, 4 accounts added, 3 procedures added, 4 waste containers added" in demo.output
     passwords = dict(line.split() for line in demo.output.splitlines() if line.startswith("  ") and "@" in line)
     assert set(passwords) == {"researcher@example.org", "safety@example.org", "manager@example.org", "admin@example.org"}
     again = runner.invoke(main, ["demo"])
-    assert "0 labs added, 0 locations added, 0 stocks added, 0 mixtures added, 0 accounts added, 0 procedures added" in again.output
+    assert "0 labs added, 0 locations added, 0 stocks added, 0 mixtures added, 0 accounts added, 0 procedures added, 0 waste containers added" in again.output
     assert not any(p in again.output for p in passwords.values())
 
     client = create_app({"DATABASE_URL": sqlite_url}).test_client()

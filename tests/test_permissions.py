@@ -58,6 +58,7 @@ def _ident_for(endpoint: str, ids: dict[str, int]) -> int:
 
 def _url(rule, ids: dict[str, int], app) -> str:
     values = {"ident": _ident_for(rule.endpoint, ids)} if "ident" in rule.arguments else {}
+    values.update({name: 1 for name in rule.arguments if name != "ident"})  # e.g. entry_id
     return rule.build(values, append_unknown=False)[1]
 
 

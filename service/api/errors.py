@@ -7,7 +7,6 @@ answered with a generic message.
 
 from __future__ import annotations
 
-import dataclasses
 import logging
 
 from flask import Flask, jsonify, render_template, request
@@ -86,7 +85,9 @@ def init_app(app: Flask) -> None:
 
     @app.errorhandler(Blocked)
     def _blocked(exc: Blocked):
-        findings = [dataclasses.asdict(f) if dataclasses.is_dataclass(f) else f for f in exc.findings]
+        from service.api.serialize import finding
+
+        findings = [finding(f) for f in exc.findings]
         return error_response(409, "blocked", str(exc), {"findings": findings})
 
     @app.errorhandler(Conflict)

@@ -2,15 +2,13 @@
 
 from __future__ import annotations
 
-from dataclasses import asdict
-
 from flask import current_app, jsonify, request
 from pydantic import BaseModel, ConfigDict, Field, field_validator
 
 from service import schemas
 from service.api import bp
 from service.api.inventory import json_body
-from service.api.serialize import element_rows_from
+from service.api.serialize import element_rows_from, finding
 from service.auth import check_lab, current_user, lab_scope
 from service.store import inventory, procedures
 from service.store.db import get_session
@@ -22,10 +20,6 @@ CAUTION = ("Findings are suggestions from the active rule packs. Approval rests 
 
 def active_rules():
     return current_app.extensions["dotledger.rules"]
-
-
-def finding_dict(finding) -> dict:
-    return asdict(finding)
 
 
 def _draw(draw, reagent) -> dict:
@@ -60,7 +54,7 @@ def dump_procedure(proc: Procedure, *, with_findings: bool = True) -> dict:
     }
     if with_findings:
         findings = procedures.findings_of(session, proc, active_rules())
-        out["findings"] = [finding_dict(f) for f in findings]
+        out["findings"] = [finding(f) for f in findings]
         out["highest_level"] = procedures.highest_level(findings)
         out["rule_packs"] = [{"pack": n, "version": v} for n, v in active_rules().packs]
         out["caution"] = CAUTION
@@ -166,7 +160,7 @@ def preview(ident: int):
     rows = procedures.preview(get_session(), proc, active_rules(), query.scales)
     return jsonify({"procedure_id": proc.id, "caution": CAUTION,
                     "scales": [{"scale": s, "highest_level": lvl, "element_masses_per_batch": element_rows_from(m),
-                                "findings": [finding_dict(f) for f in fs]} for s, lvl, m, fs in rows]})
+                                "findings": [finding(f) for f in fs]} for s, lvl, m, fs in rows]})
 
 
 @bp.get("/review_queue", endpoint="review_queue")

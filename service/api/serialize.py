@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 from typing import Any, Iterable
 
@@ -124,6 +125,15 @@ def mixture(record: Mixture) -> dict[str, Any]:
         ],
         **_lifecycle(record),
     }
+
+
+def finding(record) -> dict[str, Any]:
+    """A rule finding as JSON: Decimals as numbers, the suggested code as a plain object."""
+    out = dataclasses.asdict(record)
+    code = record.suggested_code
+    out["suggested_code"] = code.model_dump() if code is not None else None
+    out["threshold_value"] = float(record.threshold_value)
+    return out
 
 
 _DUMPERS = {Lab: lab, Location: location, Substance: substance, Stock: stock, Mixture: mixture}

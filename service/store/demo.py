@@ -188,3 +188,61 @@ def load_demo_procedures(session: Session, rules) -> int:
                                   "run in fume hood H2 with face shield for the injection.", rules)
         added += 1
     return added
+
+
+CONTAINERS = [
+    ("NG-W01", "non_halogenated_solvent_heavy_metals", "20 L"),
+    ("NG-W02", "halogenated_solvent_heavy_metals", "10 L"),
+    ("NG-W03", "aqueous_heavy_metals", "10 L"),
+    ("NG-W04", "contaminated_solids", "5 kg"),
+]
+
+
+def load_demo_waste(session: Session, rules, tolerance, elements) -> int:
+    """Four containers in the hood's satellite accumulation area and one closed CdSe run."""
+    from service.schemas import ContainerIn, ElementAmountIn, EntryComponentIn, EntryIn, OutputIn, RunIn
+    from service.store import runs, waste
+    from service.store.models import Procedure, WasteContainer
+
+    lab = session.scalar(select(Lab).where(Lab.code == LAB.code))
+    saa = session.scalar(select(Location).where(Location.kind == "satellite_accumulation_area", Location.lab_id == lab.id))
+    added = 0
+    ids = {}
+    for label, stream, capacity in CONTAINERS:
+        found = session.scalar(select(WasteContainer).where(WasteContainer.label == label))
+        if found is None:
+            found = waste.create_container(session, ContainerIn(label=label, lab_id=lab.id, location_id=saa.id,
+                                                                stream=stream, capacity=capacity))
+            added += 1
+        ids[label] = found.id
+    proc = session.scalar(select(Procedure).where(Procedure.title == PROCEDURES[0][0], Procedure.state == "approved"))
+    if added == 0 or proc is None:
+        return added
+    researcher = session.scalar(select(User).where(User.email == "researcher@example.org"))
+    session.info["actor"] = {"user_id": researcher.id, "label": researcher.email}
+    run = runs.start_run(session, RunIn(procedure_id=proc.id), researcher, rules)
+    cd_in = sum(d.element_mass_ug.get("Cd", 0) for d in run.draws)
+    se_in = sum(d.element_mass_ug.get("Se", 0) for d in run.draws)
+    # Invented split of the metals: 70 % in the product, the rest in two supernatants and the solids.
+    product = {"Cd": cd_in * 70 // 100, "Se": se_in * 70 // 100}
+    first = {"Cd": cd_in * 22 // 100, "Se": se_in * 22 // 100}
+    second = {"Cd": cd_in * 6 // 100, "Se": se_in * 6 // 100}
+    solids = {s: total - product[s] - first[s] - second[s] for s, total in (("Cd", cd_in), ("Se", se_in))}
+
+    def amounts(masses):
+        return [ElementAmountIn(element=s, mass=f"{ug} ug") for s, ug in masses.items()]
+
+    runs.add_output(session, run, OutputIn(label="CdSe cores in hexane (ICP-OES of a digest)", method="measured",
+                                           elements=amounts(product)))
+    acetone = session.scalar(select(Substance.id).where(Substance.key == "acetone"))
+    ode = session.scalar(select(Substance.id).where(Substance.key == "1-octadecene"))
+    for description, masses, volume in (("first supernatant (ODE, acetone)", first, "25 mL"),
+                                        ("second supernatant, acetone wash", second, "20 mL")):
+        waste.add_entry(session, ids["NG-W01"], EntryIn(
+            run_id=run.id, description=description, volume=volume, elements=amounts(masses),
+            components=[EntryComponentIn(substance_id=acetone, volume="15 mL"),
+                        EntryComponentIn(substance_id=ode, volume="5 mL")]), researcher.id)
+    waste.add_entry(session, ids["NG-W04"], EntryIn(run_id=run.id, description="gloves, pipette tips, wipes",
+                                                    mass="35 g", elements=amounts(solids)), researcher.id)
+    runs.close_run(session, run, tolerance, elements)
+    return added

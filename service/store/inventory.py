@@ -25,11 +25,13 @@ from service.store.models import (
     Mixture,
     MixtureComponent,
     Procedure,
+    Run,
     MixtureElement,
     Stock,
     StockElement,
     Substance,
     User,
+    WasteContainer,
     utcnow,
 )
 
@@ -49,7 +51,7 @@ __all__ = [
 
 T = TypeVar("T")
 _ENTITY = {Lab: "lab", Location: "location", Substance: "substance", Stock: "stock", Mixture: "mixture", User: "user",
-           Procedure: "procedure"}
+           Procedure: "procedure", Run: "run", WasteContainer: "waste container"}
 _UNIQUE = {Lab: ("code",), Substance: ("key",), Stock: ("label",), Mixture: ("label",)}
 
 
@@ -169,7 +171,7 @@ def _quantity_micro(amount: str) -> tuple[str, int]:
     return kind, int(to_decimal(quantity, unit).to_integral_value())
 
 
-def _stock_elements(stock: Stock) -> list[StockElement]:
+def stock_elements(stock: Stock) -> list[StockElement]:
     substance = stock.substance
     masses = substance_element_masses_ug(
         stock.amount_text,
@@ -189,7 +191,7 @@ def create_stock(session: Session, body: StockIn) -> Stock:
     kind, micro = _quantity_micro(amount)
     stock = Stock(**values, amount_text=amount, quantity_kind=kind, quantity_micro=micro)
     stock.substance = session.get(Substance, body.substance_id)
-    stock.elements = _stock_elements(stock)
+    stock.elements = stock_elements(stock)
     session.add(stock)
     session.flush()
     return stock
@@ -205,7 +207,7 @@ def update_stock(session: Session, stock: Stock, patch: StockPatch) -> Stock:
         stock.amount_text = amount
     for key, value in values.items():
         setattr(stock, key, value)
-    stock.elements = _stock_elements(stock)
+    stock.elements = stock_elements(stock)
     session.flush()
     return stock
 
@@ -213,7 +215,7 @@ def update_stock(session: Session, stock: Stock, patch: StockPatch) -> Stock:
 # --- mixtures -----------------------------------------------------------------
 
 
-def _mixture_elements(mixture: Mixture) -> list[MixtureElement]:
+def mixture_elements(mixture: Mixture) -> list[MixtureElement]:
     components = [
         Component(
             substance=c.substance.name,
@@ -254,7 +256,7 @@ def create_mixture(session: Session, body: MixtureIn) -> Mixture:
                 volume_fraction=None if comp.volume_fraction is None else str(comp.volume_fraction),
             )
         )
-    mixture.elements = _mixture_elements(mixture)
+    mixture.elements = mixture_elements(mixture)
     session.add(mixture)
     session.flush()
     return mixture
@@ -269,7 +271,7 @@ def update_mixture(session: Session, mixture: Mixture, patch: MixturePatch) -> M
         mixture.volume_text = volume
     for key, value in values.items():
         setattr(mixture, key, value)
-    mixture.elements = _mixture_elements(mixture)
+    mixture.elements = mixture_elements(mixture)
     session.flush()
     return mixture
 

@@ -42,6 +42,16 @@ __all__ = [
     "ReagentDraw",
     "WastePlanItem",
     "ProcedureDecision",
+    "STREAMS",
+    "CONTAINER_STATES",
+    "Run",
+    "RunDraw",
+    "RunOutput",
+    "RunLoss",
+    "WasteContainer",
+    "WasteEntry",
+    "WasteEntryComponent",
+    "WasteEntryElement",
     "utcnow",
 ]
 
@@ -324,3 +334,118 @@ class ProcedureDecision(Base):
     comment: Mapped[Optional[str]] = mapped_column(Text)
     highest_level: Mapped[Optional[str]] = mapped_column(String(10))
     at: Mapped[dt.datetime] = mapped_column(default=utcnow)
+
+
+# --- runs and waste -------------------------------------------------------------
+
+STREAMS = (
+    "non_halogenated_solvent_heavy_metals",
+    "halogenated_solvent_heavy_metals",
+    "aqueous_heavy_metals",
+    "contaminated_solids",
+    "sharps",
+)
+CONTAINER_STATES = ("open", "full", "pickup_requested", "collected")
+
+
+class Run(Base):
+    """One batch made under an approved procedure."""
+
+    __tablename__ = "runs"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    procedure_id: Mapped[int] = mapped_column(ForeignKey("procedures.id"), index=True)
+    lab_id: Mapped[int] = mapped_column(ForeignKey("labs.id"), index=True)
+    researcher_id: Mapped[int] = mapped_column(ForeignKey("users.id"))
+    scale: Mapped[float] = mapped_column(Float, default=1.0)
+    state: Mapped[str] = mapped_column(String(10), default="open")  # open | closed
+    note: Mapped[Optional[str]] = mapped_column(Text)
+    started_at: Mapped[dt.datetime] = mapped_column(default=utcnow)
+    closed_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
+    draws: Mapped[list["RunDraw"]] = relationship(cascade="all, delete-orphan", lazy="selectin", order_by="RunDraw.id")
+    outputs: Mapped[list["RunOutput"]] = relationship(cascade="all, delete-orphan", lazy="selectin",
+                                                      order_by="RunOutput.id")
+    losses: Mapped[list["RunLoss"]] = relationship(cascade="all, delete-orphan", lazy="selectin", order_by="RunLoss.id")
+
+
+class RunDraw(Base):
+    """What a run actually took from a stock or mixture (the inventory was decremented)."""
+
+    __tablename__ = "run_draws"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    run_id: Mapped[int] = mapped_column(ForeignKey("runs.id"), index=True)
+    stock_id: Mapped[Optional[int]] = mapped_column(ForeignKey("stocks.id"))
+    mixture_id: Mapped[Optional[int]] = mapped_column(ForeignKey("mixtures.id"))
+    amount_text: Mapped[str] = mapped_column(String(60))
+    element_mass_ug: Mapped[dict[str, Any]] = mapped_column(default=dict)
+
+
+class RunOutput(Base):
+    """A product of a run and how its metal content is known."""
+
+    __tablename__ = "run_outputs"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    run_id: Mapped[int] = mapped_column(ForeignKey("runs.id"), index=True)
+    label: Mapped[str] = mapped_column(String(120))
+    method: Mapped[str] = mapped_column(String(20))  # measured | estimated | by_difference
+    description: Mapped[Optional[str]] = mapped_column(Text)
+    element_mass_ug: Mapped[dict[str, Any]] = mapped_column(default=dict)
+    relative_uncertainty: Mapped[Optional[float]] = mapped_column(Float)
+    basis: Mapped[dict[str, Any]] = mapped_column(default=dict)  # assay or estimate inputs, as entered
+
+
+class RunLoss(Base):
+    __tablename__ = "run_losses"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    run_id: Mapped[int] = mapped_column(ForeignKey("runs.id"), index=True)
+    description: Mapped[str] = mapped_column(Text)
+    element_mass_ug: Mapped[dict[str, Any]] = mapped_column(default=dict)
+
+
+class WasteContainer(_Lifecycle, Base):
+    __tablename__ = "waste_containers"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    label: Mapped[str] = mapped_column(String(80), unique=True)
+    lab_id: Mapped[int] = mapped_column(ForeignKey("labs.id"), index=True)
+    location_id: Mapped[int] = mapped_column(ForeignKey("locations.id"), index=True)
+    stream: Mapped[str] = mapped_column(String(60), index=True)
+    form: Mapped[str] = mapped_column(String(10))  # liquid | solid
+    capacity_text: Mapped[str] = mapped_column(String(60))
+    capacity_micro: Mapped[int] = mapped_column(BigInteger)  # µL for liquids, µg for solids
+    acute_hazardous: Mapped[bool] = mapped_column(default=False)
+    state: Mapped[str] = mapped_column(String(20), default="open", index=True)
+    first_entry_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
+    full_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
+    pickup_requested_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
+    collected_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
+
+
+class WasteEntry(Base):
+    """What one run or clean-up put into a container. Append-only: corrections reverse."""
+
+    __tablename__ = "waste_entries"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    container_id: Mapped[int] = mapped_column(ForeignKey("waste_containers.id"), index=True)
+    run_id: Mapped[Optional[int]] = mapped_column(ForeignKey("runs.id"), index=True)
+    actor_id: Mapped[Optional[int]] = mapped_column(ForeignKey("users.id"))
+    at: Mapped[dt.datetime] = mapped_column(default=utcnow, index=True)
+    description: Mapped[str] = mapped_column(Text)
+    volume_ul: Mapped[int] = mapped_column(BigInteger, default=0)  # signed
+    mass_ug: Mapped[int] = mapped_column(BigInteger, default=0)  # signed, solids
+    filterable_solids_percent: Mapped[Optional[float]] = mapped_column(Float)
+    reverses_entry_id: Mapped[Optional[int]] = mapped_column(ForeignKey("waste_entries.id"), unique=True)
+    components: Mapped[list["WasteEntryComponent"]] = relationship(cascade="all, delete-orphan", lazy="selectin")
+    elements: Mapped[list["WasteEntryElement"]] = relationship(cascade="all, delete-orphan", lazy="selectin")
+
+
+class WasteEntryComponent(Base):
+    __tablename__ = "waste_entry_components"
+    entry_id: Mapped[int] = mapped_column(ForeignKey("waste_entries.id"), primary_key=True)
+    substance_id: Mapped[int] = mapped_column(ForeignKey("substances.id"), primary_key=True)
+    volume_ul: Mapped[int] = mapped_column(BigInteger)  # signed
+
+
+class WasteEntryElement(Base):
+    __tablename__ = "waste_entry_elements"
+    entry_id: Mapped[int] = mapped_column(ForeignKey("waste_entries.id"), primary_key=True)
+    element: Mapped[str] = mapped_column(String(3), primary_key=True, index=True)
+    mass_ug: Mapped[int] = mapped_column(BigInteger)  # signed

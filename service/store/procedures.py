@@ -36,6 +36,7 @@ __all__ = [
     "create_procedure",
     "update_procedure",
     "subject_of",
+    "source_element_masses",
     "element_totals_ug",
     "findings_of",
     "last_approved_scale",
@@ -155,13 +156,24 @@ def _scaled(masses: dict[str, int], scale: float) -> dict[str, int]:
     return {s: round_ug(Decimal(ug) * factor) for s, ug in masses.items()}
 
 
-def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFacts:
-    if draw.stock is not None:
-        stock, substance = draw.stock, draw.stock.substance
-        masses = substance_element_masses_ug(
-            draw.amount_text, substance.formula, purity=Decimal(repr(stock.purity_percent)) / 100,
+def source_element_masses(stock: Optional[Stock], mixture: Optional[Mixture], amount_text: str,
+                          field: str = "amount") -> dict[str, int]:
+    """Element masses (µg) in ``amount_text`` drawn from a stock (mass or volume) or a mixture (volume)."""
+    if stock is not None:
+        substance = stock.substance
+        return substance_element_masses_ug(
+            amount_text, substance.formula, purity=Decimal(repr(stock.purity_percent)) / 100,
             density_g_per_ml=stock.density_g_per_ml or substance.density_g_per_ml, substance=substance.name,
         )
+    volume_ul = to_decimal(parse_quantity(amount_text, expect="volume", field=field), "uL")
+    share = volume_ul / Decimal(mixture.volume_ul)
+    return {e.element: round_ug(Decimal(e.mass_ug) * share) for e in mixture.elements}
+
+
+def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFacts:
+    masses = source_element_masses(draw.stock, draw.mixture, draw.amount_text, f"{field}.amount")
+    if draw.stock is not None:
+        substance = draw.stock.substance
         classes = (substance.hazard or {}).get("classes", [])
         return ReagentFacts(
             name=substance.name, amount_text=draw.amount_text, state=substance.state,
@@ -171,9 +183,6 @@ def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFa
             flammable="flammable" in (substance.flags or ()) and substance.state == "liquid",
         )
     mixture = draw.mixture
-    volume_ul = to_decimal(parse_quantity(draw.amount_text, expect="volume", field=f"{field}.amount"), "uL")
-    share = volume_ul / Decimal(mixture.volume_ul)
-    masses = {e.element: round_ug(Decimal(e.mass_ug) * share) for e in mixture.elements}
     parts = [c.substance for c in mixture.components]
     liquids = [p for p in parts if p.state == "liquid"]
     flash = [p.flash_point_c for p in liquids if p.flash_point_c is not None]

@@ -1,0 +1,114 @@
+"""Runs of approved procedures: start (draws decrement the inventory), outputs, losses, balance, close."""
+
+from __future__ import annotations
+
+from flask import current_app, jsonify, request
+
+from service import schemas
+from service.api import bp
+from service.api.errors import ApiError
+from service.api.inventory import json_body
+from service.api.serialize import element_rows_from
+from service.auth import check_lab, current_user, lab_scope
+from service.store import inventory, runs
+from service.store.db import get_session
+from service.store.models import Run
+
+CAUTION = ("The balance is a record for the lab's own use; estimated outputs carry the uncertainty of their "
+           "method. Waste classification rests with the site safety officer and local regulations.")
+
+
+def _tolerance():
+    return current_app.config["BALANCE_TOLERANCE"]
+
+
+def _elements():
+    return current_app.config["BALANCE_ELEMENTS"]
+
+
+def dump_balance(balance) -> dict:
+    return {"closes": balance.closes, "tolerance_percent": float(_tolerance()) * 100, "elements": balance.to_rows(),
+            "caution": CAUTION}
+
+
+def dump_run(run: Run, *, with_balance: bool = True) -> dict:
+    out = {
+        "id": run.id, "procedure_id": run.procedure_id, "lab_id": run.lab_id, "researcher_id": run.researcher_id,
+        "scale": run.scale, "state": run.state, "note": run.note, "started_at": run.started_at.isoformat(),
+        "closed_at": run.closed_at.isoformat() if run.closed_at else None,
+        "draws": [{"stock_id": d.stock_id, "mixture_id": d.mixture_id, "amount": d.amount_text,
+                   "elements": element_rows_from(d.element_mass_ug)} for d in run.draws],
+        "outputs": [{"id": o.id, "label": o.label, "method": o.method, "description": o.description,
+                     "relative_uncertainty": o.relative_uncertainty, "basis": o.basis,
+                     "elements": element_rows_from(o.element_mass_ug)} for o in run.outputs],
+        "losses": [{"id": loss.id, "description": loss.description, "elements": element_rows_from(loss.element_mass_ug)}
+                   for loss in run.losses],
+    }
+    if with_balance:
+        out["balance"] = dump_balance(runs.balance_of(get_session(), run, _tolerance(), _elements()))
+    return out
+
+
+def _visible(ident: int) -> Run:
+    run = inventory.get(get_session(), Run, ident)
+    check_lab(run.lab_id)
+    return run
+
+
+@bp.get("/runs", endpoint="list_runs")
+def list_runs():
+    query = get_session().query(Run).order_by(Run.id)
+    scope = lab_scope()
+    if scope is not None:
+        query = query.filter(Run.lab_id.in_(sorted(scope)))
+    if request.args.get("procedure_id", "").isdigit():
+        query = query.filter(Run.procedure_id == int(request.args["procedure_id"]))
+    return jsonify({"items": [dump_run(r, with_balance=False) for r in query]})
+
+
+@bp.post("/runs", endpoint="create_runs")
+def start_run():
+    body = json_body(schemas.RunIn)
+    session = get_session()
+    from service.store.models import Procedure
+
+    proc = inventory.get(session, Procedure, body.procedure_id, field="procedure_id")
+    check_lab(proc.lab_id)
+    run = runs.start_run(session, body, current_user(), current_app.extensions["dotledger.rules"])
+    return jsonify(dump_run(run)), 201
+
+
+@bp.get("/runs/<int:ident>", endpoint="read_runs")
+def read_run(ident: int):
+    return jsonify(dump_run(_visible(ident)))
+
+
+@bp.post("/runs/<int:ident>/outputs", endpoint="add_run_output")
+def add_output(ident: int):
+    body = json_body(schemas.OutputIn)
+    run = _visible(ident)
+    runs.add_output(get_session(), run, body)
+    return jsonify(dump_run(run)), 201
+
+
+@bp.post("/runs/<int:ident>/losses", endpoint="add_run_loss")
+def add_loss(ident: int):
+    body = json_body(schemas.LossIn)
+    run = _visible(ident)
+    runs.add_loss(get_session(), run, body)
+    return jsonify(dump_run(run)), 201
+
+
+@bp.get("/runs/<int:ident>/balance", endpoint="read_run_balance")
+def read_balance(ident: int):
+    return jsonify(dump_balance(runs.balance_of(get_session(), _visible(ident), _tolerance(), _elements())))
+
+
+@bp.post("/runs/<int:ident>/close", endpoint="close_run")
+def close(ident: int):
+    run = _visible(ident)
+    try:
+        runs.close_run(get_session(), run, _tolerance(), _elements())
+    except runs.UnbalancedRun as exc:
+        raise ApiError(409, "unbalanced", str(exc), dump_balance(exc.balance)) from None
+    return jsonify(dump_run(run))

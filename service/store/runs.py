@@ -1,0 +1,193 @@
+"""Runs: batches made under approved procedures, their draws, outputs, losses and balance."""
+
+from __future__ import annotations
+
+from decimal import Decimal
+from typing import Optional
+
+from sqlalchemy import select
+from sqlalchemy.orm import Session
+
+from service.chem.content import round_ug
+from service.chem.formula import atomic_weight
+from service.chem.units import kind_of, parse_quantity, to_decimal
+from service.errors import Blocked, Conflict, InvalidInput
+from service.rules import LayeredRules, evaluate
+from service.schemas import DrawIn, LossIn, OutputIn, RunIn
+from service.store import inventory, procedures
+from service.store.models import (
+    Mixture,
+    Procedure,
+    Run,
+    RunDraw,
+    RunLoss,
+    RunOutput,
+    Stock,
+    User,
+    WasteContainer,
+    WasteEntry,
+    utcnow,
+)
+from service.store.waste import element_masses_ug
+
+__all__ = ["start_run", "add_output", "add_loss", "flows_of", "balance_of", "close_run"]
+
+
+def _format(value: Decimal, unit: str) -> str:
+    return f"{value.normalize():f} {unit}"
+
+
+def _take(session: Session, body: DrawIn, lab_id: int, field: str) -> RunDraw:
+    """Decrement the stock or mixture by the draw; refuse a draw larger than it holds."""
+    model, kind = (Stock, "stock") if body.stock_id else (Mixture, "mixture")
+    # Lock only the stock's own row: PostgreSQL refuses FOR UPDATE on the outer-joined substance.
+    source = session.scalar(select(model).where(model.id == (body.stock_id or body.mixture_id))
+                            .with_for_update(of=model))
+    if source is None or source.retired_at is not None:
+        raise InvalidInput(f"{field}.{kind}_id", f"no active {kind} with id {body.stock_id or body.mixture_id}")
+    if source.lab_id != lab_id:
+        raise InvalidInput(f"{field}.{kind}_id", f"{kind} {source.label} belongs to another lab")
+    masses = procedures.source_element_masses(source if kind == "stock" else None,
+                                              source if kind == "mixture" else None, body.amount, f"{field}.amount")
+    quantity = parse_quantity(body.amount, expect=("mass", "volume"), field=f"{field}.amount")
+    if kind == "stock":
+        held_kind, unit = source.quantity_kind, ("ug" if source.quantity_kind == "mass" else "uL")
+        if kind_of(quantity) != held_kind:
+            density = source.density_g_per_ml or source.substance.density_g_per_ml
+            if density is None:
+                raise InvalidInput(f"{field}.amount", f"{source.label} is kept by {held_kind}; give the draw as a {held_kind}")
+            grams = to_decimal(quantity, "g") if kind_of(quantity) == "mass" else to_decimal(quantity, "mL") * Decimal(repr(density))
+            wanted = grams * 1_000_000 if held_kind == "mass" else grams / Decimal(repr(density)) * 1000
+        else:
+            wanted = to_decimal(quantity, unit)
+        wanted_micro = int(wanted.to_integral_value())
+        if wanted_micro > source.quantity_micro:
+            shown = "mg" if held_kind == "mass" else "mL"
+            raise Conflict(f"{source.label} holds {source.quantity_micro / 1000:g} {shown}; the draw asks for "
+                           f"{wanted_micro / 1000:g} {shown}", f"{field}.amount", body.amount)
+        source.quantity_micro -= wanted_micro
+        source.amount_text = _format(Decimal(source.quantity_micro) / 1000, "mg" if held_kind == "mass" else "mL")
+        source.elements = inventory.stock_elements(source)
+    else:
+        wanted_micro = int(to_decimal(quantity, "uL").to_integral_value())
+        if wanted_micro > source.volume_ul:
+            raise Conflict(f"{source.label} holds {source.volume_ul / 1000:g} mL; the draw asks for "
+                           f"{wanted_micro / 1000:g} mL", f"{field}.amount", body.amount)
+        source.volume_ul -= wanted_micro
+        source.volume_text = _format(Decimal(source.volume_ul) / 1000, "mL")
+        source.elements = inventory.mixture_elements(source)
+    return RunDraw(stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount, element_mass_ug=masses)
+
+
+def _planned(proc: Procedure, scale: float) -> list[DrawIn]:
+    out = []
+    for draw in proc.draws:
+        quantity = parse_quantity(draw.amount_text)
+        amount = f"{Decimal(repr(float(quantity.magnitude))) * Decimal(repr(scale))} {quantity.units:~}"
+        out.append(DrawIn(stock_id=draw.stock_id, mixture_id=draw.mixture_id, amount=amount))
+    return out
+
+
+def start_run(session: Session, body: RunIn, actor: User, rules: LayeredRules) -> Run:
+    """Start a run of an approved procedure at ``body.scale`` (at most the approved scale)."""
+    proc = inventory.get(session, Procedure, body.procedure_id, field="procedure_id")
+    if proc.state != "approved":
+        raise Conflict(f"procedure {proc.id} is {proc.state.replace('_', ' ')}; only approved procedures are run",
+                       "procedure_id", proc.id)
+    if body.scale > proc.scale:
+        subject = procedures.subject_of(proc, scale=body.scale, approved_scale=proc.scale)
+        raise Blocked(f"scale {body.scale:g} is beyond the approved scale {proc.scale:g}; "
+                      "register a revision for the larger scale", evaluate(rules, "procedure", subject))
+    run = Run(procedure_id=proc.id, lab_id=proc.lab_id, researcher_id=actor.id, scale=body.scale, note=body.note,
+              state="open", started_at=utcnow())
+    draws = body.draws if body.draws is not None else _planned(proc, body.scale)
+    run.draws = [_take(session, d, proc.lab_id, f"draws[{i}]") for i, d in enumerate(draws)]
+    session.add(run)
+    session.flush()
+    return run
+
+
+def _open(run: Run) -> None:
+    if run.state != "open":
+        raise Conflict(f"run {run.id} is closed")
+
+
+def add_output(session: Session, run: Run, body: OutputIn) -> RunOutput:
+    _open(run)
+    if body.assays:
+        masses = {}
+        for i, assay in enumerate(body.assays):
+            atomic_weight_ok(assay.element, f"assays[{i}].element")
+            c = to_decimal(parse_quantity(assay.concentration, field=f"assays[{i}].concentration"), "ug/mL")
+            v = to_decimal(parse_quantity(assay.volume, expect="volume", field=f"assays[{i}].volume"), "mL")
+            masses[assay.element] = masses.get(assay.element, 0) + round_ug(c * v)
+        basis = {"assays": [a.model_dump() for a in body.assays]}
+    else:
+        masses, basis = element_masses_ug(body.elements), {}
+    output = RunOutput(label=body.label, method=body.method, description=body.description, element_mass_ug=masses,
+                       basis=basis)
+    run.outputs.append(output)
+    session.flush()
+    return output
+
+
+def atomic_weight_ok(symbol: str, field: str) -> None:
+    try:
+        atomic_weight(symbol)
+    except ValueError:
+        raise InvalidInput(field, f"{symbol!r} is not an element symbol") from None
+
+
+def add_loss(session: Session, run: Run, body: LossIn) -> RunLoss:
+    _open(run)
+    loss = RunLoss(description=body.description, element_mass_ug=element_masses_ug(body.elements))
+    run.losses.append(loss)
+    session.flush()
+    return loss
+
+
+def flows_of(session: Session, run: Run, elements: tuple[str, ...]) -> list:
+    """The run's inputs, products, waste entries and losses as balance flows, for ``elements`` only."""
+    from service.balance import Flow as _Flow
+
+    def Flow(*, element_mass_ug, **kw):  # noqa: N802 - keeps the tracked elements only
+        return _Flow(element_mass_ug={s: ug for s, ug in element_mass_ug.items() if s in elements}, **kw)
+
+    flows = []
+    for draw in run.draws:
+        source = session.get(Stock, draw.stock_id) if draw.stock_id else session.get(Mixture, draw.mixture_id)
+        flows.append(Flow(label=f"{source.label} {draw.amount_text}", kind="input", element_mass_ug=draw.element_mass_ug))
+    for out in run.outputs:
+        flows.append(Flow(label=out.label, kind="product", element_mass_ug=out.element_mass_ug, method=out.method,
+                          relative_uncertainty=out.relative_uncertainty))
+    entries = session.execute(select(WasteEntry, WasteContainer.label).join(WasteContainer)
+                              .where(WasteEntry.run_id == run.id).order_by(WasteEntry.id)).all()
+    for entry, label in entries:
+        flows.append(Flow(label=f"{label} entry {entry.id}", kind="waste",
+                          element_mass_ug={e.element: e.mass_ug for e in entry.elements}))
+    for loss in run.losses:
+        flows.append(Flow(label=loss.description, kind="loss", element_mass_ug=loss.element_mass_ug))
+    return flows
+
+
+def balance_of(session: Session, run: Run, tolerance_fraction: Decimal, elements: tuple[str, ...]):
+    from service.balance import run_balance
+
+    return run_balance(flows_of(session, run, elements), tolerance_fraction=tolerance_fraction)
+
+
+def close_run(session: Session, run: Run, tolerance_fraction: Decimal, elements: tuple[str, ...]) -> tuple[Run, object]:
+    """Close the run if its balance closes within the tolerance; else Conflict with the balance."""
+    _open(run)
+    balance = balance_of(session, run, tolerance_fraction, elements)
+    if not balance.closes:
+        raise UnbalancedRun(balance)
+    run.state, run.closed_at = "closed", utcnow()
+    session.flush()
+    return run, balance
+
+
+class UnbalancedRun(Conflict):
+    def __init__(self, balance) -> None:
+        super().__init__("the mass balance does not close within the site tolerance")
+        self.balance = balance

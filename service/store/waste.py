@@ -1,0 +1,225 @@
+"""Waste containers and their append-only entries.
+
+Adding an entry locks the container row for the rest of the transaction (``SELECT … FOR
+UPDATE`` on PostgreSQL; SQLite transactions already begin IMMEDIATE), so two concurrent
+additions are both counted or one is refused — never lost.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass
+from typing import Optional
+
+from sqlalchemy import func, select
+from sqlalchemy.orm import Session
+
+from service.chem.formula import atomic_weight, parse_formula
+from service.chem.units import QuantityError, parse_quantity, to_decimal
+from service.errors import Conflict, InvalidInput
+from service.rules.subjects import ContainerComponent, ContainerSubject
+from service.schemas import ContainerIn, ElementAmountIn, EntryIn
+from service.store.inventory import get
+from service.store.models import (
+    Location,
+    Run,
+    Substance,
+    WasteContainer,
+    WasteEntry,
+    WasteEntryComponent,
+    WasteEntryElement,
+    utcnow,
+)
+
+__all__ = ["SOLID_STREAMS", "Contents", "create_container", "add_entry", "reverse_entry", "contents_of",
+           "subject_of", "move", "element_masses_ug"]
+
+SOLID_STREAMS = frozenset({"contaminated_solids", "sharps"})
+_HALOGENS = frozenset({"F", "Cl", "Br", "I"})
+# action -> (states it may start from, target state, timestamp attribute)
+MOVES = {
+    "mark_full": (frozenset({"open"}), "full", "full_at"),
+    "request_pickup": (frozenset({"open", "full"}), "pickup_requested", "pickup_requested_at"),
+    "collect": (frozenset({"pickup_requested"}), "collected", "collected_at"),
+}
+
+
+def element_masses_ug(rows: list[ElementAmountIn], field: str = "elements") -> dict[str, int]:
+    """Element amounts as {symbol: µg}; a repeated element is an error, not a silent sum."""
+    out: dict[str, int] = {}
+    for i, row in enumerate(rows):
+        try:
+            atomic_weight(row.element)
+        except ValueError:
+            raise InvalidInput(f"{field}[{i}].element", f"{row.element!r} is not an element symbol") from None
+        if row.element in out:
+            raise InvalidInput(f"{field}[{i}].element", f"{row.element} is given twice")
+        quantity = parse_quantity(row.mass, expect="mass", field=f"{field}[{i}].mass")
+        out[row.element] = int(to_decimal(quantity, "ug").to_integral_value())
+    return out
+
+
+def create_container(session: Session, body: ContainerIn) -> WasteContainer:
+    form = "solid" if body.stream in SOLID_STREAMS else "liquid"
+    quantity = parse_quantity(body.capacity, expect="mass" if form == "solid" else "volume", field="capacity")
+    micro = int(to_decimal(quantity, "ug" if form == "solid" else "uL").to_integral_value())
+    if micro <= 0:
+        raise InvalidInput("capacity", "must be above zero")
+    get(session, Location, body.location_id, field="location_id")
+    if session.scalar(select(WasteContainer.id).where(WasteContainer.label == body.label)):
+        raise Conflict(f"a waste container labelled {body.label!r} exists", "label", body.label)
+    container = WasteContainer(label=body.label, lab_id=body.lab_id, location_id=body.location_id, stream=body.stream,
+                               form=form, capacity_text=body.capacity, capacity_micro=micro,
+                               acute_hazardous=body.acute_hazardous, state="open")
+    session.add(container)
+    session.flush()
+    return container
+
+
+@dataclass(frozen=True)
+class Contents:
+    volume_ul: int
+    mass_ug: int
+    element_mass_ug: dict[str, int]
+    component_volume_ul: dict[int, int]  # substance id -> µL
+    filterable_solids_percent: float
+    entries: int
+
+
+def contents_of(session: Session, container: WasteContainer) -> Contents:
+    """The container's contents as the sum of its entries (in SQL)."""
+    cid = container.id
+    volume, mass, count = session.execute(
+        select(func.coalesce(func.sum(WasteEntry.volume_ul), 0), func.coalesce(func.sum(WasteEntry.mass_ug), 0),
+               func.count(WasteEntry.id)).where(WasteEntry.container_id == cid)).one()
+    elements = dict(session.execute(
+        select(WasteEntryElement.element, func.sum(WasteEntryElement.mass_ug)).join(WasteEntry)
+        .where(WasteEntry.container_id == cid).group_by(WasteEntryElement.element)).all())
+    components = dict(session.execute(
+        select(WasteEntryComponent.substance_id, func.sum(WasteEntryComponent.volume_ul)).join(WasteEntry)
+        .where(WasteEntry.container_id == cid).group_by(WasteEntryComponent.substance_id)).all())
+    weighted = session.scalar(
+        select(func.sum(WasteEntry.volume_ul * func.coalesce(WasteEntry.filterable_solids_percent, 0)))
+        .where(WasteEntry.container_id == cid)) or 0
+    solids = float(weighted) / int(volume) if int(volume) > 0 else 0.0
+    return Contents(int(volume), int(mass), {k: int(v) for k, v in sorted(elements.items()) if int(v)},
+                    {k: int(v) for k, v in components.items() if int(v)}, solids, int(count))
+
+
+def _lock(session: Session, container_id: int) -> WasteContainer:
+    container = session.scalar(select(WasteContainer).where(WasteContainer.id == container_id)
+                               .with_for_update(of=WasteContainer).execution_options(populate_existing=True))
+    if container is None:
+        get(session, WasteContainer, container_id)  # raises NotFound
+    return container
+
+
+def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Optional[int]) -> WasteEntry:
+    """Append an entry, refusing one that would overfill the container or does not fit its form."""
+    container = _lock(session, container_id)
+    if container.state != "open":
+        raise Conflict(f"container {container.label} is {container.state.replace('_', ' ')}; entries go to open containers")
+    liquid = container.form == "liquid"
+    if liquid and (body.volume is None or body.mass is not None):
+        raise InvalidInput("volume", f"{container.label} holds liquids: give the entry's volume (and no mass)")
+    if not liquid and (body.mass is None or body.volume is not None or body.components):
+        raise InvalidInput("mass", f"{container.label} holds solids: give the entry's mass (and no volume)")
+    if body.run_id is not None:
+        run = session.get(Run, body.run_id)
+        if run is None:
+            raise InvalidInput("run_id", f"no run with id {body.run_id}")
+        if run.state != "open":
+            raise Conflict(f"run {run.id} is closed; record a clean-up entry without run_id instead", "run_id")
+    amount = parse_quantity(body.volume if liquid else body.mass, expect="volume" if liquid else "mass",
+                            field="volume" if liquid else "mass")
+    micro = int(to_decimal(amount, "uL" if liquid else "ug").to_integral_value())
+    if micro <= 0:
+        raise QuantityError(body.volume or body.mass or "", "must be above zero", "volume" if liquid else "mass")
+    components = []
+    for i, comp in enumerate(body.components):
+        get(session, Substance, comp.substance_id, field=f"components[{i}].substance_id")
+        ul = int(to_decimal(parse_quantity(comp.volume, expect="volume", field=f"components[{i}].volume"), "uL"))
+        components.append(WasteEntryComponent(substance_id=comp.substance_id, volume_ul=ul))
+    if sum(c.volume_ul for c in components) > micro:
+        raise InvalidInput("components", "the components add up to more than the entry's volume")
+    held = contents_of(session, container)
+    already = held.volume_ul if liquid else held.mass_ug
+    if already + micro > container.capacity_micro:
+        unit, scale = ("L", 1e6) if liquid else ("kg", 1e9)
+        raise Conflict(f"would overfill {container.label}: it holds {already / scale:g} {unit} of "
+                       f"{container.capacity_micro / scale:g} {unit}; this entry adds {micro / scale:g} {unit}",
+                       "volume" if liquid else "mass", body.volume or body.mass)
+    elements = [WasteEntryElement(element=s, mass_ug=ug) for s, ug in element_masses_ug(body.elements).items()]
+    entry = WasteEntry(container_id=container.id, run_id=body.run_id, actor_id=actor_id, description=body.description,
+                       volume_ul=micro if liquid else 0, mass_ug=0 if liquid else micro,
+                       filterable_solids_percent=body.filterable_solids_percent, components=components,
+                       elements=elements, at=utcnow())
+    session.add(entry)
+    if container.first_entry_at is None:
+        container.first_entry_at = entry.at
+    if already + micro >= container.capacity_micro and container.full_at is None:
+        container.full_at = entry.at
+    session.flush()
+    return entry
+
+
+def reverse_entry(session: Session, container_id: int, entry_id: int, reason: str, actor_id: Optional[int]) -> WasteEntry:
+    """A correction: a new entry that negates ``entry_id`` exactly."""
+    container = _lock(session, container_id)
+    original = session.get(WasteEntry, entry_id)
+    if original is None or original.container_id != container.id:
+        raise InvalidInput("entry_id", f"no entry {entry_id} in container {container.label}")
+    if original.reverses_entry_id is not None:
+        raise Conflict("a reversing entry cannot itself be reversed; add a new entry instead")
+    if session.scalar(select(WasteEntry.id).where(WasteEntry.reverses_entry_id == entry_id)):
+        raise Conflict(f"entry {entry_id} is already reversed")
+    if container.state == "collected":
+        raise Conflict(f"container {container.label} has been collected")
+    entry = WasteEntry(container_id=container.id, run_id=original.run_id, actor_id=actor_id,
+                       description=f"reverses entry {entry_id}: {reason}", volume_ul=-original.volume_ul,
+                       mass_ug=-original.mass_ug, filterable_solids_percent=original.filterable_solids_percent,
+                       reverses_entry_id=entry_id, at=utcnow(),
+                       components=[WasteEntryComponent(substance_id=c.substance_id, volume_ul=-c.volume_ul)
+                                   for c in original.components],
+                       elements=[WasteEntryElement(element=e.element, mass_ug=-e.mass_ug) for e in original.elements])
+    session.add(entry)
+    session.flush()
+    return entry
+
+
+def move(session: Session, container: WasteContainer, action: str) -> WasteContainer:
+    starts, target, stamp = MOVES[action]
+    if container.state not in starts:
+        raise Conflict(f"cannot {action.replace('_', ' ')}: container {container.label} is "
+                       f"{container.state.replace('_', ' ')}", "state", container.state)
+    container.state = target
+    if getattr(container, stamp) is None:
+        setattr(container, stamp, utcnow())
+    session.flush()
+    return container
+
+
+def _days(since: Optional[dt.datetime], now: dt.datetime) -> Optional[float]:
+    return None if since is None else (now - since).total_seconds() / 86400
+
+
+def subject_of(session: Session, container: WasteContainer, contents: Contents,
+               now: Optional[dt.datetime] = None) -> ContainerSubject:
+    """The facts the container-scope rules evaluate."""
+    now = now or utcnow()
+    total = contents.volume_ul
+    components = []
+    for substance_id, ul in sorted(contents.component_volume_ul.items()):
+        substance = session.get(Substance, substance_id)
+        components.append(ContainerComponent(
+            name=substance.name, key=substance.key, volume_fraction=ul / total if total > 0 else 0.0,
+            flash_point_c=substance.flash_point_c, flags=frozenset(substance.flags or ()),
+            halogenated=bool(_HALOGENS & set(parse_formula(substance.formula).atoms))))
+    return ContainerSubject(
+        label=container.label, stream=container.stream, form=container.form, volume_l=total / 1e6,
+        mass_kg=contents.mass_ug / 1e9,
+        capacity_l=container.capacity_micro / 1e6 if container.form == "liquid" else None,
+        element_mass_ug=contents.element_mass_ug, components=tuple(components),
+        filterable_solids_percent=contents.filterable_solids_percent,
+        days_since_first_entry=_days(container.first_entry_at, now), days_since_full=_days(container.full_at, now),
+        acute_hazardous=container.acute_hazardous)
