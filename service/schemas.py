@@ -42,6 +42,7 @@ __all__ = [
     "RunIn",
     "OutputIn",
     "LossIn",
+    "EstimateIn",
 ]
 
 LocationKind = Literal["storage", "satellite_accumulation_area"]
@@ -290,16 +291,19 @@ class RunIn(_Body):
 
 class OutputIn(_Body):
     label: str = Field(min_length=1, max_length=120)
-    method: Literal["measured", "by_difference"]
+    method: Literal["measured", "estimated", "by_difference"]
     description: Optional[str] = Field(default=None, max_length=2000)
     elements: list[ElementAmountIn] = Field(default_factory=list, max_length=30)
     assays: list[AssayIn] = Field(default_factory=list, max_length=30)
+    estimate: Optional["EstimateIn"] = Field(default=None, description="for method estimated: the absorbance data")
 
     @model_validator(mode="after")
     def _basis(self) -> "OutputIn":
-        given = bool(self.elements) + bool(self.assays)
-        if self.method == "measured" and given != 1:
+        given = bool(self.elements) + bool(self.assays) + (self.estimate is not None)
+        if self.method == "measured" and (given != 1 or self.estimate is not None):
             raise ValueError("a measured output gives either element masses or assays")
+        if self.method == "estimated" and (self.estimate is None or given != 1):
+            raise ValueError("an estimated output gives the absorbance data in 'estimate' (and no masses)")
         if self.method == "by_difference" and given:
             raise ValueError("a by-difference output takes no masses: it is what the balance leaves")
         return self
@@ -308,3 +312,19 @@ class OutputIn(_Body):
 class LossIn(_Body):
     description: str = Field(min_length=3, max_length=2000)
     elements: list[ElementAmountIn] = Field(min_length=1, max_length=30)
+
+
+class EstimateIn(_Body):
+    """Metal content of a nanocrystal dispersion from its first excitonic absorption peak."""
+
+    core: Literal["CdSe", "CdTe", "CdS"]
+    wavelength_nm: float = Field(gt=0, description="first excitonic absorption peak of the core, nm")
+    absorbance: float = Field(gt=0, description="absorbance at that peak of the measured sample")
+    path_length_cm: float = Field(default=1.0, gt=0)
+    dilution_factor: float = Field(default=1.0, ge=1, description="dispersion volume over measured aliquot volume")
+    volume: str = Field(description='volume of the undiluted dispersion, e.g. "4.0 mL"')
+    shell: Optional[Literal["ZnS", "CdS"]] = None
+    shell_monolayers: float = Field(default=0.0, ge=0, le=20)
+
+
+OutputIn.model_rebuild()  # resolves the forward reference to EstimateIn

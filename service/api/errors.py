@@ -17,6 +17,7 @@ from service.chem.cas import CasNumberError
 from service.chem.formula import FormulaError
 from service.chem.units import QuantityError
 from service.datafiles import DataFileError
+from service.nano import NanoError
 from service.errors import Blocked, Conflict, CsrfFailed, Forbidden, InvalidInput, NotFound, Unauthenticated
 
 __all__ = ["ApiError", "error_response", "init_app"]
@@ -109,6 +110,11 @@ def init_app(app: Flask) -> None:
     @app.errorhandler(CasNumberError)
     def _cas(exc: CasNumberError):
         return error_response(422, "invalid_cas", str(exc), [{"field": "cas", "value": exc.text}])
+
+    @app.errorhandler(NanoError)
+    def _nano(exc: NanoError):
+        details = {k: v for k, v in vars(exc).items() if isinstance(v, (str, int, float, type(None)))}
+        return error_response(422, "invalid_estimate", str(exc), details)
 
     @app.errorhandler(DataFileError)
     def _data_file(exc: DataFileError):

@@ -112,3 +112,11 @@ def close(ident: int):
     except runs.UnbalancedRun as exc:
         raise ApiError(409, "unbalanced", str(exc), dump_balance(exc.balance)) from None
     return jsonify(dump_run(run))
+
+
+@bp.post("/estimates", endpoint="create_estimate")
+def create_estimate():
+    """The metal content of a dispersion from absorbance alone (nothing is stored)."""
+    from service import estimates
+
+    return jsonify(estimates.as_dict(estimates.estimate(json_body(schemas.EstimateIn))))

@@ -114,7 +114,17 @@ def _open(run: Run) -> None:
 
 def add_output(session: Session, run: Run, body: OutputIn) -> RunOutput:
     _open(run)
-    if body.assays:
+    uncertainty = None
+    if body.estimate is not None:
+        from service import estimates
+
+        result = estimates.estimate(body.estimate)
+        masses = estimates.masses_ug(result)
+        uncertainty = result.relative_uncertainty
+        basis = {"estimate": body.estimate.model_dump(), "core_diameter_nm": result.core_diameter_nm,
+                 "outer_diameter_nm": result.outer_diameter_nm,
+                 "relative_uncertainty_by_element": dict(result.relative_uncertainty_by_element)}
+    elif body.assays:
         masses = {}
         for i, assay in enumerate(body.assays):
             atomic_weight_ok(assay.element, f"assays[{i}].element")
@@ -125,7 +135,7 @@ def add_output(session: Session, run: Run, body: OutputIn) -> RunOutput:
     else:
         masses, basis = element_masses_ug(body.elements), {}
     output = RunOutput(label=body.label, method=body.method, description=body.description, element_mass_ug=masses,
-                       basis=basis)
+                       relative_uncertainty=uncertainty, basis=basis)
     run.outputs.append(output)
     session.flush()
     return output
