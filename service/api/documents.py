@@ -1,0 +1,54 @@
+"""Printed documents: risk-assessment sheets and waste manifests as PDF or HTML preview.
+
+Lab-scoped like the JSON reads. Every answer carries ``X-Document-SHA256``, the hash of
+the document's data that is also printed in its footer.
+"""
+
+from __future__ import annotations
+
+from flask import Response
+
+from service import documents
+from service.api import bp
+from service.auth import check_lab
+from service.store import inventory
+from service.store.db import get_session
+from service.store.models import Procedure, WasteContainer
+
+
+def _visible(model, ident: int):
+    record = inventory.get(get_session(), model, ident)
+    check_lab(record.lab_id)
+    return record
+
+
+def _answer(doc: documents.Document, fmt: str) -> Response:
+    headers = {"X-Document-SHA256": doc.sha256, "X-Document-Id": doc.document_id}
+    if fmt == "pdf":
+        headers["Content-Disposition"] = f'inline; filename="{doc.filename}.pdf"'
+        return Response(doc.pdf(), mimetype="application/pdf", headers=headers)
+    return Response(doc.html, mimetype="text/html", headers=headers)
+
+
+@bp.get("/procedures/<int:ident>/assessment.pdf", endpoint="procedure_assessment_pdf")
+def assessment_pdf(ident: int):
+    """The procedure's risk-assessment sheet as PDF."""
+    return _answer(documents.assessment_for(_visible(Procedure, ident)), "pdf")
+
+
+@bp.get("/procedures/<int:ident>/assessment.html", endpoint="procedure_assessment_html")
+def assessment_html(ident: int):
+    """The procedure's risk-assessment sheet as HTML (preview)."""
+    return _answer(documents.assessment_for(_visible(Procedure, ident)), "html")
+
+
+@bp.get("/waste_containers/<int:ident>/manifest.pdf", endpoint="waste_container_manifest_pdf")
+def manifest_pdf(ident: int):
+    """The container's waste manifest as PDF."""
+    return _answer(documents.manifest_for(_visible(WasteContainer, ident)), "pdf")
+
+
+@bp.get("/waste_containers/<int:ident>/manifest.html", endpoint="waste_container_manifest_html")
+def manifest_html(ident: int):
+    """The container's waste manifest as HTML (preview)."""
+    return _answer(documents.manifest_for(_visible(WasteContainer, ident)), "html")

@@ -1,0 +1,102 @@
+"""From a document's data to HTML (Jinja2, autoescaped) and PDF (WeasyPrint).
+
+The data dict is hashed first (SHA-256 of its canonical JSON: sorted keys, no spaces,
+UTF-8), then rendered with the hash beside it, so the printed hash identifies exactly
+the data that went into the document. Imports neither Flask nor the database.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass
+from pathlib import Path
+
+from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoescape
+
+from service.config import PROJECT_ROOT
+
+__all__ = ["PAGE_SIZES", "Document", "canonical_json", "data_sha256", "render_html", "render_pdf", "page_size_css"]
+
+TEMPLATES = PROJECT_ROOT / "templates" / "documents"
+
+# Setting value -> CSS @page size keyword (A4 = ISO 216, 210 × 297 mm; Letter = ANSI, 8.5 × 11 in).
+PAGE_SIZES = {"A4": "A4", "Letter": "letter"}
+
+
+@dataclass(frozen=True)
+class Document:
+    """A rendered document: its id, data hash, HTML and (once asked for) PDF bytes."""
+
+    document_id: str
+    sha256: str
+    html: str
+    filename: str  # without extension
+
+    def pdf(self) -> bytes:
+        return render_pdf(self.html)
+
+
+def canonical_json(data: dict) -> bytes:
+    """The bytes that are hashed: sorted keys, compact separators, UTF-8.
+
+    >>> canonical_json({"b": 1, "a": "µg"})
+    b'{"a":"\\xc2\\xb5g","b":1}'
+    """
+    return json.dumps(data, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False).encode("utf-8")
+
+
+def data_sha256(data: dict) -> str:
+    """SHA-256 (hex) of the canonical JSON of ``data``.
+
+    >>> data_sha256({})  # SHA-256 of the two bytes "{}"
+    '44136fa355b3678a1146ad16f7e8649e94fb4fc21fe77e8310c060f61caaff8a'
+    """
+    return hashlib.sha256(canonical_json(data)).hexdigest()
+
+
+def page_size_css(setting: str) -> str:
+    """The CSS page size for the ``PAGE_SIZE`` setting; ValueError names the allowed values."""
+    try:
+        return PAGE_SIZES[setting]
+    except KeyError:
+        raise ValueError(f"PAGE_SIZE is {setting!r}; use one of {', '.join(PAGE_SIZES)}") from None
+
+
+def format_timestamp(value: str | None) -> str:
+    """An ISO timestamp (UTC) to minutes, for print.
+
+    >>> format_timestamp("2026-12-02T02:42:31.003619+00:00")
+    '2026-12-02 02:42 UTC'
+    >>> format_timestamp(None)
+    '—'
+    """
+    return "—" if not value else f"{value[:16].replace('T', ' ')} UTC"
+
+
+def _environment() -> Environment:
+    env = Environment(loader=FileSystemLoader(str(TEMPLATES)),
+                      autoescape=select_autoescape(["html", "svg"], default_for_string=True),
+                      undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True)
+    env.filters["mg"] = lambda ug: f"{ug / 1000:,.3f}"
+    env.filters["num"] = lambda v, fmt="{:,.3g}": "—" if v is None else fmt.format(v)
+    env.filters["ts"] = format_timestamp
+    return env
+
+
+_ENV = _environment()
+
+
+def render_html(template: str, data: dict, *, document_id: str, filename: str) -> Document:
+    """Hash ``data``, then render ``templates/documents/<template>`` with ``data`` and the hash."""
+    digest = data_sha256(data)
+    html = _ENV.get_template(template).render(doc=data, sha256=digest, page_size=page_size_css(data["page_size"]),
+                                              stylesheet=(TEMPLATES / "print.css").read_text(encoding="utf-8"))
+    return Document(document_id=document_id, sha256=digest, html=html, filename=filename)
+
+
+def render_pdf(html: str) -> bytes:
+    """The PDF for ``html`` (WeasyPrint; images and fonts only from the templates folder)."""
+    from weasyprint import HTML  # heavy import, only when a PDF is asked for
+
+    return HTML(string=html, base_url=str(Path(TEMPLATES))).write_pdf()

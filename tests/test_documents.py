@@ -1,0 +1,187 @@
+"""Printed documents (service/documents): risk assessment and waste manifest, PDF and HTML.
+
+Outside values, with their sources:
+- Page sizes in PostScript points: A4 is 210 × 297 mm (ISO 216) = 595 × 842 pt; US Letter is
+  8.5 × 11 in (ANSI/ASME Y14.1) = 612 × 792 pt (1 pt = 1/72 in).
+- H-statement wording: GHS Rev. 10 Annex 3 / CLP Regulation (EC) No 1272/2008 Annex III,
+  English text — written out here independently of rules/hazard-statements.yaml, from memory.
+- UN 1992 "Flammable liquid, toxic, n.o.s." (memory) and UN 2570 "Cadmium compound" (seen, 49 CFR
+  172.101) as published; RCRA D006 cadmium (40 CFR 261.24 Table 1, seen).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import io
+import json
+import re
+
+import pytest
+from click.testing import CliRunner
+from pypdf import PdfReader
+
+import service.cli
+from service.documents import canonical_json
+from tests.conftest import Api, make_app, make_user
+
+# GHS Rev. 10 Annex 3 / CLP Annex III standard English wording — from memory.
+H_TEXTS = {
+    "H225": "Highly flammable liquid and vapour.",
+    "H304": "May be fatal if swallowed and enters airways.",
+    "H330": "Fatal if inhaled.",
+    "H341": "Suspected of causing genetic defects.",
+    "H350": "May cause cancer.",
+    "H372": "Causes damage to organs through prolonged or repeated exposure.",
+    "H410": "Very toxic to aquatic life with long lasting effects.",
+}
+DEFERRAL = re.compile(r"local\s+regulations\s+and\s+the\s+site\s+safety\s+officer\s+decide", re.I)
+
+
+def _text(pdf: bytes) -> tuple[PdfReader, list[str]]:
+    reader = PdfReader(io.BytesIO(pdf))
+    return reader, [re.sub(r"\s+", " ", page.extract_text()) for page in reader.pages]
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory):
+    """The demo database once for the module, and an admin's API client."""
+    path = tmp_path_factory.mktemp("docs") / "demo.sqlite"
+    url = f"sqlite:///{path}"
+    mp = pytest.MonkeyPatch()
+    mp.setenv("DOTLEDGER_DATABASE_URL", url)
+    result = CliRunner().invoke(service.cli.main, ["demo"])
+    assert result.exit_code == 0, result.output
+    from service.config import PROJECT_ROOT
+
+    app = make_app(url, PROJECT_ROOT / "rules")
+    api = Api(app.test_client(), make_user(app, "printer@test.example", "admin"))
+    yield app, api, mp
+    mp.undo()
+    app.extensions["dotledger.engine"].dispose()
+
+
+def _get(api: Api, path: str, expect: int = 200):
+    response = api.client.get(f"/api/v1{path}", headers={"Authorization": f"Bearer {api.token}"})
+    assert response.status_code == expect, (path, response.status_code, response.data[:300])
+    return response
+
+
+def _ids(api: Api):
+    procs = {p["title"]: p["id"] for p in api.call("GET", "/procedures")["items"]}
+    containers = {c["label"]: c for c in api.call("GET", "/waste_containers")["items"]}
+    return procs, containers
+
+
+def test_assessment_pdf_prints_masses_hazards_and_deferral(demo):
+    app, api, _ = demo
+    procs, _ = _ids(api)
+    ident = procs["CdSe cores by hot injection"]
+    view = api.call("GET", f"/procedures/{ident}")
+    response = _get(api, f"/procedures/{ident}/assessment.pdf")
+    assert response.mimetype == "application/pdf"
+    reader, pages = _text(response.data)
+    text = " ".join(pages)
+    for row in view["element_masses_per_batch"]:  # the JSON view's numbers, printed as mg
+        assert f"{row['mass_ug'] / 1000:,.3f}" in text, row
+    for code, wording in H_TEXTS.items():  # cadmium oxide, 1-octadecene, acetone use these codes
+        assert f"{code} {wording}" in text, code
+    for pack in view["rule_packs"]:
+        assert f"{pack['pack']} {pack['version']}" in text
+    assert "GHS06" in text and "GHS08" in text  # cadmium oxide: toxic, health hazard (CLP Annex VI, memory)
+    assert "Face shield" in text and "Sealed rotor" in text  # hot injection, centrifuge → controls.yaml
+    assert DEFERRAL.search(text)
+    assert "Safety officer" in text and "Supervisor" in text
+    digest = response.headers["X-Document-SHA256"]
+    assert re.fullmatch(r"[0-9a-f]{64}", digest)
+    assert all(digest in page for page in pages)  # printed in the footer of every page
+    assert all(f"of {len(reader.pages)}" in page for page in pages)
+
+
+def test_manifest_pdf_codes_transport_and_hash(demo):
+    app, api, _ = demo
+    _, containers = _ids(api)
+    container = containers["NG-W01"]  # acetone washes carrying Cd (demo)
+    response = _get(api, f"/waste_containers/{container['id']}/manifest.pdf")
+    _, pages = _text(response.data)
+    text = " ".join(pages)
+    cd = next(e for e in container["elements"] if e["element"] == "Cd")
+    assert f"{cd['mass_ug'] / 1000:,.3f}" in text and f"{cd['concentration_mg_per_l']:,.3f}" in text
+    assert "D006" in text  # RCRA toxicity characteristic, cadmium (40 CFR 261.24)
+    assert "UN 1992" in text and "UN 1090" in text  # UN Model Regulations / 49 CFR 172.101 (UN 1090 seen, UN 1992 from memory)
+    assert "UN 2570" not in text  # a solids entry; this is a liquid container
+    assert "suggested, for review" in text.lower()
+    assert "licensed shipper" in text and DEFERRAL.search(text)
+    html = _get(api, f"/waste_containers/{container['id']}/manifest.html")
+    assert html.mimetype == "text/html"
+    assert html.headers["X-Document-SHA256"] in html.get_data(as_text=True)
+
+
+def test_hash_is_sha256_of_the_canonical_data():
+    data = {"b": [1, 2], "a": "Cd 22.496 mg"}
+    # Computed independently: json.dumps with sorted keys and compact separators, then hashlib.
+    expected = hashlib.sha256(json.dumps(data, sort_keys=True, separators=(",", ":")).encode()).hexdigest()
+    assert hashlib.sha256(canonical_json(data)).hexdigest() == expected
+    assert hashlib.sha256(b"{}").hexdigest() == "44136fa355b3678a1146ad16f7e8649e94fb4fc21fe77e8310c060f61caaff8a"
+
+
+def test_researcher_of_another_lab_is_refused(demo):
+    app, api, _ = demo
+    procs, containers = _ids(api)
+    other = api.call("POST", "/labs", {"code": "Z-9", "name": "Elsewhere"}, 201)["id"]
+    outsider = api.as_(make_user(app, "outsider@test.example", "researcher", lab_ids=[other]))
+    _get(outsider, f"/procedures/{procs['CdSe cores by hot injection']}/assessment.html", expect=403)
+    _get(outsider, f"/waste_containers/{containers['NG-W01']['id']}/manifest.pdf", expect=403)
+
+
+@pytest.mark.parametrize("size, mediabox", [("A4", (595, 842)), ("Letter", (612, 792))])  # ISO 216 / ANSI
+def test_page_size_setting(demo, size, mediabox):
+    app, api, _ = demo
+    _, containers = _ids(api)
+    app.config["PAGE_SIZE"] = size
+    try:
+        response = _get(api, f"/waste_containers/{containers['NG-W04']['id']}/manifest.pdf")
+    finally:
+        app.config["PAGE_SIZE"] = "A4"
+    box = PdfReader(io.BytesIO(response.data)).pages[0].mediabox
+    assert (round(float(box.width)), round(float(box.height))) == mediabox
+
+
+def _big_procedure(api: Api, title: str) -> int:
+    lab, place = api.lab_and_location()
+    oleic = api.substance_id("oleic acid")
+    stocks = [api.call("POST", "/stocks", {"label": f"BIG-{i:02d}", "substance_id": oleic, "lab_id": lab,
+                                           "location_id": place, "amount": "500 mL"}, 201)["id"] for i in range(60)]
+    body = {"lab_id": lab, "title": title,
+            "steps": [{"operation": "heat", "temperature_c": 100 + i, "atmosphere": "argon", "note": f"stage note {i:02d}"}
+                      for i in range(40)],
+            "draws": [{"stock_id": s, "amount": "1 mL"} for s in stocks], "waste_plan": []}
+    return api.call("POST", "/procedures", body, 201)["id"]
+
+
+def test_long_procedure_paginates_with_repeated_headers_and_escapes(demo):
+    app, api, _ = demo
+    ident = _big_procedure(api, "<script>alert(1)</script> big batch")
+    html = _get(api, f"/procedures/{ident}/assessment.html").get_data(as_text=True)
+    assert "<script>alert(1)</script>" not in html
+    assert "&lt;script&gt;alert(1)&lt;/script&gt; big batch" in html
+    _, pages = _text(_get(api, f"/procedures/{ident}/assessment.pdf").data)
+    assert len(pages) > 1
+    with_rows = [i for i, page in enumerate(pages) if re.search(r"BIG-\d\d", page)]
+    assert len(with_rows) > 1  # the substances table runs over more than one page
+    assert all("Stock / mixture" in pages[i] for i in with_rows)  # its header row repeats on each
+    with_steps = [i for i, page in enumerate(pages) if re.search(r"stage note \d\d", page)]
+    assert len(with_steps) > 1 and all("Atmosphere" in pages[i] for i in with_steps)
+
+
+def test_cli_print_writes_pdf_and_hash(demo, tmp_path):
+    app, api, _ = demo
+    procs, _ = _ids(api)
+    target = tmp_path / "ra.pdf"
+    result = CliRunner().invoke(service.cli.main, ["print", "assessment", str(procs["CdSe/ZnS core-shell growth"]),
+                                                   "--output", str(target)])
+    assert result.exit_code == 0, result.output
+    digest = re.search(r"SHA-256 ([0-9a-f]{64})", result.output).group(1)
+    assert str(target) in result.output
+    assert digest in _text(target.read_bytes())[1][0]
+    missing = CliRunner().invoke(service.cli.main, ["print", "manifest", "99999"])
+    assert missing.exit_code != 0
