@@ -12,6 +12,6 @@ def _site():
 
     return {"site": current_app.config["SITE_NAME"]}
 
-from service.web import account, pages  # noqa: E402,F401
+from service.web import account, pages, procedures, waste  # noqa: E402,F401
 
 __all__ = ["bp"]

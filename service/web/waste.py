@@ -1,0 +1,62 @@
+"""Waste container pages (read-only), rendered from the API's own JSON views."""
+
+from __future__ import annotations
+
+import datetime as dt
+
+from flask import render_template
+
+from service.api.waste import dump_container, dump_entry
+from service.auth import check_lab, lab_scope
+from service.store import inventory
+from service.store.db import get_session
+from service.store.models import WasteContainer, WasteEntry
+from service.web import bp
+
+# The elements the waste list shows a column for, in this order.
+WASTE_ELEMENTS = ("Cd", "Se", "Pb")
+
+
+@bp.get("/waste", endpoint="waste")
+def container_list():
+    query = get_session().query(WasteContainer).order_by(WasteContainer.id)
+    scope = lab_scope()
+    if scope is not None:
+        query = query.filter(WasteContainer.lab_id.in_(sorted(scope)))
+    return render_template("pages/waste.html", containers=[dump_container(c) for c in query],
+                           elements=WASTE_ELEMENTS)
+
+
+@bp.get("/waste/<int:ident>", endpoint="container")
+def container_page(ident: int):
+    session = get_session()
+    container = inventory.get(session, WasteContainer, ident)
+    check_lab(container.lab_id)
+    entries = session.query(WasteEntry).filter(WasteEntry.container_id == container.id).order_by(WasteEntry.id)
+    return render_template("pages/container.html", container=dump_container(container),
+                           entries=[dump_entry(e) for e in entries])
+
+
+@bp.app_template_filter("days_since")
+def days_since(iso: str | None) -> str:
+    """Whole days from an ISO timestamp to now (UTC), or "—" when there is none.
+
+    >>> days_since(None)
+    '—'
+    """
+    if not iso:
+        return "—"
+    then = dt.datetime.fromisoformat(iso)
+    if then.tzinfo is None:  # SQLite hands back naive UTC
+        then = then.replace(tzinfo=dt.timezone.utc)
+    return str((dt.datetime.now(dt.timezone.utc) - then).days)
+
+
+@bp.app_template_filter("day")
+def day(iso: str | None) -> str:
+    """The date part of an ISO timestamp (YYYY-MM-DD), or "—".
+
+    >>> day("2026-12-02T02:36:28+00:00")
+    '2026-12-02'
+    """
+    return iso[:10] if iso else "—"
