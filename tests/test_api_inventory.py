@@ -59,7 +59,7 @@ def test_mixture_content_worked_example(api):
             "components": [{"substance_id": api.substance_id("cadmium oxide"), "molarity": "0.20 mol/L"}]}
     mixture = api.call("POST", "/mixtures", body, 201)
     cd = next(e for e in mixture["elements"] if e["element"] == "Cd")
-    # 10.0 mL × 0.20 mol/L × 112.414 g/mol = 224.828 mg (REFERENCES.md worked value)
+    # 10.0 mL × 0.20 mol/L × 112.414 g/mol = 224.828 mg (worked value)
     assert cd["mass_ug"] == 224_828
     assert cd["mg_per_ml"] == pytest.approx(22.4828)
     halved = api.call("PATCH", f"/mixtures/{mixture['id']}", {"volume": "5.0 mL"})
@@ -141,3 +141,13 @@ def test_openapi_document_lists_every_resource(api):
         assert f"/api/v1/{name}" in document["paths"]
         assert f"/api/v1/{name}/{{ident}}/retire" in document["paths"]
     assert "StockIn" in document["components"]["schemas"]
+
+
+def test_openapi_document_covers_every_api_route(api, app):
+    document = api.call("GET", "/openapi.json")
+    operations = {(path, method) for path, item in document["paths"].items() for method in item}
+    for rule in app.url_map.iter_rules():
+        if rule.rule.startswith("/api/v1/") and rule.endpoint not in ("api.openapi", "api.index"):
+            path = rule.rule.replace("<int:", "<").replace("<", "{").replace(">", "}")
+            for method in rule.methods - {"HEAD", "OPTIONS"}:
+                assert (path, method.lower()) in operations, (path, method)

@@ -1,7 +1,7 @@
 """Run mass balance, checked against hand calculations.
 
 Atomic weights: CIAAW 2021 standard atomic weights (Prohaska et al., Pure Appl. Chem. 94,
-2022; REFERENCES.md "Atomic weights", seen): Cd 112.414, Se 78.971, O 15.999. The worked run:
+2022; the Atomic weights table, seen): Cd 112.414, Se 78.971, O 15.999. The worked run:
 0.2 mmol CdO and 0.4 mmol Se (as TOP-Se) in 1-octadecene; the outputs are example numbers
 chosen to sum exactly to the inputs. Every expected value below is worked out by hand in the
 test, not taken from the code.

@@ -17,7 +17,7 @@ from service.chem.units import MissingDensityError, QuantityError
 
 
 def test_cadmium_oleate_solution_worked_example():
-    # REFERENCES.md worked value: 10.0 mL × 0.20 mol/L × 1 Cd × 112.414 g/mol = 224.828 mg Cd.
+    # worked value from CIAAW 2021 atomic weights: 10.0 mL × 0.20 mol/L × 1 Cd × 112.414 g/mol = 224.828 mg Cd.
     masses = mixture_element_masses_ug("10.0 mL", [Component("cadmium oleate", "Cd(C18H33O2)2", molarity="0.20 mol/L")])
     assert masses["Cd"] == 224_828
     assert round(masses["Cd"] / 1000, 1) == 224.8

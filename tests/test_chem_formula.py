@@ -53,7 +53,7 @@ def test_mass_fractions_agree_with_molmass(formula):
         assert ours[symbol] == pytest.approx(fraction, abs=1e-4), symbol
 
 
-# Worked from CIAAW 2021 standard atomic weights (REFERENCES.md "Atomic weights").
+# Worked from CIAAW 2021 standard atomic weights ("Atomic weights").
 @pytest.mark.parametrize(
     "formula, element, percent",
     [

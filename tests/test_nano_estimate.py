@@ -1,7 +1,7 @@
 """Tests for service.nano.estimate: Beer–Lambert concentration and element masses.
 
 Hand calculations: Beer–Lambert law A = ε·c·l; Yu, Qu, Guo, Peng, Chem. Mater. 2003, 15,
-2854-2860 for D(λ) and ε(D) of CdSe (equations as in REFERENCES.md, transcribed literally
+2854-2860 for D(λ) and ε(D) of CdSe (equations as published, transcribed literally
 here); Kasap bulk densities (CdSe 5.81 g/cm³; ZnS 4.09 g/cm³, 2nd); CIAAW 2021 atomic weights;
 N_A = 6.02214076e23 /mol (SI exact); monolayer thicknesses are common practice.
 """

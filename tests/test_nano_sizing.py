@@ -1,7 +1,7 @@
 """Tests for service.nano.sizing: diameter and extinction coefficient from the first exciton.
 
 Source of the relations: Yu, Qu, Guo, Peng, Chem. Mater. 2003, 15, 2854-2860 (equations as
-given in REFERENCES.md, "Nanocrystal optics"; status 2nd). The functions below are a literal,
+as published, "Nanocrystal optics"; status 2nd). The functions below are a literal,
 independent transcription of those printed equations, written out term by term.
 """
 
@@ -74,7 +74,7 @@ def test_relations_reproduce_published_equations(material, wavelength_nm):
     )
 
 
-# Source: REFERENCES.md, "Nanocrystal optics". These rounded values were *derived* from the
+# Source: "Nanocrystal optics". These rounded values were *derived* from the
 # Yu et al. 2003 equations (not published in the paper), so they are checked to their rounding.
 @pytest.mark.parametrize(
     "material, wavelength_nm, diameter_nm, epsilon",

@@ -1,6 +1,6 @@
 """Waste-container measures and the shipped waste rules, checked against 40 CFR and the EU List of Waste.
 
-Sources (REFERENCES.md): 40 CFR 261.24 Table 1 — D006 Cd 1.0 mg/L (seen), D010 Se 1.0 mg/L
+Sources: 40 CFR 261.24 Table 1 — D006 Cd 1.0 mg/L (seen), D010 Se 1.0 mg/L
 (2nd), D022 chloroform 6.0 mg/L (seen); 261.24(a) < 0.5 % filterable solids: the waste is its
 own extract (seen); 261.21(a)(1) D001 flash point < 60 °C (seen); 261.31 F003 acetone (seen),
 F005 toluene ≥ 10 % by volume (2nd), chloroform and hexane not F-listed (seen); 262.15 satellite
@@ -244,7 +244,7 @@ def test_vocabulary_lists_every_container_measure():
 
 
 def test_every_shipped_waste_rule_names_its_source_status(packs):
-    """Status words of REFERENCES.md: seen, 2nd, from memory; or the site policy."""
+    """Status words: seen, 2nd, from memory; or the site policy."""
     for active in packs.rules_for("waste_container"):
         assert any(word in active.rule.source for word in ("seen", "2nd", "from memory", "site policy")), active.id
         assert "safety officer" in active.disclaimer

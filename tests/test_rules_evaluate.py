@@ -1,6 +1,6 @@
 """Evaluating rules: exact threshold boundaries, temperature rules, findings and their order.
 
-Physical values, REFERENCES.md "Physical data": 1-octadecene flash point ≈149 °C (from
+Physical values, the Physical data table: 1-octadecene flash point ≈149 °C (from
 memory); toluene 4 °C (Prudent Practices in the Laboratory, seen); trioctylphosphine
 air-sensitive (from memory). Unit relations: SI prefixes (SI Brochure, 9th ed.), 0 °C = 273.15 K.
 """

@@ -1,6 +1,6 @@
 """The measure registry and the procedure measures.
 
-Physical values, REFERENCES.md "Physical data": toluene flash point 4 °C and n-hexane −22 °C
+Physical values, the Physical data table: toluene flash point 4 °C and n-hexane −22 °C
 (Prudent Practices in the Laboratory, seen); chloroform has no flash point (NAS 2016, seen);
 1-octadecene ≈149 °C and trioctylphosphine ≈146 °C, air-sensitive (from memory).
 """

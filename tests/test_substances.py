@@ -2,7 +2,7 @@
 
 The expected values in these tables are written from outside sources — the CAS check-digit
 rule, the CLP Regulation (EC) No 1272/2008 (Annex I criteria, Annex III wording, Article 26
-pictogram precedence), the handbooks quoted in /work/shared/REFERENCES.md — not copied from the
+pictogram precedence), the handbooks quoted in the published sources named below — not copied from the
 YAML. Each table names its source and its status: *seen* (read in the published text), *2nd*
 (read in a faithful secondary copy) or *memory* (recalled, to be confirmed).
 """
@@ -320,7 +320,7 @@ def test_every_code_used_has_text():
 
 # --------------------------------------------------------------- physical data ----
 
-# REFERENCES.md "Physical data" (status seen): NAS, Chemical Laboratory Safety and Security (2016),
+# the Physical data table (status seen): NAS, Chemical Laboratory Safety and Security (2016),
 # App. D (acetone, ethanol, chloroform); Merck Index (methanol); Prudent Practices in the
 # Laboratory, LCSS (toluene, n-hexane; NIOSH Pocket Guide for n-hexane). None = no flash point.
 PHYSICAL_SEEN = [
@@ -342,14 +342,14 @@ def test_solvent_physical_data_match_the_handbooks(name, bp, flash, density):
 
 
 def test_oleic_acid_bp_and_density_seen():
-    # REFERENCES.md: oleic acid bp 360 °C, density 0.89 g/mL (seen); flash point ≈189 °C (memory).
+    # the published sources: oleic acid bp 360 °C, density 0.89 g/mL (seen); flash point ≈189 °C (memory).
     entry = by_name("oleic acid")
     assert entry.boiling_point_c == pytest.approx(360)
     assert entry.density_g_per_ml == pytest.approx(0.89)
     assert entry.flash_point_c == pytest.approx(189, abs=5)  # from memory — verify
 
 
-# High-boiling liquids of hot-injection syntheses (REFERENCES.md, status memory): closed-cup flash
+# High-boiling liquids of hot-injection syntheses (status memory): closed-cup flash
 # points, all well below a 300 °C synthesis step — the reason these syntheses run under inert gas.
 @pytest.mark.parametrize(
     "name, flash",
@@ -362,7 +362,7 @@ def test_high_boiling_liquids_flash_below_300_c(name, flash):
 
 
 def test_octadecene_autoignition_below_synthesis_temperature():
-    # REFERENCES.md: 1-octadecene autoignition ≈250 °C (memory) — below 300 °C as well.
+    # the published sources: 1-octadecene autoignition ≈250 °C (memory) — below 300 °C as well.
     assert by_name("1-octadecene").autoignition_c == pytest.approx(250, abs=10)
 
 
@@ -437,7 +437,7 @@ def test_formula_weight(name, molar_mass):
     assert by_name(name).parsed_formula.molar_mass_g_per_mol == pytest.approx(molar_mass, rel=1e-3)
 
 
-# REFERENCES.md worked values, computed from CIAAW 2021 standard atomic weights (seen):
+# worked value from CIAAW 2021 atomic weightss, computed from CIAAW 2021 standard atomic weights (seen):
 # Cd in CdO 87.54 %, Cd in Cd(CH3COO)2·2H2O 42.18 %.
 @pytest.mark.parametrize("name, fraction", [("cadmium oxide", 0.8754), ("cadmium acetate dihydrate", 0.4218)])
 def test_cadmium_mass_fraction(name, fraction):
@@ -455,7 +455,7 @@ def _molmass_text(formula: str) -> str:
 
 @pytest.mark.parametrize("key", KEYS)
 def test_molar_mass_agrees_with_an_independent_parser(key):
-    # Cross-check against molmass (its own element table). REFERENCES.md: the two agree within
+    # Cross-check against molmass (its own element table). the published sources: the two agree within
     # 0.01 % for compounds (CdS 144.479 vs 144.474); for elemental sulfur (32.06 vs 32.065) the
     # difference is 0.015 %, hence 0.02 % here — still far below one H atom in 2000 g/mol.
     molmass = pytest.importorskip("molmass")
@@ -465,7 +465,7 @@ def test_molar_mass_agrees_with_an_independent_parser(key):
 
 
 def test_atomic_weights_are_ciaaw_2021():
-    # REFERENCES.md (seen): CIAAW 2021 standard atomic weights as shipped in periodictable.
+    # Seen: CIAAW 2021 standard atomic weights as shipped in periodictable.
     for symbol, weight in {"Cd": 112.414, "Se": 78.971, "Pb": 207.2, "Zn": 65.38, "Te": 127.60}.items():
         assert atomic_weight(symbol) == pytest.approx(weight, abs=1e-3)
 
@@ -651,6 +651,6 @@ def test_cadmium_compounds_are_carc_1b(name):
 
 @pytest.mark.parametrize("name", ["lead(II) bromide", "lead(II) iodide", "lead(II) oxide", "lead(II) acetate trihydrate"])
 def test_lead_compounds_are_repr_1a(name):
-    # CLP Annex VI lead compounds: Repr. 1A H360Df (REFERENCES.md, status memory).
+    # CLP Annex VI lead compounds: Repr. 1A H360Df (status memory).
     entry = by_name(name)
     assert "Repr. 1A" in entry.hazard.classes and "H360Df" in entry.hazard.h_statements
