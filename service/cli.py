@@ -284,3 +284,79 @@ def export(name: str, by: str | None, since, until, element: str | None, fmt: st
     output.write_bytes(to_csv_bytes(frame) if fmt == "csv" else to_xlsx_bytes(frame, sheet=name))
     click.echo(f"wrote {len(frame)} row(s) of the {name} report to {output}")
     click.echo(CAUTION)
+
+
+@main.command()
+@click.option("--core", type=click.Choice(["CdSe", "CdTe", "CdS"]), required=True)
+@click.option("--wavelength", "wavelength_nm", type=float, required=True, help="First excitonic peak, nm.")
+@click.option("--absorbance", type=float, required=True, help="Absorbance at the peak of the measured sample.")
+@click.option("--path", "path_length_cm", type=float, default=1.0, show_default=True, help="Path length, cm.")
+@click.option("--dilution", "dilution_factor", type=float, default=1.0, show_default=True,
+              help="Dispersion volume over measured aliquot volume.")
+@click.option("--volume", required=True, help='Volume of the undiluted dispersion, e.g. "4 mL".')
+@click.option("--shell", type=click.Choice(["ZnS", "CdS"]), default=None)
+@click.option("--monolayers", "shell_monolayers", type=float, default=0.0, show_default=True)
+def estimate(**options) -> None:
+    """Estimate the metal content of a nanocrystal dispersion from its absorbance."""
+    from pydantic import ValidationError
+
+    from service import estimates
+    from service.chem.units import QuantityError
+    from service.nano import NanoError
+    from service.schemas import EstimateIn
+
+    try:
+        result = estimates.as_dict(estimates.estimate(EstimateIn(**options)))
+    except ValidationError as exc:
+        raise click.ClickException("; ".join(f"{'.'.join(map(str, e['loc']))}: {e['msg']}" for e in exc.errors()))
+    except (NanoError, QuantityError) as exc:
+        raise click.ClickException(str(exc)) from None
+    click.echo(f"{result['core']}{'/' + result['shell'] if result['shell'] else ''} at {result['wavelength_nm']:g} nm: "
+               f"core diameter {result['core_diameter_nm']:.2f} nm, "
+               f"ε {result['extinction_per_m_per_cm']:.3g} M⁻¹ cm⁻¹, "
+               f"particles {result['particle_concentration_mol_per_l']:.3g} mol/L")
+    for row in result["elements"]:
+        click.echo(f"  {row['element']:<2} {row['mass_mg']:10.3f} mg  (± {100 * row['relative_uncertainty']:.0f} %)")
+    click.echo(result["caution"])
+
+
+@main.group(name="print")
+def print_group() -> None:
+    """Write a printed document (PDF): a risk assessment or a waste manifest."""
+
+
+def _print_document(kind: str, ident: int, output: Path | None) -> None:
+    from service import documents
+    from service.store import inventory
+    from service.store.db import get_session
+    from service.store.models import Procedure, WasteContainer
+
+    app = _app()
+    model, build = (Procedure, documents.assessment_for) if kind == "assessment" else (WasteContainer,
+                                                                                        documents.manifest_for)
+    with app.test_request_context():
+        try:
+            doc = build(inventory.get(get_session(), model, ident))
+        except LookupError as exc:
+            raise click.ClickException(str(exc)) from None
+        pdf = doc.pdf()
+    target = output or Path(f"{doc.filename}.pdf")
+    target.write_bytes(pdf)
+    click.echo(str(target))
+    click.echo(f"SHA-256 {doc.sha256}")
+
+
+@print_group.command(name="assessment")
+@click.argument("ident", type=int)
+@click.option("--output", type=click.Path(dir_okay=False, path_type=Path), help="PDF file to write.")
+def print_assessment(ident: int, output: Path | None) -> None:
+    """Write the risk-assessment sheet of procedure IDENT as PDF; print the path and the data SHA-256."""
+    _print_document("assessment", ident, output)
+
+
+@print_group.command(name="manifest")
+@click.argument("ident", type=int)
+@click.option("--output", type=click.Path(dir_okay=False, path_type=Path), help="PDF file to write.")
+def print_manifest(ident: int, output: Path | None) -> None:
+    """Write the waste manifest of container IDENT as PDF; print the path and the data SHA-256."""
+    _print_document("manifest", ident, output)

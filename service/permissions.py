@@ -66,6 +66,7 @@ MATRIX: dict[str, frozenset[str]] = {
     "api.add_run_output": frozenset({"researcher", "lab_manager", "admin"}),
     "api.add_run_loss": frozenset({"researcher", "lab_manager", "admin"}),
     "api.close_run": frozenset({"researcher", "lab_manager", "admin"}),
+    "api.create_estimate": EVERYONE,  # a calculation; nothing is stored
     # waste containers: researchers add entries; the safety officer and lab manager run the containers
     "api.list_waste_containers": EVERYONE,
     "api.read_waste_containers": EVERYONE,
@@ -76,10 +77,21 @@ MATRIX: dict[str, frozenset[str]] = {
     "api.mark_full_waste_container": frozenset({"researcher", "lab_manager", "safety_officer", "admin"}),
     "api.request_pickup_waste_container": frozenset({"lab_manager", "safety_officer", "admin"}),
     "api.collect_waste_container": frozenset({"safety_officer", "admin"}),
+    # printed documents (risk assessment, waste manifest): read-only, everyone; researchers lab-scoped
+    "api.procedure_assessment_pdf": EVERYONE,
+    "api.procedure_assessment_html": EVERYONE,
+    "api.waste_container_manifest_pdf": EVERYONE,
+    "api.waste_container_manifest_html": EVERYONE,
     # pages
     "web.overview": EVERYONE,
     "web.stocks": EVERYONE,
     "web.mixtures": EVERYONE,
+    "web.procedures": EVERYONE,
+    "web.procedure": EVERYONE,
+    "web.review": frozenset({"safety_officer", "auditor", "admin"}),  # as api.review_queue
+    "web.waste": EVERYONE,
+    "web.container": EVERYONE,
+    "web.run": EVERYONE,
 }
 for _name, _writers in _INVENTORY_WRITERS.items():
     MATRIX[f"api.list_{_name}"] = EVERYONE

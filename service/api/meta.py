@@ -54,12 +54,30 @@ def openapi_document() -> dict:
         paths[f"/api/v1/{res.name}/{{ident}}/retire"] = {
             "post": {"summary": f"retire one of {res.name}", "parameters": ident, "responses": ok}
         }
+    _add_other_routes(paths, errors)
     return {
         "openapi": "3.1.0",
         "info": {"title": "dotledger API", "version": current_app.config.get("VERSION", "0")},
         "paths": paths,
         "components": {"schemas": schemas},
     }
+
+
+def _add_other_routes(paths: dict, errors: dict) -> None:
+    """Every other /api/v1 route, described from its view's docstring and path parameters."""
+    import re
+
+    for rule in current_app.url_map.iter_rules():
+        if not rule.rule.startswith("/api/v1/") or rule.endpoint in ("api.openapi", "api.index"):
+            continue
+        path = re.sub(r"<(?:\w+:)?(\w+)>", r"{\1}", rule.rule)
+        view = current_app.view_functions[rule.endpoint]
+        summary = (view.__doc__ or rule.endpoint.split(".", 1)[1].replace("_", " ")).strip().splitlines()[0]
+        params = [{"name": a, "in": "path", "required": True, "schema": {"type": "integer"}} for a in sorted(rule.arguments)]
+        for method in sorted(rule.methods - {"HEAD", "OPTIONS"}):
+            paths.setdefault(path, {}).setdefault(method.lower(), {
+                "summary": summary, "operationId": rule.endpoint, "parameters": params,
+                "responses": {"200": {"description": "success"}, **errors}})
 
 
 @bp.get("/")
