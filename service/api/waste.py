@@ -70,13 +70,8 @@ def _visible(ident: int) -> WasteContainer:
 
 @bp.get("/waste_containers", endpoint="list_waste_containers")
 def list_containers():
-    query = get_session().query(WasteContainer).order_by(WasteContainer.id)
-    scope = lab_scope()
-    if scope is not None:
-        query = query.filter(WasteContainer.lab_id.in_(sorted(scope)))
-    if request.args.get("state"):
-        query = query.filter(WasteContainer.state == request.args["state"])
-    return jsonify({"items": [dump_container(c) for c in query]})
+    found = waste.list_containers(get_session(), lab_ids=lab_scope(), state=request.args.get("state"))
+    return jsonify({"items": [dump_container(c) for c in found]})
 
 
 @bp.post("/waste_containers", endpoint="create_waste_containers")
@@ -95,8 +90,7 @@ def read_container(ident: int):
 @bp.get("/waste_containers/<int:ident>/entries", endpoint="list_waste_entries")
 def list_entries(ident: int):
     container = _visible(ident)
-    entries = get_session().query(WasteEntry).filter(WasteEntry.container_id == container.id).order_by(WasteEntry.id)
-    return jsonify({"items": [dump_entry(e) for e in entries]})
+    return jsonify({"items": [dump_entry(e) for e in waste.entries_of(get_session(), container)]})
 
 
 @bp.post("/waste_containers/<int:ident>/entries", endpoint="add_waste_entry")

@@ -7,7 +7,7 @@ with the pure core and flush, so that conflicts surface here as domain errors.
 from __future__ import annotations
 
 from decimal import Decimal
-from typing import Any, Iterable, Optional, TypeVar
+from typing import Any, Optional, TypeVar
 
 from pydantic import BaseModel
 from sqlalchemy import exists, func, select

@@ -32,7 +32,7 @@ from service.store.models import (
 )
 
 __all__ = ["SOLID_STREAMS", "Contents", "create_container", "add_entry", "reverse_entry", "contents_of",
-           "subject_of", "move", "element_masses_ug"]
+           "subject_of", "move", "element_masses_ug", "list_containers", "entries_of"]
 
 SOLID_STREAMS = frozenset({"contaminated_solids", "sharps"})
 _HALOGENS = frozenset({"F", "Cl", "Br", "I"})
@@ -223,3 +223,20 @@ def subject_of(session: Session, container: WasteContainer, contents: Contents,
         filterable_solids_percent=contents.filterable_solids_percent,
         days_since_first_entry=_days(container.first_entry_at, now), days_since_full=_days(container.full_at, now),
         acute_hazardous=container.acute_hazardous)
+
+
+def list_containers(session: Session, *, lab_ids: Optional[set[int]] = None,
+                    state: Optional[str] = None) -> list[WasteContainer]:
+    """Containers in id order, optionally for some labs or in one state."""
+    query = select(WasteContainer).order_by(WasteContainer.id)
+    if lab_ids is not None:
+        query = query.where(WasteContainer.lab_id.in_(sorted(lab_ids)))
+    if state:
+        query = query.where(WasteContainer.state == state)
+    return list(session.scalars(query))
+
+
+def entries_of(session: Session, container: WasteContainer) -> list[WasteEntry]:
+    """A container's entries in the order they were made."""
+    return list(session.scalars(select(WasteEntry).where(WasteEntry.container_id == container.id)
+                                .order_by(WasteEntry.id)))

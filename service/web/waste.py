@@ -8,9 +8,9 @@ from flask import render_template
 
 from service.api.waste import dump_container, dump_entry
 from service.auth import check_lab, lab_scope
-from service.store import inventory
+from service.store import inventory, waste
 from service.store.db import get_session
-from service.store.models import WasteContainer, WasteEntry
+from service.store.models import WasteContainer
 from service.web import bp
 
 # The elements the waste list shows a column for, in this order.
@@ -19,11 +19,8 @@ WASTE_ELEMENTS = ("Cd", "Se", "Pb")
 
 @bp.get("/waste", endpoint="waste")
 def container_list():
-    query = get_session().query(WasteContainer).order_by(WasteContainer.id)
-    scope = lab_scope()
-    if scope is not None:
-        query = query.filter(WasteContainer.lab_id.in_(sorted(scope)))
-    return render_template("pages/waste.html", containers=[dump_container(c) for c in query],
+    found = waste.list_containers(get_session(), lab_ids=lab_scope())
+    return render_template("pages/waste.html", containers=[dump_container(c) for c in found],
                            elements=WASTE_ELEMENTS)
 
 
@@ -32,9 +29,8 @@ def container_page(ident: int):
     session = get_session()
     container = inventory.get(session, WasteContainer, ident)
     check_lab(container.lab_id)
-    entries = session.query(WasteEntry).filter(WasteEntry.container_id == container.id).order_by(WasteEntry.id)
     return render_template("pages/container.html", container=dump_container(container),
-                           entries=[dump_entry(e) for e in entries])
+                           entries=[dump_entry(e) for e in waste.entries_of(session, container)])
 
 
 @bp.app_template_filter("days_since")
