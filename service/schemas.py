@@ -4,13 +4,15 @@ from __future__ import annotations
 
 import datetime as dt
 from decimal import Decimal
-from typing import Literal, Optional
+from typing import Annotated, Literal, Optional
 
-from pydantic import BaseModel, ConfigDict, Field, SecretStr, model_validator
+from pydantic import AfterValidator, BaseModel, ConfigDict, Field, SecretStr, model_validator
 
+from service.chem.formula import atomic_weight
 from service.chem.substances import Substance as CatalogueSubstance
 
 __all__ = [
+    "ElementSymbol",
     "LabIn",
     "LabPatch",
     "LocationIn",
@@ -46,6 +48,18 @@ __all__ = [
 ]
 
 LocationKind = Literal["storage", "satellite_accumulation_area"]
+
+
+def _element_symbol(value: str) -> str:
+    try:
+        atomic_weight(value)
+    except ValueError:
+        raise ValueError(f"{value!r} is not an element symbol (e.g. Cd, Se, Pb)") from None
+    return value
+
+
+# An element symbol checked against the periodic table ("Cd", not "cd" or "Qq").
+ElementSymbol = Annotated[str, AfterValidator(_element_symbol)]
 
 
 class _Body(BaseModel):
@@ -239,12 +253,12 @@ Stream = Literal["non_halogenated_solvent_heavy_metals", "halogenated_solvent_he
 
 
 class ElementAmountIn(_Body):
-    element: str = Field(min_length=1, max_length=3)
+    element: ElementSymbol
     mass: str = Field(description='e.g. "2.5 mg"')
 
 
 class AssayIn(_Body):
-    element: str = Field(min_length=1, max_length=3)
+    element: ElementSymbol
     concentration: str = Field(description='measured concentration, e.g. "12.5 mg/L" (ICP-OES of a digest)')
     volume: str = Field(description='volume the concentration applies to, e.g. "4.0 mL"')
 

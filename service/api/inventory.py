@@ -9,14 +9,14 @@ from dataclasses import dataclass
 from typing import Callable, Optional
 
 from flask import jsonify, request
-from pydantic import BaseModel, ConfigDict, Field, field_validator
+from pydantic import BaseModel, ConfigDict, Field
 
 from service import schemas
 from service.api import bp
 from service.api.errors import ApiError
 from service.api.serialize import dump
 from service.auth import check_lab, lab_scope
-from service.chem.formula import atomic_weight
+from service.schemas import ElementSymbol
 from service.store import inventory
 from service.store.db import get_session
 from service.store.models import Lab, Location, Mixture, Stock, Substance
@@ -28,19 +28,9 @@ class ListQuery(BaseModel):
     lab_id: Optional[int] = None
     location_id: Optional[int] = None
     substance_id: Optional[int] = None
-    element: Optional[str] = None
+    element: Optional[ElementSymbol] = None
     limit: int = Field(default=100, ge=1, le=1000)
     offset: int = Field(default=0, ge=0)
-
-    @field_validator("element")
-    @classmethod
-    def _element(cls, value: Optional[str]) -> Optional[str]:
-        if value is not None:
-            try:
-                atomic_weight(value)
-            except ValueError:
-                raise ValueError(f"{value!r} is not an element symbol (e.g. Cd, Se, Pb)") from None
-        return value
 
 
 def json_body(model: type[BaseModel]) -> BaseModel:

@@ -16,7 +16,7 @@ from pydantic import BaseModel, ConfigDict, Field, field_validator, model_valida
 
 from service.api import bp
 from service.auth import lab_scope
-from service.chem.formula import atomic_weight
+from service.schemas import ElementSymbol
 from service.store import ledger
 from service.store.db import get_session
 
@@ -27,7 +27,7 @@ class _ReportQuery(BaseModel):
     model_config = ConfigDict(extra="forbid")
     report: ClassVar[str]
     by: tuple[str, ...] = Field(default=(), validate_default=True)  # "a,b,c" in the query; () = default
-    element: Optional[str] = None
+    element: Optional[ElementSymbol] = None
     format: Literal["json", "csv", "xlsx"] = "json"
 
     @field_validator("by", mode="before")
@@ -35,16 +35,6 @@ class _ReportQuery(BaseModel):
     def _split(cls, value):
         if isinstance(value, str):
             return tuple(part.strip() for part in value.split(",") if part.strip())
-        return value
-
-    @field_validator("element")
-    @classmethod
-    def _element(cls, value: Optional[str]) -> Optional[str]:
-        if value is not None:
-            try:
-                atomic_weight(value)
-            except ValueError:
-                raise ValueError(f"{value!r} is not an element symbol (e.g. Cd, Se, Pb)") from None
         return value
 
     @field_validator("by", mode="after")

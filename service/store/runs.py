@@ -8,7 +8,6 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from service.chem.content import round_ug
-from service.chem.formula import atomic_weight
 from service.chem.units import kind_of, parse_quantity, to_decimal
 from service.errors import Blocked, Conflict, InvalidInput
 from service.rules import LayeredRules, evaluate
@@ -126,7 +125,6 @@ def add_output(session: Session, run: Run, body: OutputIn) -> RunOutput:
     elif body.assays:
         masses = {}
         for i, assay in enumerate(body.assays):
-            atomic_weight_ok(assay.element, f"assays[{i}].element")
             c = to_decimal(parse_quantity(assay.concentration, field=f"assays[{i}].concentration"), "ug/mL")
             v = to_decimal(parse_quantity(assay.volume, expect="volume", field=f"assays[{i}].volume"), "mL")
             masses[assay.element] = masses.get(assay.element, 0) + round_ug(c * v)
@@ -138,13 +136,6 @@ def add_output(session: Session, run: Run, body: OutputIn) -> RunOutput:
     run.outputs.append(output)
     session.flush()
     return output
-
-
-def atomic_weight_ok(symbol: str, field: str) -> None:
-    try:
-        atomic_weight(symbol)
-    except ValueError:
-        raise InvalidInput(field, f"{symbol!r} is not an element symbol") from None
 
 
 def add_loss(session: Session, run: Run, body: LossIn) -> RunLoss:

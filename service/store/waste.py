@@ -14,7 +14,7 @@ from typing import Optional
 from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 
-from service.chem.formula import atomic_weight, parse_formula
+from service.chem.formula import parse_formula
 from service.chem.units import QuantityError, parse_quantity, to_decimal
 from service.errors import Conflict, InvalidInput
 from service.rules.subjects import ContainerComponent, ContainerSubject
@@ -47,11 +47,7 @@ MOVES = {
 def element_masses_ug(rows: list[ElementAmountIn], field: str = "elements") -> dict[str, int]:
     """Element amounts as {symbol: µg}; a repeated element is an error, not a silent sum."""
     out: dict[str, int] = {}
-    for i, row in enumerate(rows):
-        try:
-            atomic_weight(row.element)
-        except ValueError:
-            raise InvalidInput(f"{field}[{i}].element", f"{row.element!r} is not an element symbol") from None
+    for i, row in enumerate(rows):  # symbols are checked by the schema (ElementSymbol)
         if row.element in out:
             raise InvalidInput(f"{field}[{i}].element", f"{row.element} is given twice")
         quantity = parse_quantity(row.mass, expect="mass", field=f"{field}[{i}].mass")
