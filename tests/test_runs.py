@@ -120,3 +120,12 @@ def test_only_approved_procedures_run(approved):
                                            "steps": [{"operation": "heat", "temperature_c": 100, "atmosphere": "argon"}],
                                            "draws": [{"stock_id": approved["stocks"]["Se"], "amount": "1 mg"}]}, 201)
     r.call("POST", "/runs", {"procedure_id": draft["id"]}, 409)
+
+
+def test_listing_runs_by_procedure(approved, client, app):
+    run = approved["researcher"].call("POST", "/runs", {"procedure_id": approved["proc"]["id"]}, 201)
+    listed = approved["researcher"].call("GET", f"/runs?procedure_id={approved['proc']['id']}")["items"]
+    assert [r["id"] for r in listed] == [run["id"]]
+    assert approved["researcher"].call("GET", "/runs?procedure_id=999")["items"] == []
+    outsider = Api(client, make_user(app, "out@test.example", "researcher"))  # member of no lab
+    assert outsider.call("GET", "/runs")["items"] == []

@@ -12,7 +12,7 @@ from service.api.serialize import element_rows_from
 from service.auth import check_lab, current_user, lab_scope
 from service.store import inventory, runs
 from service.store.db import get_session
-from service.store.models import Run
+from service.store.models import Procedure, Run
 
 CAUTION = ("The balance is a record for the lab's own use; estimated outputs carry the uncertainty of their "
            "method. Waste classification rests with the site safety officer and local regulations.")
@@ -57,21 +57,15 @@ def _visible(ident: int) -> Run:
 
 @bp.get("/runs", endpoint="list_runs")
 def list_runs():
-    query = get_session().query(Run).order_by(Run.id)
-    scope = lab_scope()
-    if scope is not None:
-        query = query.filter(Run.lab_id.in_(sorted(scope)))
-    if request.args.get("procedure_id", "").isdigit():
-        query = query.filter(Run.procedure_id == int(request.args["procedure_id"]))
-    return jsonify({"items": [dump_run(r, with_balance=False) for r in query]})
+    raw = request.args.get("procedure_id", "")
+    found = runs.list_runs(get_session(), lab_ids=lab_scope(), procedure_id=int(raw) if raw.isdigit() else None)
+    return jsonify({"items": [dump_run(r, with_balance=False) for r in found]})
 
 
 @bp.post("/runs", endpoint="create_runs")
 def start_run():
     body = json_body(schemas.RunIn)
     session = get_session()
-    from service.store.models import Procedure
-
     proc = inventory.get(session, Procedure, body.procedure_id, field="procedure_id")
     check_lab(proc.lab_id)
     run = runs.start_run(session, body, current_user(), current_app.extensions["dotledger.rules"])

@@ -28,7 +28,7 @@ from service.store.models import (
 )
 from service.store.waste import element_masses_ug
 
-__all__ = ["start_run", "add_output", "add_loss", "flows_of", "balance_of", "close_run"]
+__all__ = ["list_runs", "start_run", "add_output", "add_loss", "flows_of", "balance_of", "close_run"]
 
 
 def _format(value: Decimal, unit: str) -> str:
@@ -191,3 +191,13 @@ class UnbalancedRun(Conflict):
     def __init__(self, balance) -> None:
         super().__init__("the mass balance does not close within the site tolerance")
         self.balance = balance
+
+
+def list_runs(session: Session, *, lab_ids: set[int] | None = None, procedure_id: int | None = None) -> list[Run]:
+    """Runs in id order, optionally for some labs or of one procedure."""
+    query = select(Run).order_by(Run.id)
+    if lab_ids is not None:
+        query = query.where(Run.lab_id.in_(sorted(lab_ids)))
+    if procedure_id is not None:
+        query = query.where(Run.procedure_id == procedure_id)
+    return list(session.scalars(query))
