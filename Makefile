@@ -2,25 +2,48 @@
 PYTHON ?= python3
 VENV   := .venv
 BIN    := $(VENV)/bin
+LOCK   := requirements/lock.txt
+PIP    := $(BIN)/pip install --quiet --disable-pip-version-check
 
-.PHONY: demo test venv clean
+.PHONY: demo test venv system-run system-test lock clean
 
-# A virtual environment with dotledger and its test dependencies, rebuilt when pyproject.toml changes.
-$(VENV)/.installed: pyproject.toml
+# Operating-system packages (Pango, HarfBuzz-subset, DejaVu fonts, venv; Chromium for the tests):
+# installed with apt-get when run as root, else one line names what to install.
+system-run:
+	@PYTHON=$(PYTHON) bash requirements/system.sh run
+system-test:
+	@PYTHON=$(PYTHON) bash requirements/system.sh test
+
+# A virtual environment with the exact versions of the lock file (the test extras included),
+# then dotledger itself; rebuilt when pyproject.toml or the lock changes. The last line fails
+# when WeasyPrint warns at import (a missing system library).
+$(VENV)/.installed: pyproject.toml $(LOCK)
+	rm -rf $(VENV)
 	$(PYTHON) -m venv $(VENV)
-	$(BIN)/pip install --quiet --disable-pip-version-check -e '.[test]'
+	$(PIP) -r $(LOCK)
+	$(PIP) --no-deps --no-build-isolation -e .
+	$(BIN)/python -W error -c "import weasyprint"
 	touch $@
 
-venv: $(VENV)/.installed
+venv: system-run $(VENV)/.installed
 
 # Set up, create the SQLite database with the demo scenario, serve on http://127.0.0.1:8000
-demo: venv
+demo: system-run $(VENV)/.installed
 	$(BIN)/dotledger demo
-	DOTLEDGER_SITE_NAME="Northgate Institute of Materials" $(BIN)/dotledger serve --host 127.0.0.1 --port 8000
+	$(BIN)/dotledger serve --host 127.0.0.1 --port 8000
 
 # Set up and run the whole test suite
-test: venv
+test: system-test $(VENV)/.installed
 	$(BIN)/python -m pytest
 
+# Refresh requirements/lock.txt from pyproject.toml (newest versions within its bounds).
+lock:
+	$(PYTHON) -m venv $(VENV)-lock
+	$(VENV)-lock/bin/pip install --quiet --disable-pip-version-check pip-tools
+	CUSTOM_COMPILE_COMMAND="make lock" $(VENV)-lock/bin/pip-compile --quiet --upgrade --strip-extras \
+	  --allow-unsafe --all-build-deps --no-emit-index-url --no-emit-find-links \
+	  --extra test --extra postgres -o $(LOCK) pyproject.toml
+	rm -rf $(VENV)-lock
+
 clean:
-	rm -rf $(VENV) instance .pytest_cache
+	rm -rf $(VENV) $(VENV)-lock instance .pytest_cache

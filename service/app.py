@@ -6,7 +6,8 @@ from typing import Any, Mapping, Optional
 
 from flask import Flask
 
-from service.config import PROJECT_ROOT, load_config
+from service.config import load_config
+from service.resources import TEMPLATES_DIR, default_instance_path
 
 __all__ = ["create_app"]
 
@@ -15,8 +16,8 @@ def create_app(test_config: Optional[Mapping[str, Any]] = None) -> Flask:
     """Create the app: defaults, then ``DOTLEDGER_*`` environment, then ``test_config``."""
     app = Flask(
         __name__,
-        instance_path=str(PROJECT_ROOT / "instance"),
-        template_folder=str(PROJECT_ROOT / "templates"),
+        instance_path=str(default_instance_path()),
+        template_folder=str(TEMPLATES_DIR),
         static_folder="web/static",
     )
     app.config.update(load_config(app.instance_path, test_config))

@@ -14,7 +14,13 @@ __all__ = ["main"]
 
 
 def _app():
-    return create_app()
+    app = create_app()
+    # Close the pooled connections when the command ends (a long-lived caller, such as a test
+    # runner invoking many commands, would otherwise leave them to the garbage collector).
+    context = click.get_current_context(silent=True)
+    if context is not None:
+        context.call_on_close(app.extensions["dotledger.engine"].dispose)
+    return app
 
 
 def _catalogue(app):
@@ -57,21 +63,36 @@ def main() -> None:
 
 
 @main.command()
-def init() -> None:
+@click.option("--site-name", help="The site's name, shown on every page and document (kept in the database).")
+def init(site_name: str | None) -> None:
     """Create or upgrade the database and load the substance catalogue."""
+    from service.errors import InvalidInput
+    from service.store.site import UNNAMED, set_site_name
+    from service.store.site import site_name as stored_site_name
+
     app = _app()
     added, updated = _init(app)
+    with _command_session(app, "init") as session:
+        if site_name is not None:
+            try:
+                set_site_name(session, site_name)
+            except InvalidInput as exc:
+                raise click.ClickException(str(exc)) from None
+        name = stored_site_name(session)
     click.echo(f"database ready at {app.config['DATABASE_URL']}; catalogue: {added} substance(s) added, {updated} updated")
+    click.echo(f"site: {name}" + (" (name it with: dotledger init --site-name NAME)" if name == UNNAMED else ""))
 
 
 @main.command()
 def demo() -> None:
     """Load the invented demonstration scenario (safe to run again)."""
     from service.store.demo import SITE_NAME, load_demo, load_demo_procedures, load_demo_waste
+    from service.store.site import set_site_name
 
     app = _app()
     _init(app)
     with _command_session(app, "demo") as session:
+        set_site_name(session, SITE_NAME, only_if_unnamed=True)
         added, passwords = load_demo(session, _catalogue(app))
         added["procedures"] = load_demo_procedures(session, app.extensions["dotledger.rules"])
         added["waste containers"] = load_demo_waste(session, app.extensions["dotledger.rules"],

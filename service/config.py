@@ -5,19 +5,18 @@ from __future__ import annotations
 import os
 from decimal import Decimal
 from pathlib import Path
+
+from service.resources import RULES_DIR
 from typing import Any, Mapping, Optional
 
-__all__ = ["PROJECT_ROOT", "load_config"]
-
-PROJECT_ROOT = Path(__file__).resolve().parents[1]
+__all__ = ["load_config"]
 
 # name -> (default, parser); the environment variable is DOTLEDGER_<NAME>.
 _SETTINGS: dict[str, tuple[Any, Any]] = {
     "DATABASE_URL": (None, str),  # default: SQLite file in the instance folder
-    "RULES_DIR": (str(PROJECT_ROOT / "rules"), str),
+    "RULES_DIR": (str(RULES_DIR), str),
     "RULE_PACKS": ("us-federal,eu,site-example", str),
     "SECRET_KEY": ("dev-only-change-me", str),
-    "SITE_NAME": ("Demonstration site", str),
     "PAGE_SIZE": ("A4", str),
     "SECURE_COOKIES": ("false", lambda v: str(v).lower() in ("1", "true", "yes")),
     "LOGIN_MAX_FAILURES_PER_ACCOUNT": (5, int),

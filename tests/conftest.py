@@ -21,7 +21,39 @@ from service.store import identity, inventory
 from service.store.db import session_scope, upgrade
 
 ROOT = Path(__file__).resolve().parents[1]
-POSTGRES_URL = os.environ.get("DOTLEDGER_TEST_POSTGRES_URL", "postgresql+psycopg2://postgres@127.0.0.1:5432/test")
+POSTGRES_URL = os.environ.get("DOTLEDGER_TEST_POSTGRES_URL", "postgresql+psycopg://postgres@127.0.0.1:5432/test")
+
+
+# nodeid -> "sqlite" | "postgres" for the tests that run on both databases (the ``database_url`` fixture).
+_BACKEND_OF: dict[str, str] = {}
+_OUTCOME_RANK = {"passed": 0, "skipped": 1, "failed": 2, "error": 2}
+
+
+def pytest_collection_modifyitems(items):
+    for item in items:
+        callspec = getattr(item, "callspec", None)
+        if callspec is not None and "database_url" in callspec.params:
+            _BACKEND_OF[item.nodeid] = callspec.params["database_url"]
+
+
+def pytest_terminal_summary(terminalreporter):
+    """One line with the number of tests run on each database, so a skipped PostgreSQL half shows."""
+    outcome_of: dict[str, str] = {}
+    for outcome in _OUTCOME_RANK:
+        for report in terminalreporter.stats.get(outcome, []):
+            nodeid = getattr(report, "nodeid", "")
+            if nodeid in _BACKEND_OF and _OUTCOME_RANK[outcome] >= _OUTCOME_RANK[outcome_of.get(nodeid, "passed")]:
+                outcome_of[nodeid] = outcome
+    if not outcome_of:
+        return
+    parts = []
+    for backend, label in (("sqlite", "SQLite"), ("postgres", "PostgreSQL")):
+        counts = {o: 0 for o in ("passed", "failed", "skipped")}
+        for nodeid, outcome in outcome_of.items():
+            if _BACKEND_OF[nodeid] == backend:
+                counts["failed" if outcome == "error" else outcome] += 1
+        parts.append(f"{label} {counts['passed']} passed, {counts['failed']} failed, {counts['skipped']} skipped")
+    terminalreporter.write_line("tests run on each database: " + "; ".join(parts))
 
 
 @pytest.fixture(scope="session")

@@ -51,9 +51,9 @@ def demo(tmp_path_factory):
     mp.setenv("DOTLEDGER_DATABASE_URL", url)
     result = CliRunner().invoke(service.cli.main, ["demo"])
     assert result.exit_code == 0, result.output
-    from service.config import PROJECT_ROOT
+    from service.resources import RULES_DIR
 
-    app = make_app(url, PROJECT_ROOT / "rules")
+    app = make_app(url, RULES_DIR)
     api = Api(app.test_client(), make_user(app, "printer@test.example", "admin"))
     yield app, api, mp
     mp.undo()

@@ -14,11 +14,11 @@ from pathlib import Path
 
 from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoescape
 
-from service.config import PROJECT_ROOT
+from service.resources import TEMPLATES_DIR
 
 __all__ = ["PAGE_SIZES", "Document", "canonical_json", "data_sha256", "render_html", "render_pdf", "page_size_css"]
 
-TEMPLATES = PROJECT_ROOT / "templates" / "documents"
+TEMPLATES = TEMPLATES_DIR / "documents"
 
 # Setting value -> CSS @page size keyword (A4 = ISO 216, 210 × 297 mm; Letter = ANSI, 8.5 × 11 in).
 PAGE_SIZES = {"A4": "A4", "Letter": "letter"}

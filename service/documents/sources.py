@@ -18,6 +18,7 @@ from service.documents.controls import load_controls, load_transport
 from service.documents.manifest import manifest_data
 from service.documents.render import Document, render_html
 from service.store.db import get_session
+from service.store.site import site_name
 from service.store.models import Lab, Location, Procedure, Substance, User, WasteContainer, WasteEntry
 
 __all__ = ["assessment_for", "manifest_for"]
@@ -50,7 +51,7 @@ def _safe_name(text: str) -> str:
 
 def _common() -> dict:
     config = current_app.config
-    return {"site": config["SITE_NAME"], "page_size": config["PAGE_SIZE"], "generated_at": _now()}
+    return {"site": site_name(get_session()), "page_size": config["PAGE_SIZE"], "generated_at": _now()}
 
 
 def assessment_for(proc: Procedure) -> Document:

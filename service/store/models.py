@@ -23,6 +23,7 @@ from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
 
 __all__ = [
     "Base",
+    "Site",
     "Lab",
     "Location",
     "Substance",
@@ -95,6 +96,15 @@ class _Lifecycle:
     created_at: Mapped[dt.datetime] = mapped_column(default=utcnow)
     updated_at: Mapped[dt.datetime] = mapped_column(default=utcnow, onupdate=utcnow)
     retired_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
+
+
+class Site(Base):
+    """The one site this database belongs to (a single row, id 1): its name heads every page and document."""
+
+    __tablename__ = "site"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    name: Mapped[str] = mapped_column(String(200))
+    updated_at: Mapped[dt.datetime] = mapped_column(default=utcnow, onupdate=utcnow)
 
 
 class Lab(_Lifecycle, Base):

@@ -8,9 +8,10 @@ bp = Blueprint("web", __name__)
 @bp.app_context_processor
 def _site():
     # Every page, error pages included, names the site in its header.
-    from flask import current_app
+    from service.store.db import get_session
+    from service.store.site import site_name
 
-    return {"site": current_app.config["SITE_NAME"]}
+    return {"site": site_name(get_session())}
 
 from service.web import account, pages, procedures, waste  # noqa: E402,F401
 

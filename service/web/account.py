@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from urllib.parse import urlparse
 
-from flask import current_app, redirect, render_template, request, url_for
+from flask import redirect, render_template, request, url_for
 
 from service.api.identity import login_limits
 from service.auth import sign_in, sign_out
@@ -23,8 +23,7 @@ def _safe_next(target: str | None) -> str:
 
 @bp.get("/login", endpoint="login")
 def login():
-    return render_template("pages/login.html", site=current_app.config["SITE_NAME"],
-                           next=_safe_next(request.args.get("next")), error=None, email="")
+    return render_template("pages/login.html", next=_safe_next(request.args.get("next")), error=None, email="")
 
 
 @bp.post("/login", endpoint="login_submit")
@@ -37,8 +36,7 @@ def login_submit():
     except (identity.LoginLocked, identity.BadCredentials) as exc:
         session.commit()  # the failed attempt counts towards the limit
         status = 429 if isinstance(exc, identity.LoginLocked) else 401
-        return render_template("pages/login.html", site=current_app.config["SITE_NAME"],
-                               next=_safe_next(request.form.get("next")), error=str(exc), email=email), status
+        return render_template("pages/login.html", next=_safe_next(request.form.get("next")), error=str(exc), email=email), status
     sign_in(user)
     return redirect(_safe_next(request.form.get("next")))
 

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from flask import current_app, render_template, request
+from flask import render_template, request
 
 from service.api.inventory import ListQuery
 from service.auth import lab_scope
@@ -24,7 +24,6 @@ def overview():
     totals = inventory.element_totals(session, lab_ids=scope)
     return render_template(
         "pages/overview.html",
-        site=current_app.config["SITE_NAME"],
         labs=inventory.list_records(session, Lab, lab_ids=scope),
         n_stocks=len(stocks),
         n_mixtures=len(mixtures),
@@ -40,7 +39,6 @@ def stocks():
     locations = {loc.id: loc for loc in inventory.list_records(session, Location, include_retired=True, limit=1000)}
     return render_template(
         "pages/stocks.html",
-        site=current_app.config["SITE_NAME"],
         stocks=records,
         locations=locations,
         tracked=_present(records),
@@ -54,7 +52,6 @@ def mixtures():
     records = inventory.list_records(session, Mixture, limit=1000, lab_ids=lab_scope())
     return render_template(
         "pages/mixtures.html",
-        site=current_app.config["SITE_NAME"],
         mixtures=records,
         tracked=_present(records),
     )
