@@ -5,7 +5,7 @@ BIN    := $(VENV)/bin
 LOCK   := requirements/lock.txt
 PIP    := $(BIN)/pip install --quiet --disable-pip-version-check
 
-.PHONY: demo test venv system-run system-test lock clean
+.PHONY: demo test venv system-run system-test lock lock-upgrade _compile clean
 
 # Operating-system packages (Pango, HarfBuzz-subset, DejaVu fonts, venv; Chromium for the tests):
 # installed with apt-get when run as root, else one line names what to install.
@@ -36,11 +36,16 @@ demo: system-run $(VENV)/.installed
 test: system-test $(VENV)/.installed
 	$(BIN)/python -m pytest
 
-# Refresh requirements/lock.txt from pyproject.toml (newest versions within its bounds).
+# Refresh requirements/lock.txt from pyproject.toml: `make lock` adds and drops packages to match it and
+# keeps the other pins; `make lock-upgrade` moves every pin to the newest version within the bounds.
 lock:
+	$(MAKE) --no-print-directory _compile COMPILE_FLAGS=
+lock-upgrade:
+	$(MAKE) --no-print-directory _compile COMPILE_FLAGS=--upgrade
+_compile:
 	$(PYTHON) -m venv $(VENV)-lock
 	$(VENV)-lock/bin/pip install --quiet --disable-pip-version-check pip-tools
-	CUSTOM_COMPILE_COMMAND="make lock" $(VENV)-lock/bin/pip-compile --quiet --upgrade --strip-extras \
+	CUSTOM_COMPILE_COMMAND="make lock" $(VENV)-lock/bin/pip-compile --quiet $(COMPILE_FLAGS) --strip-extras \
 	  --allow-unsafe --all-build-deps --no-emit-index-url --no-emit-find-links \
 	  --extra test --extra postgres -o $(LOCK) pyproject.toml
 	rm -rf $(VENV)-lock
