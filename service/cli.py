@@ -8,6 +8,7 @@ from pathlib import Path
 
 import click
 
+from service import vocab
 from service.app import create_app
 
 __all__ = ["main"]
@@ -160,8 +161,7 @@ def import_inventory_command(file: Path, dry_run: bool, report_path: Path | None
 @main.command("add-user")
 @click.argument("email")
 @click.option("--name", "display_name", required=True, help="Name shown on records and documents.")
-@click.option("--role", type=click.Choice(["researcher", "safety_officer", "lab_manager", "auditor", "admin"]),
-              required=True)
+@click.option("--role", type=click.Choice(vocab.ROLES), required=True)
 @click.option("--lab", "lab_codes", multiple=True, help="Lab code the user belongs to (repeatable).")
 @click.password_option(help="At least 12 characters; asked for when not given.")
 def add_user(email: str, display_name: str, role: str, lab_codes: tuple[str, ...], password: str) -> None:
@@ -236,7 +236,7 @@ def preview(procedure_id: int, scales: str) -> None:
         rows = procedures.preview(session, proc, app.extensions["dotledger.rules"], factors)
         click.echo(f"procedure {proc.id} rev {proc.revision} '{proc.title}' ({proc.state}, scale {proc.scale:g})")
         for scale, level, masses, findings in rows:
-            metals = ", ".join(f"{s} {ug / 1000:,.1f} mg" for s, ug in masses.items() if s in ("Cd", "Se", "Te", "Pb", "Zn"))
+            metals = ", ".join(f"{s} {ug / 1000:,.1f} mg" for s, ug in masses.items() if s in app.config["BALANCE_ELEMENTS"])
             click.echo(f"\n× {scale:g}: highest finding {level or 'none'}; per batch {metals or 'no tracked metals'}")
             for f in findings:
                 click.echo(f"  [{f.level}] {f.rule_id} ({f.pack}@{f.pack_version}): {f.message}")

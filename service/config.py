@@ -6,6 +6,7 @@ import os
 from decimal import Decimal
 from pathlib import Path
 
+from service import vocab
 from service.resources import RULES_DIR
 from typing import Any, Mapping, Optional
 
@@ -25,7 +26,7 @@ _SETTINGS: dict[str, tuple[Any, Any]] = {
     # Share of a run's input (per element) that may stay unaccounted for the run to close.
     "BALANCE_TOLERANCE": ("0.05", lambda v: Decimal(str(v))),
     # Elements a run's mass balance follows (carbon, hydrogen and the like from solvents are not).
-    "BALANCE_ELEMENTS": ("Cd,Se,Te,Pb,Zn,In,Cs,Hg,As,Ag,Cu", lambda v: tuple(e.strip() for e in str(v).split(",") if e.strip())),
+    "BALANCE_ELEMENTS": (",".join(vocab.BALANCE_ELEMENTS), vocab.element_list),
 }
 
 
@@ -35,7 +36,10 @@ def load_config(instance_path: str, test_config: Optional[Mapping[str, Any]] = N
     for name, (default, parse) in _SETTINGS.items():
         raw = os.environ.get(f"DOTLEDGER_{name}")
         value = raw if raw not in (None, "") else default
-        config[name] = None if value is None else parse(value)
+        try:
+            config[name] = None if value is None else parse(value)
+        except ValueError as exc:
+            raise ValueError(f"DOTLEDGER_{name}={value!r}: {exc}") from None
     if config["DATABASE_URL"] is None:
         config["DATABASE_URL"] = f"sqlite:///{Path(instance_path) / 'dotledger.sqlite'}"
     config.update(test_config or {})

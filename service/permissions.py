@@ -7,9 +7,11 @@ role against this table, so a new route without a rule fails the test.
 
 from __future__ import annotations
 
+from service import vocab
+
 __all__ = ["ROLES", "PUBLIC", "MATRIX", "LAB_SCOPED_ROLES", "allowed"]
 
-ROLES = ("researcher", "safety_officer", "lab_manager", "auditor", "admin")
+ROLES = vocab.ROLES
 EVERYONE = frozenset(ROLES)
 
 # Reachable without signing in.

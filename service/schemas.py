@@ -8,7 +8,7 @@ from typing import Annotated, Literal, Optional
 
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, SecretStr, model_validator
 
-from service.chem.formula import atomic_weight
+from service import vocab
 from service.chem.substances import Substance as CatalogueSubstance
 
 __all__ = [
@@ -47,19 +47,10 @@ __all__ = [
     "EstimateIn",
 ]
 
-LocationKind = Literal["storage", "satellite_accumulation_area"]
+LocationKind = Literal[vocab.LOCATION_KINDS]
 
-
-def _element_symbol(value: str) -> str:
-    try:
-        atomic_weight(value)
-    except ValueError:
-        raise ValueError(f"{value!r} is not an element symbol (e.g. Cd, Se, Pb)") from None
-    return value
-
-
-# An element symbol checked against the periodic table ("Cd", not "cd" or "Qq").
-ElementSymbol = Annotated[str, AfterValidator(_element_symbol)]
+# An element symbol checked against the periodic table ("Cd", not "cd", "n" or "Qq"): service.vocab's one check.
+ElementSymbol = Annotated[str, AfterValidator(vocab.element_symbol)]
 
 
 class _Body(BaseModel):
@@ -161,7 +152,7 @@ class MixturePatch(_Body):
     expires_on: Optional[dt.date] = None
 
 
-Role = Literal["researcher", "safety_officer", "lab_manager", "auditor", "admin"]
+Role = Literal[vocab.ROLES]
 
 
 class UserIn(_Body):
@@ -248,8 +239,7 @@ class DecisionIn(_Body):
     comment: Optional[str] = Field(default=None, max_length=5000)
 
 
-Stream = Literal["non_halogenated_solvent_heavy_metals", "halogenated_solvent_heavy_metals", "aqueous_heavy_metals",
-                 "contaminated_solids", "sharps"]
+Stream = Literal[vocab.STREAMS]
 
 
 class ElementAmountIn(_Body):

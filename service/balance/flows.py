@@ -9,16 +9,16 @@ construction, so a balance never starts from impossible numbers.
 from __future__ import annotations
 
 import math
-import re
 from dataclasses import dataclass, field
 from decimal import Decimal
 from typing import Literal, Mapping, Optional
+
+from service import vocab
 
 __all__ = ["Flow", "BalanceError", "DuplicateByDifferenceError", "KINDS", "PRODUCT_METHODS"]
 
 KINDS = ("input", "product", "waste", "loss")
 PRODUCT_METHODS = ("measured", "estimated", "by_difference")
-_SYMBOL = re.compile(r"^[A-Z][a-z]{0,2}$")
 
 
 class BalanceError(ValueError):
@@ -56,8 +56,10 @@ class Flow:
         if self.kind not in KINDS:
             raise BalanceError(f"{where}: kind {self.kind!r} is not one of {', '.join(KINDS)}")
         for symbol, mass_ug in self.element_mass_ug.items():
-            if not isinstance(symbol, str) or not _SYMBOL.match(symbol):
-                raise BalanceError(f"{where}: {symbol!r} is not an element symbol (write Cd, Se, Pb, …)")
+            try:
+                vocab.element_symbol(symbol)
+            except vocab.UnknownElementError as exc:
+                raise BalanceError(f"{where}: {exc}") from None
             if isinstance(mass_ug, bool) or not isinstance(mass_ug, int):
                 raise BalanceError(f"{where}: {symbol} mass must be a whole number of µg, not {mass_ug!r}")
             if mass_ug < 0 and self.kind != "waste":

@@ -10,12 +10,11 @@ vocabulary follow from it. The first docstring line of each function is its desc
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass
 from decimal import Decimal
 from typing import Callable, Iterable, Optional
 
-from service.chem.formula import FormulaError, atomic_weight
+from service import vocab
 from service.rules.subjects import INERT_ATMOSPHERES, ProcedureSubject, ReagentFacts, StepFacts
 
 __all__ = ["MeasureResult", "Measure", "MeasureNameError", "MEASURES", "measure", "resolve_measure", "vocabulary"]
@@ -48,7 +47,6 @@ class MeasureNameError(ValueError):
 
 MEASURES: dict[str, Measure] = {}
 _PARAMETER_LABELS = {"element": "<El>"}
-_SYMBOL = re.compile(r"^[A-Z][a-z]{0,2}$")
 LIQUID_STATES = frozenset({"liquid", "solution"})
 TOXIC_METALS = ("Cd", "Pb", "Se", "Te", "Hg", "Tl", "As")
 
@@ -67,11 +65,9 @@ def measure(name: str, *, scope: str, unit: str, parameter: Optional[str] = None
 def _check_element(symbol: str) -> str:
     """Return ``symbol`` if it is a chemical element symbol; raise MeasureNameError otherwise."""
     try:
-        if _SYMBOL.match(symbol) and atomic_weight(symbol) > 0:
-            return symbol
-    except FormulaError:
-        pass
-    raise MeasureNameError(f"{symbol!r} is not an element symbol (write it as Cd, Se, Pb, …)")
+        return vocab.element_symbol(symbol)
+    except vocab.UnknownElementError as exc:
+        raise MeasureNameError(str(exc)) from None
 
 
 _PARAMETER_CHECKS = {"element": _check_element}

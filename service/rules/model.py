@@ -17,6 +17,8 @@ from typing import Literal, Optional, Union
 
 from pydantic import BaseModel, ConfigDict, Field, field_validator
 
+from service import vocab
+
 __all__ = [
     "SCOPES",
     "LEVELS",
@@ -29,12 +31,12 @@ __all__ = [
 ]
 
 SCOPES = ("procedure", "run", "waste_container", "inventory")
-LEVELS = ("note", "caution", "review", "block")  # in rising severity
+LEVELS = vocab.FINDING_LEVELS  # in rising severity
 COMPARATORS = (">", ">=", "<", "<=", "==", "!=")
 PLACEHOLDERS = frozenset({"value", "threshold", "detail"})
 
 Scope = Literal["procedure", "run", "waste_container", "inventory"]
-Level = Literal["note", "caution", "review", "block"]
+Level = Literal[vocab.FINDING_LEVELS]
 Comparator = Literal[">", ">=", "<", "<=", "==", "!="]
 
 _SLUG = r"^[a-z0-9]+(-[a-z0-9]+)*$"

@@ -12,6 +12,7 @@ from typing import Optional
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
+from service import vocab
 from service.chem.content import round_ug, substance_element_masses_ug
 from service.chem.units import parse_quantity, to_decimal
 from service.errors import Blocked, Conflict, Forbidden, InvalidInput
@@ -57,7 +58,7 @@ TRANSITIONS: dict[str, tuple[frozenset[str], str, bool]] = {
     "retire": (frozenset({"approved"}), "retired", False),
 }
 EDITABLE = frozenset({"draft", "changes_requested"})
-_SEVERITY = {"note": 0, "caution": 1, "review": 2, "block": 3}
+_SEVERITY = {level: rank for rank, level in enumerate(vocab.FINDING_LEVELS)}  # note 0 … block 3
 
 
 # --- building -----------------------------------------------------------------

@@ -14,6 +14,7 @@ from typing import Optional
 from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 
+from service import vocab
 from service.chem.formula import parse_formula
 from service.chem.units import QuantityError, parse_quantity, to_decimal
 from service.errors import Conflict, InvalidInput
@@ -34,7 +35,7 @@ from service.store.models import (
 __all__ = ["SOLID_STREAMS", "Contents", "create_container", "add_entry", "reverse_entry", "contents_of",
            "subject_of", "move", "element_masses_ug", "list_containers", "entries_of"]
 
-SOLID_STREAMS = frozenset({"contaminated_solids", "sharps"})
+SOLID_STREAMS = frozenset(vocab.SOLID_STREAMS)
 _HALOGENS = frozenset({"F", "Cl", "Br", "I"})
 # action -> (states it may start from, target state, timestamp attribute)
 MOVES = {

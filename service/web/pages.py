@@ -9,10 +9,8 @@ from service.auth import lab_scope
 from service.store import inventory
 from service.store.db import get_session
 from service.store.models import Lab, Location, Mixture, Stock
+from service.vocab import TRACKED_ELEMENTS as TRACKED
 from service.web import bp
-
-# Elements a nanocrystal group tracks on the overview, in this order.
-TRACKED = ("Cd", "Se", "Te", "Pb", "Zn", "S", "In", "Cs")
 
 
 @bp.get("/")

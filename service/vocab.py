@@ -1,0 +1,120 @@
+"""The shared vocabularies: every fixed list of words the service stores or checks, once.
+
+Pydantic types (``service.schemas``), the CLI's choices, the permission matrix, the
+configuration defaults, the pages and the database CHECK constraints
+(``service.store.models``) all derive from the tuples here. Pure: no Flask, no database.
+
+A value added here (or removed) needs an alembic migration that rebuilds the CHECK
+constraint of its column; ``tests/test_vocab.py`` compares each constraint in a migrated
+database with these tuples and fails until that migration exists.
+
+>>> element_symbol("Cd")
+'Cd'
+>>> element_symbol("cd")
+Traceback (most recent call last):
+...
+service.vocab.UnknownElementError: 'cd' is not an element symbol (symbols are case-sensitive: write Cd)
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "ROLES",
+    "LOCATION_KINDS",
+    "STREAMS",
+    "SOLID_STREAMS",
+    "PROCEDURE_STATES",
+    "RUN_STATES",
+    "CONTAINER_STATES",
+    "FINDING_LEVELS",
+    "ELEMENT_SYMBOLS",
+    "TRACKED_ELEMENTS",
+    "BALANCE_ELEMENTS",
+    "UnknownElementError",
+    "element_symbol",
+    "element_list",
+]
+
+# Who a user is; what each may do is service/permissions.py.
+ROLES = ("researcher", "safety_officer", "lab_manager", "auditor", "admin")
+
+# Where things are kept: ordinary storage, or a satellite accumulation area for waste (RCRA, 40 CFR 262.15).
+LOCATION_KINDS = ("storage", "satellite_accumulation_area")
+
+# Waste streams a container collects; the solid ones are measured by mass, the others by volume.
+STREAMS = (
+    "non_halogenated_solvent_heavy_metals",
+    "halogenated_solvent_heavy_metals",
+    "aqueous_heavy_metals",
+    "contaminated_solids",
+    "sharps",
+)
+SOLID_STREAMS = ("contaminated_solids", "sharps")
+
+# Lifecycles, in the order a record usually goes through them.
+PROCEDURE_STATES = ("draft", "submitted", "approved", "changes_requested", "declined", "retired")
+RUN_STATES = ("open", "closed")
+CONTAINER_STATES = ("open", "full", "pickup_requested", "collected")
+
+# Levels of a rule finding, in rising severity (rule packs and review decisions).
+FINDING_LEVELS = ("note", "caution", "review", "block")
+
+# The 118 element symbols in order of atomic number, as the IUPAC Periodic Table of the Elements
+# writes them (Nh, Mc, Ts, Og as named in 2016): exact case, no isotopes (D, T), no neutron ("n").
+ELEMENT_SYMBOLS = (
+    "H", "He", "Li", "Be", "B", "C", "N", "O", "F", "Ne", "Na", "Mg", "Al", "Si", "P", "S", "Cl", "Ar",
+    "K", "Ca", "Sc", "Ti", "V", "Cr", "Mn", "Fe", "Co", "Ni", "Cu", "Zn", "Ga", "Ge", "As", "Se", "Br", "Kr",
+    "Rb", "Sr", "Y", "Zr", "Nb", "Mo", "Tc", "Ru", "Rh", "Pd", "Ag", "Cd", "In", "Sn", "Sb", "Te", "I", "Xe",
+    "Cs", "Ba", "La", "Ce", "Pr", "Nd", "Pm", "Sm", "Eu", "Gd", "Tb", "Dy", "Ho", "Er", "Tm", "Yb", "Lu",
+    "Hf", "Ta", "W", "Re", "Os", "Ir", "Pt", "Au", "Hg", "Tl", "Pb", "Bi", "Po", "At", "Rn",
+    "Fr", "Ra", "Ac", "Th", "Pa", "U", "Np", "Pu", "Am", "Cm", "Bk", "Cf", "Es", "Fm", "Md", "No", "Lr",
+    "Rf", "Db", "Sg", "Bh", "Hs", "Mt", "Ds", "Rg", "Cn", "Nh", "Fl", "Mc", "Lv", "Ts", "Og",
+)  # fmt: skip
+_KNOWN = frozenset(ELEMENT_SYMBOLS)
+
+# The metals and metalloids a run's mass balance follows by default (DOTLEDGER_BALANCE_ELEMENTS):
+# carbon, hydrogen, sulfur and the like also come from solvents and ligands and are not balanced.
+BALANCE_ELEMENTS = ("Cd", "Se", "Te", "Pb", "Zn", "In", "Cs", "Hg", "As", "Ag", "Cu")
+
+# The elements the inventory pages total and give columns to, in this order: the balance's, with
+# sulfur (ZnS and CdS shells), the group's core chemistry first.
+TRACKED_ELEMENTS = ("Cd", "Se", "Te", "Pb", "Zn", "S", "In", "Cs", "Hg", "As", "Ag", "Cu")
+
+
+class UnknownElementError(ValueError):
+    """A text that is not one of the 118 element symbols (carries the text as ``value``)."""
+
+    def __init__(self, value: object):
+        self.value = value
+        hint = ""
+        if isinstance(value, str) and value.strip().capitalize() in _KNOWN:
+            hint = f"symbols are case-sensitive: write {value.strip().capitalize()}"
+        super().__init__(f"{value!r} is not an element symbol ({hint or 'e.g. Cd, Se, Pb'})")
+
+
+def element_symbol(value: object) -> str:
+    """Return ``value`` if it is an element symbol exactly as written in the periodic table.
+
+    :raises UnknownElementError: anything else ("cd", "n", "Xx", "", " Cd", None)
+    """
+    if not isinstance(value, str) or value not in _KNOWN:
+        raise UnknownElementError(value)
+    return value
+
+
+def element_list(text: str) -> tuple[str, ...]:
+    """Parse a comma-separated list of element symbols such as ``"Cd, Se,Pb"``.
+
+    :raises UnknownElementError: an entry that is not an element symbol
+    :raises ValueError: an empty list or an element named twice
+
+    >>> element_list("Cd, Se,Pb")
+    ('Cd', 'Se', 'Pb')
+    """
+    symbols = tuple(element_symbol(part.strip()) for part in str(text).split(",") if part.strip())
+    if not symbols:
+        raise ValueError("give at least one element symbol, e.g. Cd,Se,Pb")
+    twice = sorted({s for s in symbols if symbols.count(s) > 1})
+    if twice:
+        raise ValueError(f"{', '.join(twice)} named twice")
+    return symbols
