@@ -8,6 +8,7 @@ from typing import Any, Optional
 from sqlalchemy import (
     JSON,
     BigInteger,
+    CheckConstraint,
     Date,
     DateTime,
     Float,
@@ -21,6 +22,8 @@ from sqlalchemy import (
 )
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
 
+from service import vocab
+
 __all__ = [
     "Base",
     "Site",
@@ -32,19 +35,15 @@ __all__ = [
     "Mixture",
     "MixtureComponent",
     "MixtureElement",
-    "ROLES",
     "User",
     "Membership",
     "ApiToken",
     "LoginAttempt",
-    "PROCEDURE_STATES",
     "Procedure",
     "ProcedureStep",
     "ReagentDraw",
     "WastePlanItem",
     "ProcedureDecision",
-    "STREAMS",
-    "CONTAINER_STATES",
     "Run",
     "RunDraw",
     "RunOutput",
@@ -92,6 +91,14 @@ class Base(DeclarativeBase):
     type_annotation_map = {dt.datetime: UTCDateTime, dict[str, Any]: JSON, list[Any]: JSON}
 
 
+def _one_of(column: str, values: tuple[str, ...]) -> CheckConstraint:
+    """CHECK (<column> IN (<values>)), named ck_<table>_<column> by the naming convention."""
+    if any("'" in value for value in values):
+        raise ValueError(f"a vocabulary word for {column} contains a quote")
+    quoted = ", ".join(f"'{value}'" for value in values)
+    return CheckConstraint(f"{column} IN ({quoted})", name=column)
+
+
 class _Lifecycle:
     created_at: Mapped[dt.datetime] = mapped_column(default=utcnow)
     updated_at: Mapped[dt.datetime] = mapped_column(default=utcnow, onupdate=utcnow)
@@ -117,13 +124,13 @@ class Lab(_Lifecycle, Base):
 
 class Location(_Lifecycle, Base):
     __tablename__ = "locations"
-    __table_args__ = (UniqueConstraint("building", "room", "storage"),)
+    __table_args__ = (UniqueConstraint("building", "room", "storage"), _one_of("kind", vocab.LOCATION_KINDS))
     id: Mapped[int] = mapped_column(primary_key=True)
     lab_id: Mapped[Optional[int]] = mapped_column(ForeignKey("labs.id"))
     building: Mapped[str] = mapped_column(String(100))
     room: Mapped[str] = mapped_column(String(100))
     storage: Mapped[str] = mapped_column(String(200))
-    kind: Mapped[str] = mapped_column(String(40))  # storage | satellite_accumulation_area
+    kind: Mapped[str] = mapped_column(String(40))  # vocab.LOCATION_KINDS
 
 
 class Substance(_Lifecycle, Base):
@@ -170,6 +177,7 @@ class Stock(_Lifecycle, Base):
 
 class StockElement(Base):
     __tablename__ = "stock_elements"
+    __table_args__ = (_one_of("element", vocab.ELEMENT_SYMBOLS),)
     stock_id: Mapped[int] = mapped_column(ForeignKey("stocks.id"), primary_key=True)
     element: Mapped[str] = mapped_column(String(3), primary_key=True, index=True)
     mass_ug: Mapped[int] = mapped_column(BigInteger)
@@ -209,6 +217,7 @@ class MixtureComponent(Base):
 
 class MixtureElement(Base):
     __tablename__ = "mixture_elements"
+    __table_args__ = (_one_of("element", vocab.ELEMENT_SYMBOLS),)
     mixture_id: Mapped[int] = mapped_column(ForeignKey("mixtures.id"), primary_key=True)
     element: Mapped[str] = mapped_column(String(3), primary_key=True, index=True)
     mass_ug: Mapped[int] = mapped_column(BigInteger)
@@ -216,15 +225,13 @@ class MixtureElement(Base):
 
 # --- identity -------------------------------------------------------------------
 
-ROLES = ("researcher", "safety_officer", "lab_manager", "auditor", "admin")
-
-
 class User(_Lifecycle, Base):
     __tablename__ = "users"
+    __table_args__ = (_one_of("role", vocab.ROLES),)
     id: Mapped[int] = mapped_column(primary_key=True)
     email: Mapped[str] = mapped_column(String(254), unique=True)
     display_name: Mapped[str] = mapped_column(String(200))
-    role: Mapped[str] = mapped_column(String(20))  # one of ROLES
+    role: Mapped[str] = mapped_column(String(20))  # vocab.ROLES
     password_hash: Mapped[str] = mapped_column(String(300))
     memberships: Mapped[list["Membership"]] = relationship(cascade="all, delete-orphan", lazy="selectin")
 
@@ -264,13 +271,11 @@ class LoginAttempt(Base):
 
 # --- procedures -----------------------------------------------------------------
 
-PROCEDURE_STATES = ("draft", "submitted", "approved", "changes_requested", "declined", "retired")
-
-
 class Procedure(_Lifecycle, Base):
     """One revision of a registered synthesis plan; revisions share a ``family_id``."""
 
     __tablename__ = "procedures"
+    __table_args__ = (_one_of("state", vocab.PROCEDURE_STATES),)
     id: Mapped[int] = mapped_column(primary_key=True)
     family_id: Mapped[Optional[int]] = mapped_column(Integer, index=True)  # id of revision 1
     revision: Mapped[int] = mapped_column(Integer, default=1)
@@ -348,26 +353,17 @@ class ProcedureDecision(Base):
 
 # --- runs and waste -------------------------------------------------------------
 
-STREAMS = (
-    "non_halogenated_solvent_heavy_metals",
-    "halogenated_solvent_heavy_metals",
-    "aqueous_heavy_metals",
-    "contaminated_solids",
-    "sharps",
-)
-CONTAINER_STATES = ("open", "full", "pickup_requested", "collected")
-
-
 class Run(Base):
     """One batch made under an approved procedure."""
 
     __tablename__ = "runs"
+    __table_args__ = (_one_of("state", vocab.RUN_STATES),)
     id: Mapped[int] = mapped_column(primary_key=True)
     procedure_id: Mapped[int] = mapped_column(ForeignKey("procedures.id"), index=True)
     lab_id: Mapped[int] = mapped_column(ForeignKey("labs.id"), index=True)
     researcher_id: Mapped[int] = mapped_column(ForeignKey("users.id"))
     scale: Mapped[float] = mapped_column(Float, default=1.0)
-    state: Mapped[str] = mapped_column(String(10), default="open")  # open | closed
+    state: Mapped[str] = mapped_column(String(10), default="open")  # vocab.RUN_STATES
     note: Mapped[Optional[str]] = mapped_column(Text)
     started_at: Mapped[dt.datetime] = mapped_column(default=utcnow)
     closed_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
@@ -413,6 +409,7 @@ class RunLoss(Base):
 
 class WasteContainer(_Lifecycle, Base):
     __tablename__ = "waste_containers"
+    __table_args__ = (_one_of("stream", vocab.STREAMS), _one_of("state", vocab.CONTAINER_STATES))
     id: Mapped[int] = mapped_column(primary_key=True)
     label: Mapped[str] = mapped_column(String(80), unique=True)
     lab_id: Mapped[int] = mapped_column(ForeignKey("labs.id"), index=True)
@@ -456,6 +453,7 @@ class WasteEntryComponent(Base):
 
 class WasteEntryElement(Base):
     __tablename__ = "waste_entry_elements"
+    __table_args__ = (_one_of("element", vocab.ELEMENT_SYMBOLS),)
     entry_id: Mapped[int] = mapped_column(ForeignKey("waste_entries.id"), primary_key=True)
     element: Mapped[str] = mapped_column(String(3), primary_key=True, index=True)
     mass_ug: Mapped[int] = mapped_column(BigInteger)  # signed
