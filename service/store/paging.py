@@ -21,7 +21,7 @@ T = TypeVar("T")
 class Page(Generic[T]):
     """``items`` of one page, ``total`` matching records, the ``limit`` and ``offset`` asked for.
 
-    Iterating or ``len()`` walks the items of this page only.
+    Iterating, indexing and ``len()`` see the items of this page only.
     """
 
     items: list[T]
@@ -34,6 +34,9 @@ class Page(Generic[T]):
 
     def __len__(self) -> int:
         return len(self.items)
+
+    def __getitem__(self, index):
+        return self.items[index]
 
     def with_items(self, items: list) -> "Page":
         """The same page with its items replaced (e.g. records paired with what was computed for them)."""
