@@ -28,6 +28,10 @@ __all__ = [
     "UserPatch",
     "TokenRequest",
     "AuditQuery",
+    "PageQuery",
+    "ListQuery",
+    "PAGE_LIMIT_DEFAULT",
+    "PAGE_LIMIT_MAX",
     "StepIn",
     "DrawIn",
     "WastePlanIn",
@@ -176,13 +180,34 @@ class TokenRequest(_Body):
     name: str = Field(default="api", min_length=1, max_length=100)
 
 
-class AuditQuery(_Body):
-    entity: Optional[str] = None
-    entity_id: Optional[str] = None
+# Every listing answers one page: ``limit`` records from ``offset``, beside the ``total`` that match.
+PAGE_LIMIT_DEFAULT = 50
+PAGE_LIMIT_MAX = 500
+
+
+class PageQuery(_Body):
+    """The page of a listing the query string asks for (a larger or non-integer limit is refused)."""
+
+    limit: int = Field(default=PAGE_LIMIT_DEFAULT, ge=1, le=PAGE_LIMIT_MAX,
+                       description=f"records per page, 1 to {PAGE_LIMIT_MAX}")
+    offset: int = Field(default=0, ge=0, le=1_000_000_000, description="records to skip")
+
+
+class ListQuery(PageQuery):
+    """Filters of the inventory listings (labs, locations, substances, stocks, mixtures)."""
+
+    include_retired: bool = False
+    lab_id: Optional[int] = None
+    location_id: Optional[int] = None
+    substance_id: Optional[int] = None
+    element: Optional[ElementSymbol] = None
+
+
+class AuditQuery(PageQuery):
+    entity: Optional[str] = Field(default=None, max_length=60)
+    entity_id: Optional[str] = Field(default=None, max_length=60)
     since: Optional[dt.datetime] = None
     until: Optional[dt.datetime] = None
-    limit: int = Field(default=100, ge=1, le=1000)
-    offset: int = Field(default=0, ge=0)
 
 
 Operation = Literal["charge", "degas", "heat", "inject", "hold", "grow_shell", "cool", "ligand_exchange",

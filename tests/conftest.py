@@ -148,7 +148,7 @@ class Api:
         return body
 
     def substance_id(self, name: str) -> int:
-        items = self.call("GET", "/substances?limit=1000")["items"]
+        items = self.call("GET", "/substances?limit=500")["items"]
         return next(s["id"] for s in items if s["name"] == name)
 
     def lab_and_location(self) -> tuple[int, int]:

@@ -24,8 +24,8 @@ def test_stock_lifecycle_with_element_content(api):
 
     retired = api.call("POST", f"/stocks/{created['id']}/retire")
     assert retired["retired_at"] is not None
-    assert api.call("GET", "/stocks")["count"] == 0
-    assert api.call("GET", "/stocks?include_retired=true")["count"] == 1
+    assert api.call("GET", "/stocks")["total"] == 0
+    assert api.call("GET", "/stocks?include_retired=true")["total"] == 1
     api.call("POST", f"/stocks/{created['id']}/retire", expect=409)
 
 
@@ -44,12 +44,12 @@ def test_filters_by_lab_location_and_element(api):
     assert labels("element=Cd") == ["F-0"]
     assert labels("element=Pb") == ["F-2"]
     assert labels("element=Te") == []
-    assert "cadmium oxide" in [s["name"] for s in api.call("GET", "/substances?element=Cd&limit=1000")["items"]]
+    assert "cadmium oxide" in [s["name"] for s in api.call("GET", "/substances?element=Cd&limit=500")["items"]]
 
 
 def test_substance_filter_parses_formulas(api):
     # "C" must match carbon compounds, not cadmium: CdO has no carbon.
-    names = [s["name"] for s in api.call("GET", "/substances?element=C&limit=1000")["items"]]
+    names = [s["name"] for s in api.call("GET", "/substances?element=C&limit=500")["items"]]
     assert "cadmium oxide" not in names and "oleic acid" in names
 
 

@@ -38,7 +38,7 @@ def sessions(database_url):
 
 def _lab_events(factory, **filters) -> list[AuditEvent]:
     with session_scope(factory) as session:
-        return list_events(session, entity="labs", limit=10_000, **filters)
+        return list_events(session, entity="labs", limit=None, **filters).items
 
 
 def _verify(factory) -> audit.ChainReport:
@@ -300,7 +300,7 @@ def test_list_events_filters(sessions):
     assert _lab_events(sessions, entity_id=first, since=middle) == []
     with session_scope(sessions) as session:
         assert [e.id for e in list_events(session, limit=1, offset=1)] == [2]
-        assert list_events(session, entity="stocks") == []
+        assert list_events(session, entity="stocks").items == []
 
 
 # --- the migration ------------------------------------------------------------

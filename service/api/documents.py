@@ -10,6 +10,7 @@ from flask import Response
 
 from service import documents
 from service.api import bp
+from service.api.openapi import operation
 from service.auth import check_lab
 from service.store import inventory
 from service.store.db import get_session
@@ -31,24 +32,28 @@ def _answer(doc: documents.Document, fmt: str) -> Response:
 
 
 @bp.get("/procedures/<int:ident>/assessment.pdf", endpoint="procedure_assessment_pdf")
+@operation(media=("application/pdf",), errors=(403,))
 def assessment_pdf(ident: int):
     """The procedure's risk-assessment sheet as PDF."""
     return _answer(documents.assessment_for(_visible(Procedure, ident)), "pdf")
 
 
 @bp.get("/procedures/<int:ident>/assessment.html", endpoint="procedure_assessment_html")
+@operation(media=("text/html",), errors=(403,))
 def assessment_html(ident: int):
     """The procedure's risk-assessment sheet as HTML (preview)."""
     return _answer(documents.assessment_for(_visible(Procedure, ident)), "html")
 
 
 @bp.get("/waste_containers/<int:ident>/manifest.pdf", endpoint="waste_container_manifest_pdf")
+@operation(media=("application/pdf",), errors=(403,))
 def manifest_pdf(ident: int):
     """The container's waste manifest as PDF."""
     return _answer(documents.manifest_for(_visible(WasteContainer, ident)), "pdf")
 
 
 @bp.get("/waste_containers/<int:ident>/manifest.html", endpoint="waste_container_manifest_html")
+@operation(media=("text/html",), errors=(403,))
 def manifest_html(ident: int):
     """The container's waste manifest as HTML (preview)."""
     return _answer(documents.manifest_for(_visible(WasteContainer, ident)), "html")

@@ -7,7 +7,9 @@ from flask import current_app, jsonify, request
 from service import schemas
 from service.api import bp
 from service.api.errors import ApiError
-from service.api.inventory import json_body
+from service.api.inventory import json_body, page_answer
+from service.api.openapi import operation
+from service.api.responses import AuditEvent, IssuedToken, Token, User as UserAnswer
 from service.auth import current_user
 from service.store import audit, identity, inventory
 from service.store.db import get_session
@@ -46,6 +48,7 @@ def login_limits() -> identity.LoginLimits:
 
 
 @bp.post("/auth/tokens", endpoint="issue_token")
+@operation(body=schemas.TokenRequest, response=IssuedToken, status=201, errors=(401, 429))
 def issue_token():
     """Exchange email and password for a new personal token (shown once)."""
     body = json_body(schemas.TokenRequest)
@@ -66,45 +69,64 @@ def issue_token():
 
 
 @bp.get("/me", endpoint="me")
+@operation(response=UserAnswer)
 def me():
+    """The signed-in account."""
     return jsonify(_user(current_user()))
 
 
 @bp.get("/tokens", endpoint="list_tokens")
+@operation(query=schemas.PageQuery, response=Token, paged=True)
 def list_tokens():
-    tokens = get_session().query(ApiToken).filter(ApiToken.user_id == current_user().id).order_by(ApiToken.id)
-    return jsonify({"items": [_token(t) for t in tokens]})
+    """One page of the signed-in account's personal tokens."""
+    query = schemas.PageQuery.model_validate(request.args.to_dict())
+    page = identity.list_tokens(get_session(), current_user(), limit=query.limit, offset=query.offset)
+    return jsonify(page_answer(page, _token))
 
 
 @bp.post("/tokens/<int:ident>/revoke", endpoint="revoke_token")
+@operation(response=Token, errors=(409,))
 def revoke_token(ident: int):
+    """Revoke one of the signed-in account's tokens."""
     return jsonify(_token(identity.revoke_token(get_session(), current_user(), ident)))
 
 
 @bp.get("/users", endpoint="list_users")
+@operation(query=schemas.PageQuery, response=UserAnswer, paged=True)
 def list_users():
-    return jsonify({"items": [_user(u) for u in inventory.list_records(get_session(), User, include_retired=True)]})
+    """One page of the accounts, retired ones included."""
+    query = schemas.PageQuery.model_validate(request.args.to_dict())
+    page = inventory.list_records(get_session(), User, include_retired=True, limit=query.limit, offset=query.offset)
+    return jsonify(page_answer(page, _user))
 
 
 @bp.post("/users", endpoint="create_users")
+@operation(body=schemas.UserIn, response=UserAnswer, status=201, errors=(409,))
 def create_user():
+    """Create an account."""
     return jsonify(_user(identity.create_user(get_session(), json_body(schemas.UserIn)))), 201
 
 
 @bp.get("/users/<int:ident>", endpoint="read_users")
+@operation(response=UserAnswer)
 def read_user(ident: int):
+    """Read an account."""
     return jsonify(_user(inventory.get(get_session(), User, ident)))
 
 
 @bp.patch("/users/<int:ident>", endpoint="update_users")
+@operation(body=schemas.UserPatch, response=UserAnswer)
 def update_user(ident: int):
+    """Change an account's name, role, password or labs."""
     body = json_body(schemas.UserPatch)
     session = get_session()
     return jsonify(_user(identity.update_user(session, inventory.get(session, User, ident), body)))
 
 
 @bp.post("/users/<int:ident>/retire", endpoint="retire_users")
+@operation(response=UserAnswer, errors=(409,))
 def retire_user(ident: int):
+    """Retire an account (not one's own)."""
     session = get_session()
     user = inventory.get(session, User, ident)
     if user.id == current_user().id:
@@ -113,10 +135,11 @@ def retire_user(ident: int):
 
 
 @bp.get("/audit_events", endpoint="list_audit_events")
+@operation(query=schemas.AuditQuery, response=AuditEvent, paged=True)
 def list_audit_events():
+    """One page of the audit trail in chain order."""
     query = schemas.AuditQuery.model_validate(request.args.to_dict())
-    events = audit.list_events(get_session(), **query.model_dump())
-    return jsonify({"items": [_event(e) for e in events], "limit": query.limit, "offset": query.offset})
+    return jsonify(page_answer(audit.list_events(get_session(), **query.model_dump()), _event))
 
 
 def _event(record) -> dict:

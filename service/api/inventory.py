@@ -6,31 +6,26 @@ Each view parses (pydantic), calls one service function and serialises.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Callable, Optional
+from typing import Callable
 
 from flask import jsonify, request
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel
 
 from service import schemas
-from service.api import bp
+from service.api import bp, responses
 from service.api.errors import ApiError
+from service.api.openapi import operation
 from service.api.serialize import dump
 from service.auth import check_lab, lab_scope
-from service.schemas import ElementSymbol
+from service.schemas import ListQuery
 from service.store import inventory
 from service.store.db import get_session
 from service.store.models import Lab, Location, Mixture, Stock, Substance
 
 
-class ListQuery(BaseModel):
-    model_config = ConfigDict(extra="forbid")
-    include_retired: bool = False
-    lab_id: Optional[int] = None
-    location_id: Optional[int] = None
-    substance_id: Optional[int] = None
-    element: Optional[ElementSymbol] = None
-    limit: int = Field(default=100, ge=1, le=1000)
-    offset: int = Field(default=0, ge=0)
+def page_answer(page, dump_item: Callable) -> dict:
+    """A listing's JSON: the page's items beside the total that match, the limit and the offset."""
+    return {"items": [dump_item(r) for r in page], "total": page.total, "limit": page.limit, "offset": page.offset}
 
 
 def json_body(model: type[BaseModel]) -> BaseModel:
@@ -45,6 +40,7 @@ def json_body(model: type[BaseModel]) -> BaseModel:
 class Resource:
     name: str  # plural, as in the URL
     model: type
+    answer: type[BaseModel]  # the shape of one record in the OpenAPI document
     create_body: type[BaseModel]
     patch_body: type[BaseModel]
     create: Callable
@@ -52,27 +48,30 @@ class Resource:
 
 
 RESOURCES = (
-    Resource("labs", Lab, schemas.LabIn, schemas.LabPatch,
+    Resource("labs", Lab, responses.Lab, schemas.LabIn, schemas.LabPatch,
              lambda s, b: inventory.create_record(s, Lab, b), inventory.update_record),
-    Resource("locations", Location, schemas.LocationIn, schemas.LocationPatch,
+    Resource("locations", Location, responses.Location, schemas.LocationIn, schemas.LocationPatch,
              lambda s, b: inventory.create_record(s, Location, b), inventory.update_record),
-    Resource("substances", Substance, schemas.SubstanceIn, schemas.SubstancePatch,
+    Resource("substances", Substance, responses.Substance, schemas.SubstanceIn, schemas.SubstancePatch,
              lambda s, b: inventory.create_record(s, Substance, b), inventory.update_record),
-    Resource("stocks", Stock, schemas.StockIn, schemas.StockPatch, inventory.create_stock, inventory.update_stock),
-    Resource("mixtures", Mixture, schemas.MixtureIn, schemas.MixturePatch,
+    Resource("stocks", Stock, responses.Stock, schemas.StockIn, schemas.StockPatch, inventory.create_stock, inventory.update_stock),
+    Resource("mixtures", Mixture, responses.Mixture, schemas.MixtureIn, schemas.MixturePatch,
              inventory.create_mixture, inventory.update_mixture),
 )
 
 
 def _register(resource: Resource) -> None:
-    name, model = resource.name, resource.model
+    name, model, answer = resource.name, resource.model, resource.answer
+    lab_check = (403,) if model is not Substance else ()
 
+    @operation(summary=f"List {name} (one page)", query=ListQuery, response=answer, paged=True)
     def list_view():
         query = ListQuery.model_validate(request.args.to_dict())
-        records = inventory.list_records(get_session(), model, **query.model_dump(), lab_ids=lab_scope())
-        return jsonify({"items": [dump(r) for r in records], "count": len(records),
-                        "limit": query.limit, "offset": query.offset})
+        page = inventory.list_records(get_session(), model, **query.model_dump(), lab_ids=lab_scope())
+        return jsonify(page_answer(page, dump))
 
+    @operation(summary=f"Create one of {name}", body=resource.create_body, response=answer, status=201,
+               errors=(*lab_check, 409))
     def create_view():
         body = json_body(resource.create_body)
         if hasattr(body, "lab_id"):
@@ -88,13 +87,16 @@ def _register(resource: Resource) -> None:
             check_lab(record.lab_id)
         return record
 
+    @operation(summary=f"Read one of {name}", response=answer, errors=lab_check)
     def read_view(ident: int):
         return jsonify(dump(visible(ident)))
 
+    @operation(summary=f"Update one of {name}", body=resource.patch_body, response=answer, errors=(*lab_check, 409))
     def update_view(ident: int):
         body = json_body(resource.patch_body)
         return jsonify(dump(resource.update(get_session(), visible(ident), body)))
 
+    @operation(summary=f"Retire one of {name} (kept for the ledger)", response=answer, errors=(*lab_check, 409))
     def retire_view(ident: int):
         return jsonify(dump(inventory.retire(get_session(), visible(ident))))
 

@@ -7,7 +7,9 @@ from pydantic import BaseModel, ConfigDict, Field, field_validator
 
 from service import schemas
 from service.api import bp
-from service.api.inventory import json_body
+from service.api.inventory import json_body, page_answer
+from service.api.openapi import operation
+from service.api.responses import Decision, Preview, Procedure as ProcedureAnswer, ReviewItem
 from service.api.serialize import element_rows_from, finding
 from service.auth import check_lab, current_user, lab_scope
 from service.store import inventory, procedures
@@ -67,24 +69,29 @@ def _visible(ident: int) -> Procedure:
     return proc
 
 
-class ProcedureQuery(BaseModel):
-    model_config = ConfigDict(extra="forbid")
-    state: str | None = None
+class ProcedureQuery(schemas.PageQuery):
+    state: str | None = Field(default=None, max_length=40)
     lab_id: int | None = None
-    limit: int = Field(default=100, ge=1, le=1000)
-    offset: int = Field(default=0, ge=0)
+
+
+def _listed(proc: Procedure) -> dict:
+    return dump_procedure(proc, with_findings=False)
 
 
 @bp.get("/procedures", endpoint="list_procedures")
+@operation(query=ProcedureQuery, response=ProcedureAnswer, paged=True)
 def list_procedures():
+    """One page of procedures (without findings)."""
     query = ProcedureQuery.model_validate(request.args.to_dict())
     found = procedures.list_procedures(get_session(), state=query.state, lab_id=query.lab_id, lab_ids=lab_scope(),
                                        limit=query.limit, offset=query.offset)
-    return jsonify({"items": [dump_procedure(p, with_findings=False) for p in found], "count": len(found)})
+    return jsonify(page_answer(found, _listed))
 
 
 @bp.post("/procedures", endpoint="create_procedures")
+@operation(body=schemas.ProcedureIn, response=ProcedureAnswer, status=201, errors=(403,))
 def create_procedure():
+    """Register a procedure as a draft."""
     body = json_body(schemas.ProcedureIn)
     check_lab(body.lab_id)
     proc = procedures.create_procedure(get_session(), body, current_user())
@@ -92,33 +99,49 @@ def create_procedure():
 
 
 @bp.get("/procedures/<int:ident>", endpoint="read_procedures")
+@operation(response=ProcedureAnswer, errors=(403,))
 def read_procedure(ident: int):
+    """A procedure with its element masses per batch and findings."""
     return jsonify(dump_procedure(_visible(ident)))
 
 
 @bp.patch("/procedures/<int:ident>", endpoint="update_procedures")
+@operation(body=schemas.ProcedurePatch, response=ProcedureAnswer, status=(200, 201), errors=(403, 409))
 def update_procedure(ident: int):
+    """Edit a procedure (201 when an approved one gets a new draft revision)."""
     body = json_body(schemas.ProcedurePatch)
     proc, created = procedures.update_procedure(get_session(), _visible(ident), body)
     return jsonify(dump_procedure(proc)), 201 if created else 200
 
 
 @bp.get("/procedures/<int:ident>/revisions", endpoint="list_procedure_revisions")
+@operation(query=schemas.PageQuery, response=ProcedureAnswer, paged=True, errors=(403,))
 def list_revisions(ident: int):
+    """One page of the revisions of a procedure."""
+    query = schemas.PageQuery.model_validate(request.args.to_dict())
     proc = _visible(ident)
-    family = procedures.list_procedures(get_session(), family_id=proc.family_id, limit=1000)
-    return jsonify({"items": [dump_procedure(p, with_findings=False) for p in family]})
+    family = procedures.list_procedures(get_session(), family_id=proc.family_id, limit=query.limit,
+                                        offset=query.offset)
+    return jsonify(page_answer(family, _listed))
+
+
+def _decision(d) -> dict:
+    return {"from_state": d.from_state, "to_state": d.to_state, "actor_id": d.actor_id, "comment": d.comment,
+            "highest_level": d.highest_level, "at": d.at.isoformat()}
 
 
 @bp.get("/procedures/<int:ident>/decisions", endpoint="list_procedure_decisions")
+@operation(query=schemas.PageQuery, response=Decision, paged=True, errors=(403,))
 def list_decisions(ident: int):
-    rows = procedures.decisions_of(get_session(), _visible(ident))
-    return jsonify({"items": [{"from_state": d.from_state, "to_state": d.to_state, "actor_id": d.actor_id,
-                               "comment": d.comment, "highest_level": d.highest_level, "at": d.at.isoformat()}
-                              for d in rows]})
+    """One page of a procedure's workflow decisions, oldest first."""
+    query = schemas.PageQuery.model_validate(request.args.to_dict())
+    rows = procedures.decisions_of(get_session(), _visible(ident), limit=query.limit, offset=query.offset)
+    return jsonify(page_answer(rows, _decision))
 
 
 def _transition_view(action: str):
+    @operation(summary=f"Procedure workflow: {action.replace('_', ' ')}", body=schemas.DecisionIn, body_required=False,
+               response=ProcedureAnswer, errors=(403, 409))
     def view(ident: int):
         body = json_body(schemas.DecisionIn) if request.get_data() else schemas.DecisionIn()
         proc = procedures.transition(get_session(), _visible(ident), action, current_user(), body.comment,
@@ -135,7 +158,7 @@ for _action in procedures.TRANSITIONS:
 
 class PreviewQuery(BaseModel):
     model_config = ConfigDict(extra="forbid")
-    scales: list[float]
+    scales: list[float] = Field(default=[2.0, 5.0, 10.0], description="1 to 20 comma-separated scale factors")
 
     @field_validator("scales", mode="before")
     @classmethod
@@ -154,7 +177,9 @@ class PreviewQuery(BaseModel):
 
 
 @bp.get("/procedures/<int:ident>/preview", endpoint="preview_procedure")
+@operation(query=PreviewQuery, response=Preview, errors=(403,))
 def preview(ident: int):
+    """Element masses and findings of a procedure at other scales (nothing is stored)."""
     query = PreviewQuery.model_validate({"scales": request.args.get("scales", "2,5,10")})
     proc = _visible(ident)
     rows = procedures.preview(get_session(), proc, active_rules(), query.scales)
@@ -164,10 +189,12 @@ def preview(ident: int):
 
 
 @bp.get("/review_queue", endpoint="review_queue")
+@operation(query=schemas.PageQuery, response=ReviewItem, paged=True)
 def review_queue():
-    rows = procedures.review_queue(get_session(), active_rules())
-    return jsonify({"items": [{**dump_procedure(p, with_findings=False), "highest_level": level}
-                              for p, level in rows]})
+    """One page of submitted procedures, oldest submission first, with their highest finding level."""
+    query = schemas.PageQuery.model_validate(request.args.to_dict())
+    rows = procedures.review_queue(get_session(), active_rules(), limit=query.limit, offset=query.offset)
+    return jsonify(page_answer(rows, lambda row: {**_listed(row[0]), "highest_level": row[1]}))
 
 
 def init_app(app) -> None:

@@ -15,6 +15,8 @@ from flask import Response, jsonify, request
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 from service.api import bp
+from service.api.openapi import operation
+from service.api.responses import Report
 from service.auth import lab_scope
 from service.schemas import ElementSymbol
 from service.store import ledger
@@ -84,15 +86,22 @@ def render(frame, query: _ReportQuery):
     return Response(body, content_type=mimetype, headers={"Content-Disposition": f'attachment; filename="{filename}"'})
 
 
+MEDIA = ("application/json", "text/csv", XLSX)
+
+
 @bp.get("/reports/waste", endpoint="report_waste")
+@operation(query=WasteQuery, response=Report, media=MEDIA)
 def report_waste():
+    """Waste leaving: element masses into waste, grouped as asked."""
     query = _parse(WasteQuery)
     frame = ledger.run_report(get_session(), "waste", query.by, lab_ids=lab_scope(), **query.filters())
     return render(frame, query)
 
 
 @bp.get("/reports/inventory", endpoint="report_inventory")
+@operation(query=InventoryQuery, response=Report, media=MEDIA)
 def report_inventory():
+    """Inventory on hand: element masses in active stocks and mixtures, grouped as asked."""
     query = _parse(InventoryQuery)
     frame = ledger.run_report(get_session(), "inventory", query.by, lab_ids=lab_scope(), **query.filters())
     return render(frame, query)

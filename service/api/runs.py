@@ -2,12 +2,16 @@
 
 from __future__ import annotations
 
+from typing import Optional
+
 from flask import current_app, jsonify, request
 
 from service import schemas
 from service.api import bp
 from service.api.errors import ApiError
-from service.api.inventory import json_body
+from service.api.inventory import json_body, page_answer
+from service.api.openapi import operation
+from service.api.responses import Balance, Estimate, Run as RunAnswer
 from service.api.serialize import element_rows_from
 from service.auth import check_lab, current_user, lab_scope
 from service.store import inventory, runs
@@ -55,15 +59,24 @@ def _visible(ident: int) -> Run:
     return run
 
 
+class RunQuery(schemas.PageQuery):
+    procedure_id: Optional[int] = None
+
+
 @bp.get("/runs", endpoint="list_runs")
+@operation(query=RunQuery, response=RunAnswer, paged=True)
 def list_runs():
-    raw = request.args.get("procedure_id", "")
-    found = runs.list_runs(get_session(), lab_ids=lab_scope(), procedure_id=int(raw) if raw.isdigit() else None)
-    return jsonify({"items": [dump_run(r, with_balance=False) for r in found]})
+    """One page of runs (without their balance), optionally of one procedure."""
+    query = RunQuery.model_validate(request.args.to_dict())
+    found = runs.list_runs(get_session(), lab_ids=lab_scope(), procedure_id=query.procedure_id, limit=query.limit,
+                           offset=query.offset)
+    return jsonify(page_answer(found, lambda r: dump_run(r, with_balance=False)))
 
 
 @bp.post("/runs", endpoint="create_runs")
+@operation(body=schemas.RunIn, response=RunAnswer, status=201, errors=(403, 409))
 def start_run():
+    """Start a run of an approved procedure; its draws decrement the inventory."""
     body = json_body(schemas.RunIn)
     session = get_session()
     proc = inventory.get(session, Procedure, body.procedure_id, field="procedure_id")
@@ -73,12 +86,16 @@ def start_run():
 
 
 @bp.get("/runs/<int:ident>", endpoint="read_runs")
+@operation(response=RunAnswer, errors=(403,))
 def read_run(ident: int):
+    """A run with its mass balance."""
     return jsonify(dump_run(_visible(ident)))
 
 
 @bp.post("/runs/<int:ident>/outputs", endpoint="add_run_output")
+@operation(body=schemas.OutputIn, response=RunAnswer, status=201, errors=(403, 409))
 def add_output(ident: int):
+    """Record a product output of an open run."""
     body = json_body(schemas.OutputIn)
     run = _visible(ident)
     runs.add_output(get_session(), run, body)
@@ -86,7 +103,9 @@ def add_output(ident: int):
 
 
 @bp.post("/runs/<int:ident>/losses", endpoint="add_run_loss")
+@operation(body=schemas.LossIn, response=RunAnswer, status=201, errors=(403, 409))
 def add_loss(ident: int):
+    """Declare a loss of an open run."""
     body = json_body(schemas.LossIn)
     run = _visible(ident)
     runs.add_loss(get_session(), run, body)
@@ -94,12 +113,16 @@ def add_loss(ident: int):
 
 
 @bp.get("/runs/<int:ident>/balance", endpoint="read_run_balance")
+@operation(response=Balance, errors=(403,))
 def read_balance(ident: int):
+    """The run's mass balance per followed element."""
     return jsonify(dump_balance(runs.balance_of(get_session(), _visible(ident), _tolerance(), _elements())))
 
 
 @bp.post("/runs/<int:ident>/close", endpoint="close_run")
+@operation(response=RunAnswer, errors=(403, 409))
 def close(ident: int):
+    """Close a run whose balance closes within the site tolerance."""
     run = _visible(ident)
     try:
         runs.close_run(get_session(), run, _tolerance(), _elements())
@@ -109,6 +132,7 @@ def close(ident: int):
 
 
 @bp.post("/estimates", endpoint="create_estimate")
+@operation(body=schemas.EstimateIn, response=Estimate)
 def create_estimate():
     """The metal content of a dispersion from absorbance alone (nothing is stored)."""
     from service import estimates

@@ -2,11 +2,16 @@
 
 from __future__ import annotations
 
+from typing import Optional
+
 from flask import current_app, jsonify, request
+from pydantic import Field
 
 from service import schemas
 from service.api import bp
-from service.api.inventory import json_body
+from service.api.inventory import json_body, page_answer
+from service.api.openapi import operation
+from service.api.responses import WasteContainer as ContainerAnswer, WasteEntry as EntryAnswer
 from service.api.serialize import element_rows_from, finding
 from service.auth import check_lab, current_user, lab_scope
 from service.rules import evaluate, highest_level
@@ -68,14 +73,24 @@ def _visible(ident: int) -> WasteContainer:
     return container
 
 
+class ContainerQuery(schemas.PageQuery):
+    state: Optional[str] = Field(default=None, max_length=40)
+
+
 @bp.get("/waste_containers", endpoint="list_waste_containers")
+@operation(query=ContainerQuery, response=ContainerAnswer, paged=True)
 def list_containers():
-    found = waste.list_containers(get_session(), lab_ids=lab_scope(), state=request.args.get("state"))
-    return jsonify({"items": [dump_container(c) for c in found]})
+    """One page of waste containers with their contents and findings, optionally in one state."""
+    query = ContainerQuery.model_validate(request.args.to_dict())
+    found = waste.list_containers(get_session(), lab_ids=lab_scope(), state=query.state, limit=query.limit,
+                                  offset=query.offset)
+    return jsonify(page_answer(found, dump_container))
 
 
 @bp.post("/waste_containers", endpoint="create_waste_containers")
+@operation(body=schemas.ContainerIn, response=ContainerAnswer, status=201, errors=(403, 409))
 def create_container():
+    """Open a waste container."""
     body = json_body(schemas.ContainerIn)
     check_lab(body.lab_id)
     container = waste.create_container(get_session(), body)
@@ -83,18 +98,26 @@ def create_container():
 
 
 @bp.get("/waste_containers/<int:ident>", endpoint="read_waste_containers")
+@operation(response=ContainerAnswer, errors=(403,))
 def read_container(ident: int):
+    """A waste container with its contents and findings."""
     return jsonify(dump_container(_visible(ident)))
 
 
 @bp.get("/waste_containers/<int:ident>/entries", endpoint="list_waste_entries")
+@operation(query=schemas.PageQuery, response=EntryAnswer, paged=True, errors=(403,))
 def list_entries(ident: int):
+    """One page of a container's entries in the order they were made."""
+    query = schemas.PageQuery.model_validate(request.args.to_dict())
     container = _visible(ident)
-    return jsonify({"items": [dump_entry(e) for e in waste.entries_of(get_session(), container)]})
+    return jsonify(page_answer(waste.entries_of(get_session(), container, limit=query.limit, offset=query.offset),
+                               dump_entry))
 
 
 @bp.post("/waste_containers/<int:ident>/entries", endpoint="add_waste_entry")
+@operation(body=schemas.EntryIn, response=EntryAnswer, status=201, errors=(403, 409))
 def add_entry(ident: int):
+    """Add an entry to a container (refused when it would overfill it)."""
     body = json_body(schemas.EntryIn)
     _visible(ident)
     entry = waste.add_entry(get_session(), ident, body, current_user().id)
@@ -102,7 +125,9 @@ def add_entry(ident: int):
 
 
 @bp.post("/waste_containers/<int:ident>/entries/<int:entry_id>/reverse", endpoint="reverse_waste_entry")
+@operation(body=schemas.ReverseIn, response=EntryAnswer, status=201, errors=(403, 409))
 def reverse_entry(ident: int, entry_id: int):
+    """Reverse an entry with a new entry of the exact negative."""
     body = json_body(schemas.ReverseIn)
     _visible(ident)
     entry = waste.reverse_entry(get_session(), ident, entry_id, body.reason, current_user().id)
@@ -110,6 +135,7 @@ def reverse_entry(ident: int, entry_id: int):
 
 
 def _move_view(action: str):
+    @operation(summary=f"Waste container: {action.replace('_', ' ')}", response=ContainerAnswer, errors=(403, 409))
     def view(ident: int):
         return jsonify(dump_container(waste.move(get_session(), _visible(ident), action)))
 

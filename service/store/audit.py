@@ -20,6 +20,7 @@ from sqlalchemy import JSON, CheckConstraint, Index, String, Text, event, insert
 from sqlalchemy.orm import Mapped, Session, mapped_column
 
 from service.store.models import Base, utcnow
+from service.store.paging import Page, paginate
 
 __all__ = [
     "AuditEvent",
@@ -327,8 +328,8 @@ def verify_chain(session: Session, *, batch_size: int = 1000) -> ChainReport:
 
 def list_events(session: Session, *, entity: Optional[str] = None, entity_id: Any = None,
                 since: Optional[dt.datetime] = None, until: Optional[dt.datetime] = None,
-                limit: int = 100, offset: int = 0) -> list[AuditEvent]:
-    """Events in chain order; ``since`` is inclusive, ``until`` exclusive."""
+                limit: Optional[int] = 100, offset: int = 0) -> Page:
+    """A page of events in chain order; ``since`` is inclusive, ``until`` exclusive."""
     query = select(AuditEvent)
     if entity is not None:
         query = query.where(AuditEvent.entity == entity)
@@ -338,4 +339,4 @@ def list_events(session: Session, *, entity: Optional[str] = None, entity_id: An
         query = query.where(AuditEvent.at >= since)
     if until is not None:
         query = query.where(AuditEvent.at < until)
-    return list(session.scalars(query.order_by(AuditEvent.id).limit(limit).offset(offset)))
+    return paginate(session, query.order_by(AuditEvent.id), limit, offset)

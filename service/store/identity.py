@@ -15,6 +15,7 @@ from werkzeug.security import check_password_hash, generate_password_hash
 from service.errors import Conflict, InvalidInput, NotFound
 from service.schemas import UserIn, UserPatch
 from service.store.models import ApiToken, Lab, LoginAttempt, Membership, User, utcnow
+from service.store.paging import Page, paginate
 
 __all__ = [
     "LoginLocked",
@@ -25,6 +26,7 @@ __all__ = [
     "authenticate",
     "issue_token",
     "revoke_token",
+    "list_tokens",
     "user_for_token",
 ]
 
@@ -154,6 +156,11 @@ def revoke_token(session: Session, user: User, token_id: int) -> ApiToken:
     token.revoked_at = utcnow()
     session.flush()
     return token
+
+
+def list_tokens(session: Session, user: User, *, limit: Optional[int] = None, offset: int = 0) -> Page:
+    """A page of ``user``'s tokens in the order they were issued."""
+    return paginate(session, select(ApiToken).where(ApiToken.user_id == user.id).order_by(ApiToken.id), limit, offset)
 
 
 def user_for_token(session: Session, secret: str) -> Optional[User]:

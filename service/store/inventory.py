@@ -19,6 +19,7 @@ from service.chem.substances import SubstanceCatalogue
 from service.chem.units import kind_of, parse_quantity, to_decimal
 from service.errors import Conflict, InvalidInput, NotFound
 from service.schemas import MixtureIn, MixturePatch, StockIn, StockPatch
+from service.store.paging import Page, paginate
 from service.store.models import (
     Lab,
     Location,
@@ -41,6 +42,7 @@ __all__ = [
     "update_record",
     "retire",
     "list_records",
+    "locations_by_id",
     "create_stock",
     "update_stock",
     "create_mixture",
@@ -133,8 +135,8 @@ def list_records(
     lab_ids: Optional[set[int]] = None,
     limit: int = 500,
     offset: int = 0,
-) -> list:
-    """Records of ``model`` with the filters that apply to it, in id order.
+) -> Page:
+    """One page of records of ``model`` with the filters that apply to it, in id order.
 
     ``lab_ids`` limits labs, locations, stocks and mixtures to those labs.
     """
@@ -157,8 +159,15 @@ def list_records(
         elif model is Substance:
             # Formulas are parsed, not matched as text ("C" must not match "Cd").
             rows = session.scalars(query.order_by(model.id)).unique()
-            return [s for s in rows if element in parse_formula(s.formula).atoms][offset : offset + limit]
-    return list(session.scalars(query.order_by(model.id).limit(limit).offset(offset)).unique())
+            matching = [s for s in rows if element in parse_formula(s.formula).atoms]
+            return Page(matching[offset : offset + limit], len(matching), limit, offset)
+    return paginate(session, query.order_by(model.id), limit, offset)
+
+
+def locations_by_id(session: Session, ids) -> dict[int, Location]:
+    """The locations with these ids (retired ones too), in one query."""
+    wanted = sorted({i for i in ids if i is not None})
+    return {loc.id: loc for loc in session.scalars(select(Location).where(Location.id.in_(wanted)))} if wanted else {}
 
 
 # --- stocks -------------------------------------------------------------------

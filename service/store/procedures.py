@@ -19,6 +19,7 @@ from service.errors import Blocked, Conflict, Forbidden, InvalidInput
 from service.rules import LayeredRules, evaluate, highest_level
 from service.rules.subjects import ProcedureSubject, ReagentFacts, StepFacts
 from service.schemas import DrawIn, ProcedureIn, ProcedurePatch, StepIn, WastePlanIn
+from service.store.paging import Page, paginate
 from service.store.models import (
     Lab,
     Mixture,
@@ -284,21 +285,23 @@ def transition(session: Session, proc: Procedure, action: str, actor: User, comm
     return proc
 
 
-def review_queue(session: Session, rules: LayeredRules) -> list[tuple[Procedure, Optional[str]]]:
-    """Submitted procedures, oldest submission first, each with its highest finding level."""
-    procs = session.scalars(select(Procedure).where(Procedure.state == "submitted")
-                            .order_by(Procedure.submitted_at, Procedure.id))
-    return [(p, highest_level(findings_of(session, p, rules))) for p in procs]
+def review_queue(session: Session, rules: LayeredRules, *, limit: Optional[int] = None,
+                 offset: int = 0) -> Page:
+    """A page of submitted procedures, oldest submission first, each paired with its highest finding level."""
+    procs = paginate(session, select(Procedure).where(Procedure.state == "submitted")
+                     .order_by(Procedure.submitted_at, Procedure.id), limit, offset)
+    return procs.with_items([(p, highest_level(findings_of(session, p, rules))) for p in procs])
 
 
-def decisions_of(session: Session, proc: Procedure) -> list[ProcedureDecision]:
-    return list(session.scalars(select(ProcedureDecision).where(ProcedureDecision.procedure_id == proc.id)
-                                .order_by(ProcedureDecision.id)))
+def decisions_of(session: Session, proc: Procedure, *, limit: Optional[int] = None, offset: int = 0) -> Page:
+    """A page of the procedure's workflow decisions, oldest first."""
+    return paginate(session, select(ProcedureDecision).where(ProcedureDecision.procedure_id == proc.id)
+                    .order_by(ProcedureDecision.id), limit, offset)
 
 
 def list_procedures(session: Session, *, state: Optional[str] = None, lab_id: Optional[int] = None,
                     lab_ids: Optional[set[int]] = None, family_id: Optional[int] = None,
-                    limit: int = 100, offset: int = 0) -> list[Procedure]:
+                    limit: Optional[int] = 100, offset: int = 0) -> Page:
     query = select(Procedure)
     if state is not None:
         query = query.where(Procedure.state == state)
@@ -308,7 +311,7 @@ def list_procedures(session: Session, *, state: Optional[str] = None, lab_id: Op
         query = query.where(Procedure.lab_id.in_(sorted(lab_ids)))
     if family_id is not None:
         query = query.where(Procedure.family_id == family_id)
-    return list(session.scalars(query.order_by(Procedure.id).limit(limit).offset(offset)).unique())
+    return paginate(session, query.order_by(Procedure.id), limit, offset)
 
 
 def preview(session: Session, proc: Procedure, rules: LayeredRules, scales: list[float]):

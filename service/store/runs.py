@@ -13,6 +13,7 @@ from service.errors import Blocked, Conflict, InvalidInput
 from service.rules import LayeredRules, evaluate
 from service.schemas import DrawIn, LossIn, OutputIn, RunIn
 from service.store import inventory, procedures
+from service.store.paging import Page, paginate
 from service.store.models import (
     Mixture,
     Procedure,
@@ -193,11 +194,12 @@ class UnbalancedRun(Conflict):
         self.balance = balance
 
 
-def list_runs(session: Session, *, lab_ids: set[int] | None = None, procedure_id: int | None = None) -> list[Run]:
-    """Runs in id order, optionally for some labs or of one procedure."""
+def list_runs(session: Session, *, lab_ids: set[int] | None = None, procedure_id: int | None = None,
+              limit: int | None = None, offset: int = 0) -> Page:
+    """A page of runs in id order, optionally for some labs or of one procedure."""
     query = select(Run).order_by(Run.id)
     if lab_ids is not None:
         query = query.where(Run.lab_id.in_(sorted(lab_ids)))
     if procedure_id is not None:
         query = query.where(Run.procedure_id == procedure_id)
-    return list(session.scalars(query))
+    return paginate(session, query, limit, offset)

@@ -21,6 +21,7 @@ from service.errors import Conflict, InvalidInput
 from service.rules.subjects import ContainerComponent, ContainerSubject
 from service.schemas import ContainerIn, ElementAmountIn, EntryIn
 from service.store.inventory import get
+from service.store.paging import Page, paginate
 from service.store.models import (
     Location,
     Run,
@@ -223,17 +224,17 @@ def subject_of(session: Session, container: WasteContainer, contents: Contents,
 
 
 def list_containers(session: Session, *, lab_ids: Optional[set[int]] = None,
-                    state: Optional[str] = None) -> list[WasteContainer]:
-    """Containers in id order, optionally for some labs or in one state."""
+                    state: Optional[str] = None, limit: Optional[int] = None, offset: int = 0) -> Page:
+    """A page of containers in id order, optionally for some labs or in one state."""
     query = select(WasteContainer).order_by(WasteContainer.id)
     if lab_ids is not None:
         query = query.where(WasteContainer.lab_id.in_(sorted(lab_ids)))
     if state:
         query = query.where(WasteContainer.state == state)
-    return list(session.scalars(query))
+    return paginate(session, query, limit, offset)
 
 
-def entries_of(session: Session, container: WasteContainer) -> list[WasteEntry]:
-    """A container's entries in the order they were made."""
-    return list(session.scalars(select(WasteEntry).where(WasteEntry.container_id == container.id)
-                                .order_by(WasteEntry.id)))
+def entries_of(session: Session, container: WasteContainer, *, limit: Optional[int] = None, offset: int = 0) -> Page:
+    """A page of a container's entries in the order they were made."""
+    return paginate(session, select(WasteEntry).where(WasteEntry.container_id == container.id)
+                    .order_by(WasteEntry.id), limit, offset)

@@ -2,12 +2,13 @@
 
 from __future__ import annotations
 
-from flask import render_template
+from flask import render_template, request
 
 from service.api.procedures import active_rules, dump_procedure
 from service.api.runs import dump_run
 from service.auth import check_lab, current_user, lab_scope
 from service.permissions import allowed
+from service.schemas import PageQuery
 from service.store import inventory, procedures
 from service.store.db import get_session
 from service.store.models import Mixture, Procedure, Run, Stock
@@ -20,8 +21,9 @@ _UNIT_LABELS = {"ug": "µg", "degC": "°C", "delta_degC": "°C (difference)", "d
 
 @bp.get("/procedures", endpoint="procedures")
 def procedure_list():
-    found = procedures.list_procedures(get_session(), lab_ids=lab_scope(), limit=1000)
-    return render_template("pages/procedures.html", procedures=[dump_procedure(p) for p in found])
+    query = PageQuery.model_validate(request.args.to_dict())
+    found = procedures.list_procedures(get_session(), lab_ids=lab_scope(), limit=query.limit, offset=query.offset)
+    return render_template("pages/procedures.html", procedures=[dump_procedure(p) for p in found], page=found)
 
 
 @bp.get("/procedures/<int:ident>", endpoint="procedure")
@@ -33,10 +35,11 @@ def procedure_page(ident: int):
 
 @bp.get("/review", endpoint="review")
 def review_page():
-    rows = procedures.review_queue(get_session(), active_rules())
+    query = PageQuery.model_validate(request.args.to_dict())
+    rows = procedures.review_queue(get_session(), active_rules(), limit=query.limit, offset=query.offset)
     return render_template("pages/review.html",
                            queue=[{**dump_procedure(p, with_findings=False), "highest_level": level}
-                                  for p, level in rows])
+                                  for p, level in rows], page=rows)
 
 
 @bp.get("/runs/<int:ident>", endpoint="run")

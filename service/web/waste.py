@@ -4,10 +4,11 @@ from __future__ import annotations
 
 import datetime as dt
 
-from flask import render_template
+from flask import render_template, request
 
 from service.api.waste import dump_container, dump_entry
 from service.auth import check_lab, lab_scope
+from service.schemas import PageQuery
 from service.store import inventory, waste
 from service.store.db import get_session
 from service.store.models import WasteContainer
@@ -19,18 +20,21 @@ WASTE_ELEMENTS = ("Cd", "Se", "Pb")
 
 @bp.get("/waste", endpoint="waste")
 def container_list():
-    found = waste.list_containers(get_session(), lab_ids=lab_scope())
+    query = PageQuery.model_validate(request.args.to_dict())
+    found = waste.list_containers(get_session(), lab_ids=lab_scope(), limit=query.limit, offset=query.offset)
     return render_template("pages/waste.html", containers=[dump_container(c) for c in found],
-                           elements=WASTE_ELEMENTS)
+                           elements=WASTE_ELEMENTS, page=found)
 
 
 @bp.get("/waste/<int:ident>", endpoint="container")
 def container_page(ident: int):
+    query = PageQuery.model_validate(request.args.to_dict())
     session = get_session()
     container = inventory.get(session, WasteContainer, ident)
     check_lab(container.lab_id)
+    entries = waste.entries_of(session, container, limit=query.limit, offset=query.offset)
     return render_template("pages/container.html", container=dump_container(container),
-                           entries=[dump_entry(e) for e in waste.entries_of(session, container)])
+                           entries=[dump_entry(e) for e in entries], page=entries)
 
 
 @bp.app_template_filter("days_since")
