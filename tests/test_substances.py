@@ -2,7 +2,7 @@
 
 The expected values in these tables are written from outside sources — the CAS check-digit
 rule, the CLP Regulation (EC) No 1272/2008 (Annex I criteria, Annex III wording, Article 26
-pictogram precedence), the handbooks quoted in the published sources named below — not copied from the
+pictogram precedence), the handbooks named beside each table below — not copied from the
 YAML. Each table names its source and its status: *seen* (read in the published text), *2nd*
 (read in a faithful secondary copy) or *memory* (recalled, to be confirmed).
 """
@@ -370,7 +370,7 @@ def test_every_code_used_has_text():
 
 # --------------------------------------------------------------- physical data ----
 
-# the Physical data table (status seen): NAS, Chemical Laboratory Safety and Security (2016),
+# Handbook values (status seen): NAS, Chemical Laboratory Safety and Security (2016),
 # App. D (acetone, ethanol, chloroform); Merck Index (methanol); Prudent Practices in the
 # Laboratory, LCSS (toluene, n-hexane; NIOSH Pocket Guide for n-hexane). None = no flash point.
 PHYSICAL_SEEN = [
@@ -392,7 +392,9 @@ def test_solvent_physical_data_match_the_handbooks(name, bp, flash, density):
 
 
 def test_oleic_acid_bp_and_density_seen():
-    # the published sources: oleic acid bp 360 °C, density 0.89 g/mL (seen); flash point ≈189 °C (memory).
+    # Oleic acid bp 360 °C and density 0.89 g/mL: CRC Handbook of Chemistry and Physics, "Physical
+    # Constants of Organic Compounds" (from memory: recorded as read, but without edition or page);
+    # closed-cup flash point ≈189 °C as printed on supplier safety data sheets, section 9 (from memory).
     entry = by_name("oleic acid")
     assert entry.boiling_point_c == pytest.approx(360)
     assert entry.density_g_per_ml == pytest.approx(0.89)
@@ -412,7 +414,8 @@ def test_high_boiling_liquids_flash_below_300_c(name, flash):
 
 
 def test_octadecene_autoignition_below_synthesis_temperature():
-    # the published sources: 1-octadecene autoignition ≈250 °C (memory) — below 300 °C as well.
+    # 1-octadecene autoignition ≈250 °C as printed on supplier safety data sheets, section 9 (from
+    # memory — verify) — below a 300 °C synthesis step as well.
     assert by_name("1-octadecene").autoignition_c == pytest.approx(250, abs=10)
 
 
@@ -487,7 +490,8 @@ def test_formula_weight(name, molar_mass):
     assert by_name(name).parsed_formula.molar_mass_g_per_mol == pytest.approx(molar_mass, rel=1e-3)
 
 
-# worked value from CIAAW 2021 atomic weightss, computed from CIAAW 2021 standard atomic weights (seen):
+# Worked values computed from the CIAAW 2021 standard atomic weights (Prohaska et al., Pure Appl. Chem.
+# 94, 2022; seen as shipped in periodictable):
 # Cd in CdO 87.54 %, Cd in Cd(CH3COO)2·2H2O 42.18 %.
 @pytest.mark.parametrize("name, fraction", [("cadmium oxide", 0.8754), ("cadmium acetate dihydrate", 0.4218)])
 def test_cadmium_mass_fraction(name, fraction):
@@ -505,7 +509,8 @@ def _molmass_text(formula: str) -> str:
 
 @pytest.mark.parametrize("key", KEYS)
 def test_molar_mass_agrees_with_an_independent_parser(key):
-    # Cross-check against molmass (its own element table). the published sources: the two agree within
+    # Cross-check against molmass (its own element table) of the CIAAW 2021 standard atomic weights
+    # (Prohaska et al., Pure Appl. Chem. 94, 2022; seen as shipped in periodictable): the two agree within
     # 0.01 % for compounds (CdS 144.479 vs 144.474); for elemental sulfur (32.06 vs 32.065) the
     # difference is 0.015 %, hence 0.02 % here — still far below one H atom in 2000 g/mol.
     molmass = pytest.importorskip("molmass")
