@@ -81,8 +81,12 @@ def test_assessment_pdf_prints_masses_hazards_and_deferral(demo):
     assert response.mimetype == "application/pdf"
     reader, pages = _text(response.data)
     text = " ".join(pages)
+    assert view["element_masses_per_batch"]
     for row in view["element_masses_per_batch"]:  # the JSON view's numbers, printed as mg
         assert f"{row['mass_ug'] / 1000:,.3f}" in text, row
+    # By hand (CIAAW 2021: Cd 112.414, O 15.999, Se 78.971 g/mol): the demo draws 25.7 mg CdO at 99.99 %,
+    # × 112.414 / 128.413 = 22.496 mg Cd, and 1.0 mL of 1.0 mol/L TOP-Se = 1.0 mmol × 78.971 = 78.971 mg Se.
+    assert "22.496" in text and "78.971" in text
     for code, wording in H_TEXTS.items():  # cadmium oxide, 1-octadecene, acetone use these codes
         assert f"{code} {wording}" in text, code
     for pack in view["rule_packs"]:
@@ -106,6 +110,9 @@ def test_manifest_pdf_codes_transport_and_hash(demo):
     text = " ".join(pages)
     cd = next(e for e in container["elements"] if e["element"] == "Cd")
     assert f"{cd['mass_ug'] / 1000:,.3f}" in text and f"{cd['concentration_mg_per_l']:,.3f}" in text
+    # By hand: the demo run's 22 496 µg Cd, 22 % and 6 % of it (rounded down, the demo's invented split)
+    # into the two supernatants: 4949 + 1349 = 6298 µg = 6.298 mg in 25 + 20 mL; 6.298 mg / 0.045 L = 139.956 mg/L.
+    assert "6.298" in text and "139.956" in text
     assert "D006" in text  # RCRA toxicity characteristic, cadmium (40 CFR 261.24)
     assert "UN 1992" in text and "UN 1090" in text  # UN Model Regulations / 49 CFR 172.101 (UN 1090 seen, UN 1992 from memory)
     assert "UN 2570" not in text  # a solids entry; this is a liquid container
