@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import hashlib
 import io
-import json
 import re
 
 import pytest
@@ -21,7 +20,8 @@ from click.testing import CliRunner
 from pypdf import PdfReader
 
 import service.cli
-from service.documents import canonical_json
+from service.documents import canonical_json, data_sha256
+from service.documents.render import render_html
 from tests.conftest import Api, make_app, make_user
 
 # GHS Rev. 10 Annex 3 / CLP Annex III standard English wording — from memory.
@@ -81,8 +81,12 @@ def test_assessment_pdf_prints_masses_hazards_and_deferral(demo):
     assert response.mimetype == "application/pdf"
     reader, pages = _text(response.data)
     text = " ".join(pages)
+    assert view["element_masses_per_batch"]
     for row in view["element_masses_per_batch"]:  # the JSON view's numbers, printed as mg
         assert f"{row['mass_ug'] / 1000:,.3f}" in text, row
+    # By hand (CIAAW 2021: Cd 112.414, O 15.999, Se 78.971 g/mol): the demo draws 25.7 mg CdO at 99.99 %,
+    # × 112.414 / 128.413 = 22.496 mg Cd, and 1.0 mL of 1.0 mol/L TOP-Se = 1.0 mmol × 78.971 = 78.971 mg Se.
+    assert "22.496" in text and "78.971" in text
     for code, wording in H_TEXTS.items():  # cadmium oxide, 1-octadecene, acetone use these codes
         assert f"{code} {wording}" in text, code
     for pack in view["rule_packs"]:
@@ -106,6 +110,9 @@ def test_manifest_pdf_codes_transport_and_hash(demo):
     text = " ".join(pages)
     cd = next(e for e in container["elements"] if e["element"] == "Cd")
     assert f"{cd['mass_ug'] / 1000:,.3f}" in text and f"{cd['concentration_mg_per_l']:,.3f}" in text
+    # By hand: the demo run's 22 496 µg Cd, 22 % and 6 % of it (rounded down, the demo's invented split)
+    # into the two supernatants: 4949 + 1349 = 6298 µg = 6.298 mg in 25 + 20 mL; 6.298 mg / 0.045 L = 139.956 mg/L.
+    assert "6.298" in text and "139.956" in text
     assert "D006" in text  # RCRA toxicity characteristic, cadmium (40 CFR 261.24)
     assert "UN 1992" in text and "UN 1090" in text  # UN Model Regulations / 49 CFR 172.101 (UN 1090 seen, UN 1992 from memory)
     assert "UN 2570" not in text  # a solids entry; this is a liquid container
@@ -116,12 +123,56 @@ def test_manifest_pdf_codes_transport_and_hash(demo):
     assert html.headers["X-Document-SHA256"] in html.get_data(as_text=True)
 
 
-def test_hash_is_sha256_of_the_canonical_data():
-    data = {"b": [1, 2], "a": "Cd 22.496 mg"}
-    # Computed independently: json.dumps with sorted keys and compact separators, then hashlib.
-    expected = hashlib.sha256(json.dumps(data, sort_keys=True, separators=(",", ":")).encode()).hexdigest()
-    assert hashlib.sha256(canonical_json(data)).hexdigest() == expected
-    assert hashlib.sha256(b"{}").hexdigest() == "44136fa355b3678a1146ad16f7e8649e94fb4fc21fe77e8310c060f61caaff8a"
+# SHA-256 test vector: FIPS 180-2, Appendix B.1 (the one-block message "abc"), seen.
+SHA256_ABC = "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
+
+
+def test_sha256_of_the_fips_example():
+    # hashlib is the independent implementation the expectations below use; check it first.
+    assert hashlib.sha256(b"abc").hexdigest() == SHA256_ABC
+
+
+def test_canonical_json_bytes_written_out_by_hand():
+    data = {"z": {"\u03b2": [1, 2.5, None], "a": True}, "mass": "22.496 mg", "\u00b5": "\u00b5g", "element": "Cd"}
+    # Keys sorted by code point at every level ("µ" U+00B5 after "z"; "β" U+03B2 after "a"), no spaces,
+    # UTF-8 without escapes: µ = C2 B5, β = CE B2 (Unicode / RFC 3629).
+    expected = (b'{"element":"Cd","mass":"22.496 mg","z":{"a":true,"\xce\xb2":[1,2.5,null]},'
+                b'"\xc2\xb5":"\xc2\xb5g"}')
+    assert canonical_json(data) == expected
+    assert data_sha256(data) == hashlib.sha256(expected).hexdigest()
+    with pytest.raises(ValueError):  # NaN has no JSON form; it is refused, not written as NaN
+        canonical_json({"x": float("nan")})
+
+
+# A waste manifest's data, small enough to write its canonical bytes out by hand.
+MANIFEST_DATA = {
+    "site": "Institut f\u00fcr Nanokristalle", "page_size": "A4", "generated_at": "2026-01-02 03:04:05 UTC",
+    "document_id": "WM-00001", "lab": {"code": "C-214", "name": "Colloids"}, "location": {},
+    "container": {"id": 1, "label": "W-1", "stream": "aqueous_heavy_metals", "form": "liquid", "capacity": "10 L",
+                  "acute_hazardous": False, "volume_l": 0, "fill_percent": 0, "filterable_solids_percent": 0,
+                  "state": "open", "first_entry_at": None, "full_at": None, "pickup_requested_at": None,
+                  "collected_at": None},
+    "stream_title": "Aqueous", "deferral": "Defer.", "caution": "Careful.", "transport_version": "t1",
+    "rule_packs": [], "constituents": [], "elements": [], "suggested_codes": [], "transport": [],
+    "metals_present": [], "hazards": [], "findings": [], "entries": [], "sign_off": ["Safety officer"],
+}
+MANIFEST_BYTES = (
+    b'{"caution":"Careful.","constituents":[],'
+    b'"container":{"acute_hazardous":false,"capacity":"10 L","collected_at":null,"fill_percent":0,'
+    b'"filterable_solids_percent":0,"first_entry_at":null,"form":"liquid","full_at":null,"id":1,"label":"W-1",'
+    b'"pickup_requested_at":null,"state":"open","stream":"aqueous_heavy_metals","volume_l":0},'
+    b'"deferral":"Defer.","document_id":"WM-00001","elements":[],"entries":[],"findings":[],'
+    b'"generated_at":"2026-01-02 03:04:05 UTC","hazards":[],"lab":{"code":"C-214","name":"Colloids"},'
+    b'"location":{},"metals_present":[],"page_size":"A4","rule_packs":[],"sign_off":["Safety officer"],'
+    b'"site":"Institut f\xc3\xbcr Nanokristalle","stream_title":"Aqueous","suggested_codes":[],"transport":[],'
+    b'"transport_version":"t1"}'
+)
+
+
+def test_document_hash_is_sha256_of_its_data_written_out_by_hand():
+    doc = render_html("manifest.html", MANIFEST_DATA, document_id="WM-00001", filename="manifest-1")
+    assert doc.sha256 == hashlib.sha256(MANIFEST_BYTES).hexdigest()
+    assert doc.sha256 in doc.html  # the footer prints the same hash the header carries
 
 
 def test_researcher_of_another_lab_is_refused(demo):

@@ -207,6 +207,11 @@ def test_inventory_matches_the_stocks_element_rows(api, client, app):
     assert body["columns"] == ["element", "building", "room", "storage", "mass_ug", "mass_mg"]
     got = {(r["element"], r["building"], r["room"], r["storage"]): r["mass_ug"] for r in body["rows"]}
     assert got == expected
+    # By hand (CIAAW 2021, Cd 112.414, O 15.999): CdO is 112.414 / 128.413 Cd; 25 g on the shelf (the
+    # retired 5 g left out) = 21 885 245 µg, 1 g in the fridge = 875 410 µg, 2 g in the other lab = 1 750 820 µg.
+    assert got[("Cd", "B", "B-101", "cabinet 1")] == 21_885_245
+    assert got[("Cd", "B", "B-101", "fridge")] == 875_410
+    assert got[("Cd", "C", "C-3", "shelf")] == 1_750_820
     assert "site safety officer" in body["caution"]
 
     researcher = Api(client, make_user(app, "r@test.example", "researcher", lab_ids=[other]))

@@ -44,6 +44,7 @@ def test_monolayer_thickness_common_practice(shell, thickness_nm):
 
 
 def test_every_table_value_names_its_source():
+    assert {name for name, entry in MATERIALS.items() if entry.has_optical_relations} >= {"CdSe", "CdTe", "CdS"}
     for entry in MATERIALS.values():
         assert entry.density_source
         if entry.has_optical_relations:
@@ -70,6 +71,7 @@ def test_atoms_in_a_3_nm_cdse_sphere_by_hand():
 def test_atoms_scale_with_the_cube_of_the_diameter(material):
     small = atoms_per_particle(material, 2.5)
     large = atoms_per_particle(material, 5.0)
+    assert len(small) == 2 and set(small) == set(large)  # the metal and the chalcogen
     for symbol in small:
         assert large[symbol] == pytest.approx(8 * small[symbol], rel=1e-12)
 

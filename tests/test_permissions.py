@@ -1,14 +1,27 @@
-"""Every route × every role against the one permission matrix (service/permissions.py).
+"""Every route × every role against a table of who may do what, written out here by hand.
 
-A route with no rule in the matrix fails test_every_route_has_a_rule; a route whose
-answer disagrees with the matrix for some role fails test_route_role_matrix.
+The expectation is not read from service/permissions.py: it is the policy as the design
+describes the roles, so a change to the matrix that contradicts it fails here.
+
+- researcher: registers and submits procedures, records runs, puts waste into containers, keeps
+  the stocks and mixtures of their own labs (lab-scoped).
+- safety_officer: approves, asks for changes or declines submitted procedures (the only role that
+  decides; nobody approves their own); runs the waste containers through pickup and collection.
+- lab_manager: keeps the chemical inventory (labs, locations, substances, stocks, mixtures).
+- auditor: reads everything, changes nothing; reads the audit trail.
+- admin: manages users; may do what the lab manager does, but does not decide on procedures.
+- anonymous: only signs in and reads the API index and its OpenAPI document.
+
+test_every_route_has_an_expectation fails for a route missing from this table, and
+test_matrix_agrees_with_the_policy and test_route_role_matrix fail when the matrix or the
+answers disagree with it.
 """
 
 from __future__ import annotations
 
 import pytest
 
-from service.permissions import MATRIX, PUBLIC, ROLES
+from service.permissions import MATRIX, PUBLIC
 from service.schemas import LabIn, LocationIn, StockIn, UserIn
 from service.store import identity, inventory
 from service.store.db import session_scope
@@ -17,6 +30,69 @@ from tests.conftest import Api, make_user
 
 METHODS = ("GET", "POST", "PATCH", "PUT", "DELETE")
 
+RESEARCHER, OFFICER, MANAGER, AUDITOR, ADMIN = "researcher", "safety_officer", "lab_manager", "auditor", "admin"
+ROLES = (RESEARCHER, OFFICER, MANAGER, AUDITOR, ADMIN)
+SIGNED_IN = frozenset(ROLES)
+
+# Reachable without signing in (the anonymous caller).
+PUBLIC_ENDPOINTS = frozenset({"static", "api.index", "api.openapi", "api.issue_token", "web.login", "web.login_submit"})
+
+_INVENTORY = ("labs", "locations", "substances", "stocks", "mixtures")
+
+
+def _writes(resource: str) -> list[str]:
+    return [f"api.{verb}_{resource}" for verb in ("create", "update", "retire")]
+
+
+# group: (roles allowed, endpoints). Every endpoint of the app appears exactly once.
+POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
+    "own account and sign-out": (SIGNED_IN, ["api.me", "api.list_tokens", "api.revoke_token", "web.logout"]),
+    # Reads: everyone signed in (the auditor reads everything; researchers see their labs only).
+    "reads": (SIGNED_IN, [
+        *[f"api.{verb}_{resource}" for resource in _INVENTORY for verb in ("list", "read")],
+        "api.list_procedures", "api.read_procedures", "api.list_procedure_revisions",
+        "api.list_procedure_decisions", "api.preview_procedure",
+        "api.list_runs", "api.read_runs", "api.read_run_balance",
+        "api.list_waste_containers", "api.read_waste_containers", "api.list_waste_entries",
+        "api.procedure_assessment_pdf", "api.procedure_assessment_html",
+        "api.waste_container_manifest_pdf", "api.waste_container_manifest_html",
+        "web.overview", "web.stocks", "web.mixtures", "web.procedures", "web.procedure",
+        "web.waste", "web.container", "web.run",
+    ]),
+    "reports (waste leaving, inventory on hand)": (SIGNED_IN, ["api.report_waste", "api.report_inventory"]),
+    "estimate from absorbance (a calculation, nothing stored)": (SIGNED_IN, ["api.create_estimate"]),
+    "review queue (who decides, and who oversees)": (frozenset({OFFICER, AUDITOR, ADMIN}),
+                                                     ["api.review_queue", "web.review"]),
+    # Inventory writes: the lab manager keeps the inventory; the auditor never writes.
+    "labs": (frozenset({MANAGER, ADMIN}), _writes("labs")),
+    "locations and the substance catalogue (storage and hazard data: also the safety officer)": (
+        frozenset({MANAGER, OFFICER, ADMIN}), _writes("locations") + _writes("substances")),
+    "stocks and mixtures (researchers in their labs prepare and draw them)": (
+        frozenset({RESEARCHER, MANAGER, ADMIN}), _writes("stocks") + _writes("mixtures")),
+    # Procedures: researchers register and submit; only the safety officer decides.
+    "procedure create, edit, submit": (frozenset({RESEARCHER, MANAGER, ADMIN}),
+                                       ["api.create_procedures", "api.update_procedures", "api.submit_procedure"]),
+    "approve, request changes, decline": (frozenset({OFFICER}),
+                                          ["api.approve_procedure", "api.request_changes_procedure",
+                                           "api.decline_procedure"]),
+    "retire an approved procedure": (frozenset({OFFICER, MANAGER, ADMIN}), ["api.retire_procedure"]),
+    "runs (researchers record their batches)": (frozenset({RESEARCHER, MANAGER, ADMIN}),
+                                                ["api.create_runs", "api.add_run_output", "api.add_run_loss",
+                                                 "api.close_run"]),
+    # Waste: researchers put each wash and solid into a container; the safety officer runs the containers.
+    "waste entries (add, reverse, mark full)": (frozenset({RESEARCHER, MANAGER, OFFICER, ADMIN}),
+                                                ["api.add_waste_entry", "api.reverse_waste_entry",
+                                                 "api.mark_full_waste_container"]),
+    "waste containers (create, request pickup)": (frozenset({OFFICER, MANAGER, ADMIN}),
+                                                  ["api.create_waste_containers", "api.request_pickup_waste_container"]),
+    "collection by the contractor": (frozenset({OFFICER, ADMIN}), ["api.collect_waste_container"]),
+    "audit trail": (frozenset({AUDITOR, ADMIN}), ["api.list_audit_events"]),
+    "user management": (frozenset({ADMIN}), ["api.list_users", "api.read_users", *_writes("users")]),
+}
+EXPECTED: dict[str, frozenset[str]] = {
+    endpoint: roles for roles, endpoints in POLICY.values() for endpoint in endpoints
+}
+
 
 def _routes(app):
     for rule in app.url_map.iter_rules():
@@ -24,11 +100,34 @@ def _routes(app):
             yield rule, method
 
 
-def test_every_route_has_a_rule(app):
-    missing = [rule.endpoint for rule, _ in _routes(app) if rule.endpoint not in PUBLIC | set(MATRIX)]
-    assert missing == []
-    stale = [endpoint for endpoint in MATRIX if endpoint not in {r.endpoint for r in app.url_map.iter_rules()}]
-    assert stale == []
+def test_policy_table_is_consistent_with_the_roles_as_described(app):
+    listed = [endpoint for _, endpoints in POLICY.values() for endpoint in endpoints]
+    assert len(listed) == len(set(listed)) == len(EXPECTED)  # no endpoint in two groups
+    assert not PUBLIC_ENDPOINTS & set(EXPECTED)
+    # Only the safety officer decides on a procedure; only the admin manages users.
+    assert {e for e, roles in EXPECTED.items() if roles == {OFFICER}} == {
+        "api.approve_procedure", "api.request_changes_procedure", "api.decline_procedure"}
+    assert {e for e, roles in EXPECTED.items() if roles == {ADMIN}} == {
+        "api.list_users", "api.read_users", "api.create_users", "api.update_users", "api.retire_users"}
+    # The auditor changes nothing: apart from GETs, only their own token, signing out and a calculation.
+    auditor_non_get = {rule.endpoint for rule, method in _routes(app)
+                       if method != "GET" and AUDITOR in EXPECTED.get(rule.endpoint, ())}
+    assert auditor_non_get == {"api.revoke_token", "web.logout", "api.create_estimate"}
+
+
+def test_every_route_has_an_expectation(app):
+    endpoints = {rule.endpoint for rule in app.url_map.iter_rules()}
+    assert endpoints - PUBLIC_ENDPOINTS - set(EXPECTED) == set()  # a new route needs a line above
+    assert set(EXPECTED) - endpoints == set()  # and a removed one loses its line
+
+
+def test_matrix_agrees_with_the_policy():
+    assert set(PUBLIC) == PUBLIC_ENDPOINTS
+    disagree = {endpoint: (sorted(MATRIX.get(endpoint, ())), sorted(roles)) for endpoint, roles in EXPECTED.items()
+                if set(MATRIX.get(endpoint, ())) != roles}
+    assert disagree == {}, "endpoint: (matrix, expected)"
+    assert set(MATRIX) == set(EXPECTED)
+    assert set().union(*MATRIX.values()) == set(ROLES)
 
 
 def _seed(app) -> dict[str, int]:
@@ -77,27 +176,31 @@ def test_route_role_matrix(app, client, role):
     tokens = {r: make_user(app, f"{r}@test.example", r, lab_ids=[ids["lab"]]) for r in ROLES}
     api = Api(client, tokens[role])
     csrf = _sign_in_page(client, app, f"{role}@test.example")
-    wrong = []
+    wrong, walked = [], set()
     for rule, method in _routes(app):
-        if rule.endpoint in PUBLIC or rule.endpoint == "web.logout":
+        if rule.endpoint in PUBLIC_ENDPOINTS or rule.endpoint == "web.logout":
             continue  # public by design; signing out is covered in test_identity
+        walked.add(rule.endpoint)
         url = _url(rule, ids, app)
         if url.startswith("/api/"):
             response = client.open(url, method=method, json={}, headers={"Authorization": f"Bearer {api.token}"})
         else:
             response = client.open(url, method=method, data={"csrf_token": csrf})
-        expected_forbidden = role not in MATRIX[rule.endpoint]
+        expected_forbidden = role not in EXPECTED[rule.endpoint]
         got_forbidden = response.status_code == 403
         if expected_forbidden != got_forbidden or response.status_code in (401, 500):
             wrong.append((method, url, response.status_code, "forbidden" if expected_forbidden else "allowed"))
     assert wrong == []
+    assert walked == set(EXPECTED) - {"web.logout"}
 
 
 def test_unauthenticated_requests(app, client):
     ids = _seed(app)
+    walked = set()
     for rule, method in _routes(app):
-        if rule.endpoint in PUBLIC:
+        if rule.endpoint in PUBLIC_ENDPOINTS:
             continue
+        walked.add(rule.endpoint)
         url = _url(rule, ids, app)
         response = client.open(url, method=method, json={} if url.startswith("/api/") else None)
         if url.startswith("/api/"):
@@ -107,6 +210,7 @@ def test_unauthenticated_requests(app, client):
             assert response.status_code == 302 and "/login" in response.headers["Location"], (method, url)
         else:
             assert response.status_code == 400, (method, url)  # no CSRF token without a session
+    assert walked == set(EXPECTED)
 
 
 def test_researcher_is_limited_to_their_labs(app, client):

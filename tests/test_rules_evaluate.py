@@ -1,8 +1,8 @@
 """Evaluating rules: exact threshold boundaries, temperature rules, findings and their order.
 
-Physical values, the Physical data table: 1-octadecene flash point ≈149 °C (from
-memory); toluene 4 °C (Prudent Practices in the Laboratory, seen); trioctylphosphine
-air-sensitive (from memory). Unit relations: SI prefixes (SI Brochure, 9th ed.), 0 °C = 273.15 K.
+Physical values and their sources: 1-octadecene closed-cup flash point ≈149 °C (supplier
+safety data sheets, from memory); toluene 4 °C (Prudent Practices in the Laboratory, seen);
+trioctylphosphine air-sensitive (supplier safety data sheets, from memory). Unit relations: SI prefixes (SI Brochure, 9th ed.), 0 °C = 273.15 K.
 """
 
 from __future__ import annotations

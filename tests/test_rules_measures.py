@@ -1,8 +1,9 @@
 """The measure registry and the procedure measures.
 
-Physical values, the Physical data table: toluene flash point 4 °C and n-hexane −22 °C
+Physical values and their sources: toluene flash point 4 °C and n-hexane −22 °C
 (Prudent Practices in the Laboratory, seen); chloroform has no flash point (NAS 2016, seen);
-1-octadecene ≈149 °C and trioctylphosphine ≈146 °C, air-sensitive (from memory).
+1-octadecene ≈149 °C and trioctylphosphine ≈146 °C, air-sensitive (supplier safety data sheets,
+from memory).
 """
 
 from __future__ import annotations

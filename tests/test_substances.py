@@ -2,13 +2,14 @@
 
 The expected values in these tables are written from outside sources — the CAS check-digit
 rule, the CLP Regulation (EC) No 1272/2008 (Annex I criteria, Annex III wording, Article 26
-pictogram precedence), the handbooks quoted in the published sources named below — not copied from the
+pictogram precedence), the handbooks named beside each table below — not copied from the
 YAML. Each table names its source and its status: *seen* (read in the published text), *2nd*
 (read in a faithful secondary copy) or *memory* (recalled, to be confirmed).
 """
 
 from __future__ import annotations
 
+import functools
 import re
 import shutil
 from pathlib import Path
@@ -22,13 +23,32 @@ from service.chem.substances import FLAGS, load_catalogue
 from service.datafiles import DataFileError
 
 RULES = Path(__file__).resolve().parents[1] / "rules"
-CATALOGUE, STATEMENTS = load_catalogue(RULES)
-ENTRIES = {s.key: s for s in CATALOGUE.substances}
-KEYS = sorted(ENTRIES)
+# The parametrize lists come from the YAML itself, so that a catalogue the loader refuses makes
+# tests fail one by one (with the loader's error) instead of stopping this module at collection.
+RAW = yaml.safe_load((RULES / "substances.yaml").read_text(encoding="utf-8"))["substances"]
+KEYS = sorted(entry["key"] for entry in RAW)
+LIQUID_KEYS = sorted(entry["key"] for entry in RAW if entry.get("state") == "liquid")
+
+
+@functools.cache
+def _loaded():
+    return load_catalogue(RULES)
+
+
+def catalogue():
+    return _loaded()[0]
+
+
+def statements():
+    return _loaded()[1]
+
+
+def entries() -> dict:
+    return {s.key: s for s in catalogue().substances}
 
 
 def by_name(name: str):
-    entry = CATALOGUE.find(name)
+    entry = catalogue().find(name)
     assert entry is not None, f"{name!r} is not in the catalogue"
     return entry
 
@@ -37,8 +57,8 @@ def by_name(name: str):
 
 
 def test_catalogue_loads_with_at_least_30_substances():
-    assert CATALOGUE.version == "2026.12"
-    assert len(CATALOGUE.substances) >= 30
+    assert catalogue().version == "2026.12"
+    assert len(catalogue().substances) >= 30
 
 
 # The substances the catalogue must hold, with their CAS Registry Numbers.
@@ -87,7 +107,7 @@ REQUIRED = [
 def test_required_substance_present_with_its_cas(name, cas):
     entry = by_name(name)
     assert entry.cas == cas
-    assert CATALOGUE.find(cas) is entry
+    assert catalogue().find(cas) is entry
 
 
 # Common laboratory abbreviations resolve to the right substance (trade usage).
@@ -105,33 +125,45 @@ def test_required_substance_present_with_its_cas(name, cas):
     ],
 )
 def test_synonyms_resolve(label, name):
-    assert CATALOGUE.find(label) is by_name(name)
+    assert catalogue().find(label) is by_name(name)
 
 
 def test_hydrate_and_anhydrous_salt_are_not_confused():
     # Different CAS, different metal fraction: a bare salt name must not find the hydrate.
-    assert CATALOGUE.find("cadmium acetate") is not CATALOGUE.find("cadmium acetate dihydrate")
-    assert CATALOGUE.find("zinc acetate") is None or CATALOGUE.find("zinc acetate").cas != "5970-45-6"
+    assert catalogue().find("cadmium acetate") is not catalogue().find("cadmium acetate dihydrate")
+    assert catalogue().find("zinc acetate") is None or catalogue().find("zinc acetate").cas != "5970-45-6"
 
 
 # ---------------------------------------------------------------------- CAS numbers ----
 
 
-@pytest.mark.parametrize("key", KEYS)
-def test_every_cas_passes_the_check_digit(key):
-    assert validate_cas(ENTRIES[key].cas) == ENTRIES[key].cas
+def check_digit_by_hand(cas: str) -> int:
+    """The CAS check digit, computed here independently of service.chem.cas.
+
+    CAS, "CAS Registry Number and check digit" (the published rule): each digit before the check
+    digit times its position counted from the right (1 for the digit next to the check digit),
+    summed, modulo 10.
+    """
+    digits = [int(c) for c in cas.rsplit("-", 1)[0] if c.isdigit()]
+    total = 0
+    for position in range(1, len(digits) + 1):
+        total += position * digits[-position]
+    return total % 10
 
 
 def test_check_digit_worked_example_water():
-    # CAS, "CAS Registry Number and check digit" (published rule, seen in its description of the
-    # format): water 7732-18-5 — 8·1 + 1·2 + 2·3 + 3·4 + 7·5 + 7·6 = 105, last digit 5.
-    assert 8 * 1 + 1 * 2 + 2 * 3 + 3 * 4 + 7 * 5 + 7 * 6 == 105
+    # CAS's own worked example of the rule: water 7732-18-5 — 8·1 + 1·2 + 2·3 + 3·4 + 7·5 + 7·6 = 105 → 5.
+    assert check_digit_by_hand("7732-18-5") == 5
     assert cas_check_digit("7732-18") == 5
 
 
-# Well-known CAS numbers (CAS Registry; from memory — verify) and their check digits.
+# Well-known CAS numbers (CAS Registry; from memory — verify, except water, CAS's worked example)
+# and their check digits. Cadmium oxide 1306-19-0 and selenium 7782-49-2 are also the CAS numbers
+# of their CLP Annex VI entries (from memory).
 KNOWN_CAS = [
     "7732-18-5",   # water (CAS's own worked example)
+    "1306-19-0",   # cadmium oxide (from memory)
+    "7782-49-2",   # selenium (from memory)
     "7647-14-5",   # sodium chloride
     "71-43-2",     # benzene
     "50-00-0",     # formaldehyde
@@ -142,6 +174,24 @@ KNOWN_CAS = [
     "13494-80-9",  # tellurium
     "25114-58-3",  # indium(III) acetate
 ]
+
+
+@pytest.mark.parametrize("cas", KNOWN_CAS)
+def test_check_digit_agrees_with_the_rule_computed_by_hand(cas):
+    body, check = cas.rsplit("-", 1)
+    assert check_digit_by_hand(cas) == int(check)  # the published number obeys the rule as written above
+    assert cas_check_digit(body) == int(check)
+
+
+def test_every_catalogue_cas_has_the_right_check_digit():
+    # Read from the YAML, not through the loader (which refuses a bad CAS itself), so that a wrong
+    # number fails here with its entry named. That the loader refuses one is
+    # test_corrupted_value_is_reported_with_file_and_key_path.
+    assert len(RAW) >= 30
+    wrong = [(entry["key"], entry["cas"]) for entry in RAW
+             if not re.fullmatch(r"\d{2,7}-\d{2}-\d", str(entry["cas"]))
+             or check_digit_by_hand(entry["cas"]) != int(entry["cas"][-1])]
+    assert wrong == []
 
 
 @pytest.mark.parametrize("cas", KNOWN_CAS)
@@ -171,7 +221,7 @@ PROVENANCE = re.compile(r"\b(seen|2nd|memory)\b")
 
 @pytest.mark.parametrize("key", KEYS)
 def test_every_entry_names_its_source_and_status(key):
-    entry = ENTRIES[key]
+    entry = entries()[key]
     assert entry.source.strip()
     assert PROVENANCE.search(entry.source), f"{key}: source gives no status (seen / 2nd / memory)"
     physical = [entry.density_g_per_ml, entry.flash_point_c, entry.boiling_point_c, entry.autoignition_c]
@@ -182,7 +232,7 @@ def test_every_entry_names_its_source_and_status(key):
 
 
 def test_every_statement_names_its_source():
-    for statement in STATEMENTS.statements:
+    for statement in statements().statements:
         assert PROVENANCE.search(statement.source), statement.code
 
 
@@ -203,7 +253,7 @@ def _entry(document, key):
 
 
 def _index(key):
-    return next(i for i, s in enumerate(CATALOGUE.substances) if s.key == key)
+    return next(i for i, s in enumerate(catalogue().substances) if s.key == key)
 
 
 @pytest.mark.parametrize(
@@ -257,8 +307,8 @@ def test_duplicate_synonym_is_refused(tmp_path):
 def test_unmodified_copy_loads(tmp_path):
     # The corruption tests must fail because of the corruption, not because of the copying.
     rules = _corrupt(tmp_path, lambda d: None)
-    catalogue, _ = load_catalogue(rules)
-    assert len(catalogue.substances) == len(CATALOGUE.substances)
+    copy, _ = load_catalogue(rules)
+    assert len(copy.substances) == len(catalogue().substances)
 
 
 # ----------------------------------------------------------- hazard statement texts ----
@@ -309,18 +359,18 @@ H_TEXTS = [
 
 @pytest.mark.parametrize("code, text", H_TEXTS)
 def test_h_statement_text_is_the_standard_wording(code, text):
-    assert STATEMENTS.text_of(code) == text
+    assert statements().text_of(code) == text
 
 
 def test_every_code_used_has_text():
-    used = {code for s in CATALOGUE.substances for code in s.hazard.h_statements}
-    assert used <= {s.code for s in STATEMENTS.statements}
-    assert len({s.code for s in STATEMENTS.statements}) == len(STATEMENTS.statements)
+    used = {code for s in catalogue().substances for code in s.hazard.h_statements}
+    assert used <= {s.code for s in statements().statements}
+    assert len({s.code for s in statements().statements}) == len(statements().statements)
 
 
 # --------------------------------------------------------------- physical data ----
 
-# the Physical data table (status seen): NAS, Chemical Laboratory Safety and Security (2016),
+# Handbook values (status seen): NAS, Chemical Laboratory Safety and Security (2016),
 # App. D (acetone, ethanol, chloroform); Merck Index (methanol); Prudent Practices in the
 # Laboratory, LCSS (toluene, n-hexane; NIOSH Pocket Guide for n-hexane). None = no flash point.
 PHYSICAL_SEEN = [
@@ -342,7 +392,9 @@ def test_solvent_physical_data_match_the_handbooks(name, bp, flash, density):
 
 
 def test_oleic_acid_bp_and_density_seen():
-    # the published sources: oleic acid bp 360 °C, density 0.89 g/mL (seen); flash point ≈189 °C (memory).
+    # Oleic acid bp 360 °C and density 0.89 g/mL: CRC Handbook of Chemistry and Physics, "Physical
+    # Constants of Organic Compounds" (from memory: recorded as read, but without edition or page);
+    # closed-cup flash point ≈189 °C as printed on supplier safety data sheets, section 9 (from memory).
     entry = by_name("oleic acid")
     assert entry.boiling_point_c == pytest.approx(360)
     assert entry.density_g_per_ml == pytest.approx(0.89)
@@ -362,7 +414,8 @@ def test_high_boiling_liquids_flash_below_300_c(name, flash):
 
 
 def test_octadecene_autoignition_below_synthesis_temperature():
-    # the published sources: 1-octadecene autoignition ≈250 °C (memory) — below 300 °C as well.
+    # 1-octadecene autoignition ≈250 °C as printed on supplier safety data sheets, section 9 (from
+    # memory — verify) — below a 300 °C synthesis step as well.
     assert by_name("1-octadecene").autoignition_c == pytest.approx(250, abs=10)
 
 
@@ -370,9 +423,9 @@ def test_octadecene_autoignition_below_synthesis_temperature():
 #   Cat. 1: flash point < 23 °C and initial boiling point ≤ 35 °C
 #   Cat. 2: flash point < 23 °C and initial boiling point > 35 °C
 #   Cat. 3: flash point ≥ 23 °C and ≤ 60 °C
-@pytest.mark.parametrize("key", [k for k in KEYS if ENTRIES[k].state == "liquid"])
+@pytest.mark.parametrize("key", LIQUID_KEYS)
 def test_flammable_liquid_category_agrees_with_flash_point(key):
-    entry = ENTRIES[key]
+    entry = entries()[key]
     categories = [c for c in entry.hazard.classes if c.startswith("Flam. Liq. ")]
     if entry.flash_point_c is None:
         assert not categories or entry.physical_source and "unknown" in entry.physical_source
@@ -437,7 +490,8 @@ def test_formula_weight(name, molar_mass):
     assert by_name(name).parsed_formula.molar_mass_g_per_mol == pytest.approx(molar_mass, rel=1e-3)
 
 
-# worked value from CIAAW 2021 atomic weightss, computed from CIAAW 2021 standard atomic weights (seen):
+# Worked values computed from the CIAAW 2021 standard atomic weights (Prohaska et al., Pure Appl. Chem.
+# 94, 2022; seen as shipped in periodictable):
 # Cd in CdO 87.54 %, Cd in Cd(CH3COO)2·2H2O 42.18 %.
 @pytest.mark.parametrize("name, fraction", [("cadmium oxide", 0.8754), ("cadmium acetate dihydrate", 0.4218)])
 def test_cadmium_mass_fraction(name, fraction):
@@ -455,11 +509,12 @@ def _molmass_text(formula: str) -> str:
 
 @pytest.mark.parametrize("key", KEYS)
 def test_molar_mass_agrees_with_an_independent_parser(key):
-    # Cross-check against molmass (its own element table). the published sources: the two agree within
+    # Cross-check against molmass (its own element table) of the CIAAW 2021 standard atomic weights
+    # (Prohaska et al., Pure Appl. Chem. 94, 2022; seen as shipped in periodictable): the two agree within
     # 0.01 % for compounds (CdS 144.479 vs 144.474); for elemental sulfur (32.06 vs 32.065) the
     # difference is 0.015 %, hence 0.02 % here — still far below one H atom in 2000 g/mol.
     molmass = pytest.importorskip("molmass")
-    entry = ENTRIES[key]
+    entry = entries()[key]
     expected = molmass.Formula(_molmass_text(entry.formula)).mass
     assert entry.parsed_formula.molar_mass_g_per_mol == pytest.approx(expected, rel=2e-4)
 
@@ -542,7 +597,7 @@ def _h_codes_for(cls_code: str) -> set[str]:
 
 @pytest.mark.parametrize("key", KEYS)
 def test_classes_and_h_statements_agree(key):
-    hazard = ENTRIES[key].hazard
+    hazard = entries()[key].hazard
     codes = {c for c in hazard.h_statements if not c.startswith("EUH")}
     covered: set[str] = set()
     for cls_code in hazard.classes:
@@ -554,7 +609,7 @@ def test_classes_and_h_statements_agree(key):
 
 @pytest.mark.parametrize("key", KEYS)
 def test_pictograms_follow_the_classes(key):
-    hazard = ENTRIES[key].hazard
+    hazard = entries()[key].hazard
     expected: set[str] = set()
     irritation_only_07 = True
     for cls_code in hazard.classes:
@@ -572,7 +627,7 @@ def test_pictograms_follow_the_classes(key):
 
 @pytest.mark.parametrize("key", KEYS)
 def test_signal_word_follows_the_classes(key):
-    hazard = ENTRIES[key].hazard
+    hazard = entries()[key].hazard
     if any(DANGER.search(c) for c in hazard.classes):
         expected = "Danger"
     elif any(WARNING.search(c) for c in hazard.classes):
@@ -595,14 +650,14 @@ FLAG_RULES = [
 @pytest.mark.parametrize("key", KEYS)
 @pytest.mark.parametrize("flag, pattern", FLAG_RULES)
 def test_health_and_environment_flags_follow_the_classes(key, flag, pattern):
-    entry = ENTRIES[key]
+    entry = entries()[key]
     classified = any(re.match(pattern, c) for c in entry.hazard.classes)
     assert (flag in entry.flags) == classified
 
 
 @pytest.mark.parametrize("key", KEYS)
 def test_physical_hazard_flags(key):
-    entry = ENTRIES[key]
+    entry = entries()[key]
     assert set(entry.flags) <= set(FLAGS)
     if any(c.startswith("Pyr. ") for c in entry.hazard.classes):
         assert {"pyrophoric", "flammable", "air_sensitive"} <= set(entry.flags)
