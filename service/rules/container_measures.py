@@ -14,8 +14,10 @@ import re
 from decimal import Decimal
 from typing import Optional
 
-from service.rules import measures as _registry
-from service.rules.measures import MeasureNameError, MeasureResult, _dec, _plain, _text, measure
+from service.rules.registry import MeasureNameError, MeasureResult, measure, parameter
+from service.rules.registry import dec as _dec
+from service.rules.registry import plain as _plain
+from service.rules.registry import text as _text
 from service.rules.subjects import ContainerComponent, ContainerSubject
 
 __all__ = ["TRACE_FRACTION", "TC_EXTRACT_SOLIDS_PERCENT", "is_water"]
@@ -32,8 +34,7 @@ def _check_key(key: str) -> str:
     raise MeasureNameError(f"{key!r} is not a catalogue key (a lowercase slug such as acetone or ethyl-acetate)")
 
 
-_registry._PARAMETER_LABELS["substance"] = "<key>"
-_registry._PARAMETER_CHECKS["substance"] = _check_key
+parameter("substance", "<key>", _check_key)
 
 
 def is_water(component: ContainerComponent) -> bool:
