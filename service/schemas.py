@@ -6,7 +6,7 @@ import datetime as dt
 from decimal import Decimal
 from typing import Annotated, Literal, Optional
 
-from pydantic import AfterValidator, BaseModel, ConfigDict, Field, SecretStr, model_validator
+from pydantic import AfterValidator, BaseModel, ConfigDict, Field, SecretStr, field_validator, model_validator
 
 from service.chem.formula import atomic_weight
 from service.chem.substances import Substance as CatalogueSubstance
@@ -45,6 +45,8 @@ __all__ = [
     "OutputIn",
     "LossIn",
     "EstimateIn",
+    "ListQuery",
+    "PreviewQuery",
 ]
 
 LocationKind = Literal["storage", "satellite_accumulation_area"]
@@ -342,3 +344,37 @@ class EstimateIn(_Body):
 
 
 OutputIn.model_rebuild()  # resolves the forward reference to EstimateIn
+
+
+# --- query parameters shared by the API, the pages and the command line ----------------------
+
+
+class ListQuery(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+    include_retired: bool = False
+    lab_id: Optional[int] = None
+    location_id: Optional[int] = None
+    substance_id: Optional[int] = None
+    element: Optional[ElementSymbol] = None
+    limit: int = Field(default=100, ge=1, le=1000)
+    offset: int = Field(default=0, ge=0)
+
+
+class PreviewQuery(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+    scales: list[float]
+
+    @field_validator("scales", mode="before")
+    @classmethod
+    def _split(cls, value):
+        parts = [p for p in str(value or "").split(",") if p.strip()]
+        if not parts or len(parts) > 20:
+            raise ValueError("give 1 to 20 comma-separated scale factors, e.g. scales=2,5,10")
+        return parts
+
+    @field_validator("scales")
+    @classmethod
+    def _positive(cls, value: list[float]) -> list[float]:
+        if any(v <= 0 or v > 1000 for v in value):
+            raise ValueError("scale factors must be above 0 and at most 1000")
+        return value

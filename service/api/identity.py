@@ -2,47 +2,17 @@
 
 from __future__ import annotations
 
-from flask import current_app, jsonify, request
+from flask import jsonify, request
 
 from service import schemas
 from service.api import bp
 from service.api.errors import ApiError
 from service.api.inventory import json_body
-from service.auth import current_user
+from service.auth import current_user, login_limits
+from service.present.identity import dump_event, dump_token, dump_user
 from service.store import audit, identity, inventory
 from service.store.db import get_session
 from service.store.models import ApiToken, User
-
-
-def _user(record: User) -> dict:
-    return {
-        "id": record.id,
-        "email": record.email,
-        "display_name": record.display_name,
-        "role": record.role,
-        "lab_ids": sorted(record.lab_ids),
-        "created_at": record.created_at.isoformat(),
-        "retired_at": record.retired_at.isoformat() if record.retired_at else None,
-    }
-
-
-def _token(record: ApiToken) -> dict:
-    return {
-        "id": record.id,
-        "name": record.name,
-        "prefix": record.prefix,
-        "created_at": record.created_at.isoformat(),
-        "revoked_at": record.revoked_at.isoformat() if record.revoked_at else None,
-    }
-
-
-def login_limits() -> identity.LoginLimits:
-    config = current_app.config
-    return identity.LoginLimits(
-        max_failures_per_account=config["LOGIN_MAX_FAILURES_PER_ACCOUNT"],
-        max_failures_per_address=config["LOGIN_MAX_FAILURES_PER_ADDRESS"],
-        window_s=config["LOGIN_WINDOW_S"],
-    )
 
 
 @bp.post("/auth/tokens", endpoint="issue_token")
@@ -61,46 +31,46 @@ def issue_token():
         raise ApiError(401, "bad_credentials", str(exc)) from None
     session.info["actor"] = {"user_id": user.id, "label": user.email}
     issued = identity.issue_token(session, user, body.name)
-    return jsonify({**_token(issued.token), "token": issued.secret,
+    return jsonify({**dump_token(issued.token), "token": issued.secret,
                     "note": "this token is shown once; store it like a password"}), 201
 
 
 @bp.get("/me", endpoint="me")
 def me():
-    return jsonify(_user(current_user()))
+    return jsonify(dump_user(current_user()))
 
 
 @bp.get("/tokens", endpoint="list_tokens")
 def list_tokens():
     tokens = get_session().query(ApiToken).filter(ApiToken.user_id == current_user().id).order_by(ApiToken.id)
-    return jsonify({"items": [_token(t) for t in tokens]})
+    return jsonify({"items": [dump_token(t) for t in tokens]})
 
 
 @bp.post("/tokens/<int:ident>/revoke", endpoint="revoke_token")
 def revoke_token(ident: int):
-    return jsonify(_token(identity.revoke_token(get_session(), current_user(), ident)))
+    return jsonify(dump_token(identity.revoke_token(get_session(), current_user(), ident)))
 
 
 @bp.get("/users", endpoint="list_users")
 def list_users():
-    return jsonify({"items": [_user(u) for u in inventory.list_records(get_session(), User, include_retired=True)]})
+    return jsonify({"items": [dump_user(u) for u in inventory.list_records(get_session(), User, include_retired=True)]})
 
 
 @bp.post("/users", endpoint="create_users")
 def create_user():
-    return jsonify(_user(identity.create_user(get_session(), json_body(schemas.UserIn)))), 201
+    return jsonify(dump_user(identity.create_user(get_session(), json_body(schemas.UserIn)))), 201
 
 
 @bp.get("/users/<int:ident>", endpoint="read_users")
 def read_user(ident: int):
-    return jsonify(_user(inventory.get(get_session(), User, ident)))
+    return jsonify(dump_user(inventory.get(get_session(), User, ident)))
 
 
 @bp.patch("/users/<int:ident>", endpoint="update_users")
 def update_user(ident: int):
     body = json_body(schemas.UserPatch)
     session = get_session()
-    return jsonify(_user(identity.update_user(session, inventory.get(session, User, ident), body)))
+    return jsonify(dump_user(identity.update_user(session, inventory.get(session, User, ident), body)))
 
 
 @bp.post("/users/<int:ident>/retire", endpoint="retire_users")
@@ -109,27 +79,11 @@ def retire_user(ident: int):
     user = inventory.get(session, User, ident)
     if user.id == current_user().id:
         raise ApiError(409, "conflict", "an administrator cannot retire their own account")
-    return jsonify(_user(inventory.retire(session, user)))
+    return jsonify(dump_user(inventory.retire(session, user)))
 
 
 @bp.get("/audit_events", endpoint="list_audit_events")
 def list_audit_events():
     query = schemas.AuditQuery.model_validate(request.args.to_dict())
     events = audit.list_events(get_session(), **query.model_dump())
-    return jsonify({"items": [_event(e) for e in events], "limit": query.limit, "offset": query.offset})
-
-
-def _event(record) -> dict:
-    return {
-        "id": record.id,
-        "at": record.at.isoformat(),
-        "actor_user_id": record.actor_user_id,
-        "actor_label": record.actor_label,
-        "entity": record.entity,
-        "entity_id": record.entity_id,
-        "action": record.action,
-        "before": record.before,
-        "after": record.after,
-        "prev_hash": record.prev_hash,
-        "hash": record.hash,
-    }
+    return jsonify({"items": [dump_event(e) for e in events], "limit": query.limit, "offset": query.offset})

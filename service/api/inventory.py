@@ -6,31 +6,20 @@ Each view parses (pydantic), calls one service function and serialises.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Callable, Optional
+from typing import Callable
 
 from flask import jsonify, request
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel
 
 from service import schemas
 from service.api import bp
 from service.api.errors import ApiError
-from service.api.serialize import dump
 from service.auth import check_lab, lab_scope
-from service.schemas import ElementSymbol
+from service.present.serialize import dump
+from service.schemas import ListQuery
 from service.store import inventory
 from service.store.db import get_session
 from service.store.models import Lab, Location, Mixture, Stock, Substance
-
-
-class ListQuery(BaseModel):
-    model_config = ConfigDict(extra="forbid")
-    include_retired: bool = False
-    lab_id: Optional[int] = None
-    location_id: Optional[int] = None
-    substance_id: Optional[int] = None
-    element: Optional[ElementSymbol] = None
-    limit: int = Field(default=100, ge=1, le=1000)
-    offset: int = Field(default=0, ge=0)
 
 
 def json_body(model: type[BaseModel]) -> BaseModel:

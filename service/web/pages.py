@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from flask import render_template, request
 
-from service.api.inventory import ListQuery
 from service.auth import lab_scope
+from service.schemas import ListQuery
 from service.store import inventory
 from service.store.db import get_session
 from service.store.models import Lab, Location, Mixture, Stock
