@@ -24,16 +24,17 @@ def create_app(test_config: Optional[Mapping[str, Any]] = None) -> Flask:
     app.config["VERSION"] = _version()
     app.json.sort_keys = False
 
-    from service import auth
+    from service import appdata, auth, documents
     from service.api import bp as api_bp
-    from service.api import errors, procedures
+    from service.api import errors
     from service.store import db
     from service.web import bp as web_bp
 
     db.init_app(app)
+    appdata.init_app(app)  # rule packs, catalogue, H-statements: once per process; a bad file stops the start
+    documents.init_app(app)  # controls and transport suggestions, likewise
     errors.init_app(app)
     auth.init_app(app)
-    procedures.init_app(app)
     app.register_blueprint(api_bp)
     app.register_blueprint(web_bp)
     return app

@@ -11,7 +11,7 @@ import hmac
 import secrets
 from typing import Optional
 
-from flask import Flask, g, redirect, request, session, url_for
+from flask import Flask, current_app, g, redirect, request, session, url_for
 
 from service.errors import CsrfFailed, Forbidden, Unauthenticated
 from service.permissions import LAB_SCOPED_ROLES, MATRIX, PUBLIC
@@ -19,7 +19,7 @@ from service.store import identity
 from service.store.db import get_session
 from service.store.models import User
 
-__all__ = ["init_app", "current_user", "csrf_token", "lab_scope", "check_lab", "sign_in", "sign_out"]
+__all__ = ["init_app", "current_user", "csrf_token", "lab_scope", "check_lab", "sign_in", "sign_out", "login_limits"]
 
 
 def current_user() -> Optional[User]:
@@ -100,3 +100,13 @@ def init_app(app: Flask) -> None:
     app.before_request(_authorize)
     app.jinja_env.globals["csrf_token"] = csrf_token
     app.jinja_env.globals["current_user"] = current_user
+
+
+def login_limits() -> identity.LoginLimits:
+    """The sign-in limits the settings give (API token requests and the sign-in page share them)."""
+    config = current_app.config
+    return identity.LoginLimits(
+        max_failures_per_account=config["LOGIN_MAX_FAILURES_PER_ACCOUNT"],
+        max_failures_per_address=config["LOGIN_MAX_FAILURES_PER_ADDRESS"],
+        window_s=config["LOGIN_WINDOW_S"],
+    )

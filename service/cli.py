@@ -25,9 +25,9 @@ def _app():
 
 
 def _catalogue(app):
-    from service.chem.substances import load_catalogue
+    from service.appdata import catalogue
 
-    return load_catalogue(app.config["RULES_DIR"])[0]
+    return catalogue(app)
 
 
 def _sessions(app):
@@ -219,7 +219,7 @@ def preview(procedure_id: int, scales: str) -> None:
     """Evaluate a procedure at other scales and list the thresholds each would cross."""
     from pydantic import ValidationError
 
-    from service.api.procedures import PreviewQuery
+    from service.schemas import PreviewQuery
     from service.store import procedures
     from service.store.db import session_scope
     from service.store.models import Procedure
@@ -355,12 +355,13 @@ def _print_document(kind: str, ident: int, output: Path | None) -> None:
     app = _app()
     model, build = (Procedure, documents.assessment_for) if kind == "assessment" else (WasteContainer,
                                                                                         documents.manifest_for)
-    with app.test_request_context():
+    with app.test_request_context():  # the session ends with the context, before rendering
         try:
-            doc = build(inventory.get(get_session(), model, ident))
+            draft = build(inventory.get(get_session(), model, ident))
         except LookupError as exc:
             raise click.ClickException(str(exc)) from None
-        pdf = doc.pdf()
+    doc = draft.render()
+    pdf = doc.pdf()
     target = output or Path(f"{doc.filename}.pdf")
     target.write_bytes(pdf)
     click.echo(str(target))

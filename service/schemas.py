@@ -6,7 +6,7 @@ import datetime as dt
 from decimal import Decimal
 from typing import Annotated, Literal, Optional
 
-from pydantic import AfterValidator, BaseModel, ConfigDict, Field, SecretStr, model_validator
+from pydantic import AfterValidator, BaseModel, ConfigDict, Field, SecretStr, field_validator, model_validator
 
 from service import vocab
 from service.chem.substances import Substance as CatalogueSubstance
@@ -49,6 +49,8 @@ __all__ = [
     "OutputIn",
     "LossIn",
     "EstimateIn",
+    "ListQuery",
+    "PreviewQuery",
 ]
 
 LocationKind = Literal[vocab.LOCATION_KINDS]
@@ -357,3 +359,26 @@ class EstimateIn(_Body):
 
 
 OutputIn.model_rebuild()  # resolves the forward reference to EstimateIn
+
+
+# --- query parameters shared by the API, the pages and the command line ----------------------
+
+
+class PreviewQuery(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+    scales: list[float] = Field(default=[2.0, 5.0, 10.0], description="1 to 20 comma-separated scale factors")
+
+    @field_validator("scales", mode="before")
+    @classmethod
+    def _split(cls, value):
+        parts = [p for p in str(value or "").split(",") if p.strip()]
+        if not parts or len(parts) > 20:
+            raise ValueError("give 1 to 20 comma-separated scale factors, e.g. scales=2,5,10")
+        return parts
+
+    @field_validator("scales")
+    @classmethod
+    def _positive(cls, value: list[float]) -> list[float]:
+        if any(v <= 0 or v > 1000 for v in value):
+            raise ValueError("scale factors must be above 0 and at most 1000")
+        return value

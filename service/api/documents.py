@@ -1,7 +1,9 @@
 """Printed documents: risk-assessment sheets and waste manifests as PDF or HTML preview.
 
-Lab-scoped like the JSON reads. Every answer carries ``X-Document-SHA256``, the hash of
-the document's data that is also printed in its footer.
+Lab-scoped like the JSON reads. The data is gathered in the request's session, which then
+ends; the HTML and the PDF are made after it (no transaction open while WeasyPrint works).
+Every answer carries ``X-Document-SHA256``, the hash of the document's data that is also
+printed in its footer.
 """
 
 from __future__ import annotations
@@ -13,7 +15,7 @@ from service.api import bp
 from service.api.openapi import operation
 from service.auth import check_lab
 from service.store import inventory
-from service.store.db import get_session
+from service.store.db import end_session, get_session
 from service.store.models import Procedure, WasteContainer
 
 
@@ -23,7 +25,9 @@ def _visible(model, ident: int):
     return record
 
 
-def _answer(doc: documents.Document, fmt: str) -> Response:
+def _answer(draft: documents.Draft, fmt: str) -> Response:
+    end_session()
+    doc = draft.render()
     headers = {"X-Document-SHA256": doc.sha256, "X-Document-Id": doc.document_id}
     if fmt == "pdf":
         headers["Content-Disposition"] = f'inline; filename="{doc.filename}.pdf"'

@@ -86,7 +86,7 @@ def init_app(app: Flask) -> None:
 
     @app.errorhandler(Blocked)
     def _blocked(exc: Blocked):
-        from service.api.serialize import finding
+        from service.present.serialize import finding
 
         findings = [finding(f) for f in exc.findings]
         return error_response(409, "blocked", str(exc), {"findings": findings})

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from flask import current_app, jsonify, request
+from flask import jsonify, request
 
 from service import schemas
 from service.api import bp
@@ -10,41 +10,11 @@ from service.api.errors import ApiError
 from service.api.inventory import json_body, page_answer
 from service.api.openapi import operation
 from service.api.responses import AuditEvent, IssuedToken, Token, User as UserAnswer
-from service.auth import current_user
+from service.auth import current_user, login_limits
+from service.present.identity import dump_event, dump_token, dump_user
 from service.store import audit, identity, inventory
 from service.store.db import get_session
-from service.store.models import ApiToken, User
-
-
-def _user(record: User) -> dict:
-    return {
-        "id": record.id,
-        "email": record.email,
-        "display_name": record.display_name,
-        "role": record.role,
-        "lab_ids": sorted(record.lab_ids),
-        "created_at": record.created_at.isoformat(),
-        "retired_at": record.retired_at.isoformat() if record.retired_at else None,
-    }
-
-
-def _token(record: ApiToken) -> dict:
-    return {
-        "id": record.id,
-        "name": record.name,
-        "prefix": record.prefix,
-        "created_at": record.created_at.isoformat(),
-        "revoked_at": record.revoked_at.isoformat() if record.revoked_at else None,
-    }
-
-
-def login_limits() -> identity.LoginLimits:
-    config = current_app.config
-    return identity.LoginLimits(
-        max_failures_per_account=config["LOGIN_MAX_FAILURES_PER_ACCOUNT"],
-        max_failures_per_address=config["LOGIN_MAX_FAILURES_PER_ADDRESS"],
-        window_s=config["LOGIN_WINDOW_S"],
-    )
+from service.store.models import User
 
 
 @bp.post("/auth/tokens", endpoint="issue_token")
@@ -64,7 +34,7 @@ def issue_token():
         raise ApiError(401, "bad_credentials", str(exc)) from None
     session.info["actor"] = {"user_id": user.id, "label": user.email}
     issued = identity.issue_token(session, user, body.name)
-    return jsonify({**_token(issued.token), "token": issued.secret,
+    return jsonify({**dump_token(issued.token), "token": issued.secret,
                     "note": "this token is shown once; store it like a password"}), 201
 
 
@@ -72,7 +42,7 @@ def issue_token():
 @operation(response=UserAnswer)
 def me():
     """The signed-in account."""
-    return jsonify(_user(current_user()))
+    return jsonify(dump_user(current_user()))
 
 
 @bp.get("/tokens", endpoint="list_tokens")
@@ -81,14 +51,14 @@ def list_tokens():
     """One page of the signed-in account's personal tokens."""
     query = schemas.PageQuery.model_validate(request.args.to_dict())
     page = identity.list_tokens(get_session(), current_user(), limit=query.limit, offset=query.offset)
-    return jsonify(page_answer(page, _token))
+    return jsonify(page_answer(page, dump_token))
 
 
 @bp.post("/tokens/<int:ident>/revoke", endpoint="revoke_token")
 @operation(response=Token, errors=(409,))
 def revoke_token(ident: int):
     """Revoke one of the signed-in account's tokens."""
-    return jsonify(_token(identity.revoke_token(get_session(), current_user(), ident)))
+    return jsonify(dump_token(identity.revoke_token(get_session(), current_user(), ident)))
 
 
 @bp.get("/users", endpoint="list_users")
@@ -97,21 +67,21 @@ def list_users():
     """One page of the accounts, retired ones included."""
     query = schemas.PageQuery.model_validate(request.args.to_dict())
     page = inventory.list_records(get_session(), User, include_retired=True, limit=query.limit, offset=query.offset)
-    return jsonify(page_answer(page, _user))
+    return jsonify(page_answer(page, dump_user))
 
 
 @bp.post("/users", endpoint="create_users")
 @operation(body=schemas.UserIn, response=UserAnswer, status=201, errors=(409,))
 def create_user():
     """Create an account."""
-    return jsonify(_user(identity.create_user(get_session(), json_body(schemas.UserIn)))), 201
+    return jsonify(dump_user(identity.create_user(get_session(), json_body(schemas.UserIn)))), 201
 
 
 @bp.get("/users/<int:ident>", endpoint="read_users")
 @operation(response=UserAnswer)
 def read_user(ident: int):
     """Read an account."""
-    return jsonify(_user(inventory.get(get_session(), User, ident)))
+    return jsonify(dump_user(inventory.get(get_session(), User, ident)))
 
 
 @bp.patch("/users/<int:ident>", endpoint="update_users")
@@ -120,7 +90,7 @@ def update_user(ident: int):
     """Change an account's name, role, password or labs."""
     body = json_body(schemas.UserPatch)
     session = get_session()
-    return jsonify(_user(identity.update_user(session, inventory.get(session, User, ident), body)))
+    return jsonify(dump_user(identity.update_user(session, inventory.get(session, User, ident), body)))
 
 
 @bp.post("/users/<int:ident>/retire", endpoint="retire_users")
@@ -131,7 +101,7 @@ def retire_user(ident: int):
     user = inventory.get(session, User, ident)
     if user.id == current_user().id:
         raise ApiError(409, "conflict", "an administrator cannot retire their own account")
-    return jsonify(_user(inventory.retire(session, user)))
+    return jsonify(dump_user(inventory.retire(session, user)))
 
 
 @bp.get("/audit_events", endpoint="list_audit_events")
@@ -139,20 +109,4 @@ def retire_user(ident: int):
 def list_audit_events():
     """One page of the audit trail in chain order."""
     query = schemas.AuditQuery.model_validate(request.args.to_dict())
-    return jsonify(page_answer(audit.list_events(get_session(), **query.model_dump()), _event))
-
-
-def _event(record) -> dict:
-    return {
-        "id": record.id,
-        "at": record.at.isoformat(),
-        "actor_user_id": record.actor_user_id,
-        "actor_label": record.actor_label,
-        "entity": record.entity,
-        "entity_id": record.entity_id,
-        "action": record.action,
-        "before": record.before,
-        "after": record.after,
-        "prev_hash": record.prev_hash,
-        "hash": record.hash,
-    }
+    return jsonify(page_answer(audit.list_events(get_session(), **query.model_dump()), dump_event))

@@ -15,8 +15,8 @@ from service import schemas
 from service.api import bp, responses
 from service.api.errors import ApiError
 from service.api.openapi import operation
-from service.api.serialize import dump
 from service.auth import check_lab, lab_scope
+from service.present.serialize import dump
 from service.schemas import ListQuery
 from service.store import inventory
 from service.store.db import get_session

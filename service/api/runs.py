@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Optional
 
-from flask import current_app, jsonify, request
+from flask import jsonify, request
 
 from service import schemas
 from service.api import bp
@@ -12,45 +12,12 @@ from service.api.errors import ApiError
 from service.api.inventory import json_body, page_answer
 from service.api.openapi import operation
 from service.api.responses import Balance, Estimate, Run as RunAnswer
-from service.api.serialize import element_rows_from
+from service.appdata import active_rules
 from service.auth import check_lab, current_user, lab_scope
+from service.present.runs import balance_elements, balance_tolerance, dump_balance, dump_run
 from service.store import inventory, runs
 from service.store.db import get_session
 from service.store.models import Procedure, Run
-
-CAUTION = ("The balance is a record for the lab's own use; estimated outputs carry the uncertainty of their "
-           "method. Waste classification rests with the site safety officer and local regulations.")
-
-
-def _tolerance():
-    return current_app.config["BALANCE_TOLERANCE"]
-
-
-def _elements():
-    return current_app.config["BALANCE_ELEMENTS"]
-
-
-def dump_balance(balance) -> dict:
-    return {"closes": balance.closes, "tolerance_percent": float(_tolerance()) * 100, "elements": balance.to_rows(),
-            "caution": CAUTION}
-
-
-def dump_run(run: Run, *, with_balance: bool = True) -> dict:
-    out = {
-        "id": run.id, "procedure_id": run.procedure_id, "lab_id": run.lab_id, "researcher_id": run.researcher_id,
-        "scale": run.scale, "state": run.state, "note": run.note, "started_at": run.started_at.isoformat(),
-        "closed_at": run.closed_at.isoformat() if run.closed_at else None,
-        "draws": [{"stock_id": d.stock_id, "mixture_id": d.mixture_id, "amount": d.amount_text,
-                   "elements": element_rows_from(d.element_mass_ug)} for d in run.draws],
-        "outputs": [{"id": o.id, "label": o.label, "method": o.method, "description": o.description,
-                     "relative_uncertainty": o.relative_uncertainty, "basis": o.basis,
-                     "elements": element_rows_from(o.element_mass_ug)} for o in run.outputs],
-        "losses": [{"id": loss.id, "description": loss.description, "elements": element_rows_from(loss.element_mass_ug)}
-                   for loss in run.losses],
-    }
-    if with_balance:
-        out["balance"] = dump_balance(runs.balance_of(get_session(), run, _tolerance(), _elements()))
-    return out
 
 
 def _visible(ident: int) -> Run:
@@ -81,7 +48,7 @@ def start_run():
     session = get_session()
     proc = inventory.get(session, Procedure, body.procedure_id, field="procedure_id")
     check_lab(proc.lab_id)
-    run = runs.start_run(session, body, current_user(), current_app.extensions["dotledger.rules"])
+    run = runs.start_run(session, body, current_user(), active_rules())
     return jsonify(dump_run(run)), 201
 
 
@@ -116,7 +83,8 @@ def add_loss(ident: int):
 @operation(response=Balance, errors=(403,))
 def read_balance(ident: int):
     """The run's mass balance per followed element."""
-    return jsonify(dump_balance(runs.balance_of(get_session(), _visible(ident), _tolerance(), _elements())))
+    balance = runs.balance_of(get_session(), _visible(ident), balance_tolerance(), balance_elements())
+    return jsonify(dump_balance(balance))
 
 
 @bp.post("/runs/<int:ident>/close", endpoint="close_run")
@@ -125,7 +93,7 @@ def close(ident: int):
     """Close a run whose balance closes within the site tolerance."""
     run = _visible(ident)
     try:
-        runs.close_run(get_session(), run, _tolerance(), _elements())
+        runs.close_run(get_session(), run, balance_tolerance(), balance_elements())
     except runs.UnbalancedRun as exc:
         raise ApiError(409, "unbalanced", str(exc), dump_balance(exc.balance)) from None
     return jsonify(dump_run(run))

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Optional
 
-from flask import current_app, jsonify, request
+from flask import jsonify, request
 from pydantic import Field
 
 from service import schemas
@@ -12,59 +12,11 @@ from service.api import bp
 from service.api.inventory import json_body, page_answer
 from service.api.openapi import operation
 from service.api.responses import WasteContainer as ContainerAnswer, WasteEntry as EntryAnswer
-from service.api.serialize import element_rows_from, finding
 from service.auth import check_lab, current_user, lab_scope
-from service.rules import evaluate, highest_level
+from service.present.waste import dump_container, dump_entry
 from service.store import inventory, waste
 from service.store.db import get_session
-from service.store.models import Substance, WasteContainer, WasteEntry
-
-CAUTION = ("Waste codes and transport descriptions are suggestions for review. The waste determination "
-           "rests with the site safety officer and local regulations; shipping papers with the licensed shipper.")
-
-
-def dump_container(container: WasteContainer) -> dict:
-    session = get_session()
-    contents = waste.contents_of(session, container)
-    subject = waste.subject_of(session, container, contents)
-    rules = current_app.extensions["dotledger.rules"]
-    findings = evaluate(rules, "waste_container", subject)
-    liquid = container.form == "liquid"
-    volume_l = contents.volume_ul / 1e6
-    fill = (contents.volume_ul if liquid else contents.mass_ug) / container.capacity_micro
-    return {
-        "id": container.id, "label": container.label, "lab_id": container.lab_id, "location_id": container.location_id,
-        "stream": container.stream, "form": container.form, "capacity": container.capacity_text,
-        "acute_hazardous": container.acute_hazardous, "state": container.state,
-        "first_entry_at": _iso(container.first_entry_at), "full_at": _iso(container.full_at),
-        "pickup_requested_at": _iso(container.pickup_requested_at), "collected_at": _iso(container.collected_at),
-        "entries": contents.entries, "volume_l": volume_l, "mass_kg": contents.mass_ug / 1e9,
-        "fill_percent": round(100 * fill, 2),
-        "filterable_solids_percent": round(contents.filterable_solids_percent, 3),
-        "elements": [{**row, "concentration_mg_per_l": (row["mass_ug"] / 1000 / volume_l) if liquid and volume_l else None}
-                     for row in element_rows_from(contents.element_mass_ug)],
-        "solvent_composition": [{"substance": c.name, "key": c.key, "volume_percent": round(100 * c.volume_fraction, 3)}
-                                for c in subject.components],
-        "findings": [finding(f) for f in findings], "highest_level": highest_level(findings),
-        "rule_packs": [{"pack": n, "version": v} for n, v in rules.packs], "caution": CAUTION,
-    }
-
-
-def _iso(value):
-    return value.isoformat() if value else None
-
-
-def dump_entry(entry: WasteEntry) -> dict:
-    session = get_session()
-    return {
-        "id": entry.id, "container_id": entry.container_id, "run_id": entry.run_id, "actor_id": entry.actor_id,
-        "at": entry.at.isoformat(), "description": entry.description, "volume_ml": entry.volume_ul / 1000,
-        "mass_g": entry.mass_ug / 1e6, "filterable_solids_percent": entry.filterable_solids_percent,
-        "reverses_entry_id": entry.reverses_entry_id,
-        "components": [{"substance_id": c.substance_id, "substance": session.get(Substance, c.substance_id).name,
-                        "volume_ml": c.volume_ul / 1000} for c in entry.components],
-        "elements": element_rows_from({e.element: e.mass_ug for e in sorted(entry.elements, key=lambda e: e.element)}),
-    }
+from service.store.models import WasteContainer
 
 
 def _visible(ident: int) -> WasteContainer:

@@ -6,10 +6,12 @@ its canonical JSON) before rendering; the hash is printed in the footer and sent
 ``X-Document-SHA256`` response header.
 
 ``controls``, ``assessment``, ``manifest`` and ``render`` are pure (no Flask, no
-database); ``sources`` gathers the records inside an app context.
+database); ``sources`` gathers the records inside an app context and returns a ``Draft``
+(the data), which the caller renders once the database session has ended.
 """
 
-from service.documents.render import Document, canonical_json, data_sha256, render_pdf
-from service.documents.sources import assessment_for, manifest_for
+from service.documents.render import Document, Draft, canonical_json, data_sha256, render_pdf
+from service.documents.sources import assessment_for, init_app, manifest_for
 
-__all__ = ["Document", "assessment_for", "manifest_for", "canonical_json", "data_sha256", "render_pdf"]
+__all__ = ["Document", "Draft", "assessment_for", "manifest_for", "init_app", "canonical_json", "data_sha256",
+           "render_pdf"]

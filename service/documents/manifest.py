@@ -1,8 +1,9 @@
 """The waste manifest's data: a container's JSON view plus generator, codes and transport.
 
-Pure: takes the container as ``dump_container`` gives it, its entries as ``dump_entry``
-gives them, and the catalogue records of its constituents; returns the JSON-ready dict
-the template renders and the hash covers. Codes and transport descriptions are
+Pure: takes the container as ``dump_container`` gives it (volumes, fill and concentrations
+as the container measures compute them, with the concentration basis), its entries as
+``dump_entry`` gives them, and the catalogue records of its constituents; returns the
+JSON-ready dict the template renders and the hash covers. Codes and transport descriptions are
 suggestions for review only.
 """
 
@@ -53,11 +54,9 @@ def manifest_data(view: dict, *, entries: list[dict], records: dict[str, dict], 
 
     ``records`` maps a constituent's catalogue key to its substance record (for hazards).
     """
-    liquid = view["form"] == "liquid"
     constituents = [{**c, "record": records.get(c["key"])} for c in view["solvent_composition"]]
-    elements = [{"element": e["element"], "mass_ug": e["mass_ug"], "concentration_mg_per_l": e["concentration_mg_per_l"],
-                 "concentration_mg_per_kg": (e["mass_ug"] / 1000 / view["mass_kg"]) if not liquid and view["mass_kg"]
-                 else None} for e in view["elements"]]
+    elements = [{k: e[k] for k in ("element", "mass_ug", "concentration_mg_per_l", "concentration_mg_per_kg")}
+                for e in view["elements"]]
     present = {e["element"] for e in elements if e["mass_ug"] > 0}
     title, candidates = transport_candidates(transport, view["stream"], present, {c["key"] for c in constituents})
     technical = [c["substance"] for c in sorted(constituents, key=lambda c: -c["volume_percent"])[:2]]
@@ -68,7 +67,7 @@ def manifest_data(view: dict, *, entries: list[dict], records: dict[str, dict], 
         "container": {k: view[k] for k in ("id", "label", "stream", "form", "capacity", "acute_hazardous", "state",
                                            "first_entry_at", "full_at", "pickup_requested_at", "collected_at",
                                            "volume_l", "mass_kg", "fill_percent", "filterable_solids_percent",
-                                           "highest_level")},
+                                           "concentration_basis", "concentration_note", "highest_level")},
         "stream_title": title,
         "constituents": [{"substance": c["substance"], "key": c["key"], "volume_percent": c["volume_percent"]}
                          for c in constituents],

@@ -16,7 +16,7 @@ from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoes
 
 from service.resources import TEMPLATES_DIR
 
-__all__ = ["PAGE_SIZES", "Document", "canonical_json", "data_sha256", "render_html", "render_pdf", "page_size_css"]
+__all__ = ["PAGE_SIZES", "Draft", "Document", "canonical_json", "data_sha256", "render_html", "render_pdf", "page_size_css"]
 
 TEMPLATES = TEMPLATES_DIR / "documents"
 
@@ -93,6 +93,19 @@ def render_html(template: str, data: dict, *, document_id: str, filename: str) -
     html = _ENV.get_template(template).render(doc=data, sha256=digest, page_size=page_size_css(data["page_size"]),
                                               stylesheet=(TEMPLATES / "print.css").read_text(encoding="utf-8"))
     return Document(document_id=document_id, sha256=digest, html=html, filename=filename)
+
+
+@dataclass(frozen=True)
+class Draft:
+    """A document's data, gathered: :meth:`render` hashes it and makes the HTML (no database needed)."""
+
+    template: str  # in templates/documents/
+    data: dict
+    document_id: str
+    filename: str  # without extension
+
+    def render(self) -> Document:
+        return render_html(self.template, self.data, document_id=self.document_id, filename=self.filename)
 
 
 def render_pdf(html: str) -> bytes:

@@ -1,48 +1,55 @@
-"""Gathering a document's records inside an app context, then building and rendering it.
+"""Gathering a document's data inside the request's session; rendering comes after it has ended.
 
-The one module of the package that reads the database and the app configuration; it
-reuses the JSON views (``dump_procedure``, ``dump_container``, ``dump_entry``) so a
-document prints the same numbers the API returns.
+The one module of the package that reads the database and the app configuration. It takes
+the procedure and the container as the presentation layer shows them (``dump_procedure``,
+``dump_container``, ``dump_entry``), so a document prints the numbers the API returns and
+the pages show. ``assessment_for`` and ``manifest_for`` return a
+:class:`~service.documents.render.Draft` (the data dict); the caller ends the session, then
+renders (``Draft.render()``, ``Document.pdf()``), so no transaction stays open while
+WeasyPrint works.
 """
 
 from __future__ import annotations
 
 import datetime as dt
 import re
-from functools import lru_cache
 
-from flask import current_app
+from flask import Flask, current_app
 
+from service.appdata import statements
 from service.documents.assessment import assessment_data
-from service.documents.controls import load_controls, load_transport
+from service.documents.controls import ControlsFile, TransportFile, load_controls, load_transport
 from service.documents.manifest import manifest_data
-from service.documents.render import Document, render_html
+from service.documents.render import Draft
+from service.present.procedures import dump_procedure
+from service.present.serialize import lab_heading, location_heading, substance_facts
+from service.present.waste import dump_container, dump_entry
+from service.store import waste
 from service.store.db import get_session
+from service.store.models import Lab, Location, Procedure, Substance, User, WasteContainer
 from service.store.site import site_name
-from service.store.models import Lab, Location, Procedure, Substance, User, WasteContainer, WasteEntry
 
-__all__ = ["assessment_for", "manifest_for"]
+__all__ = ["init_app", "assessment_for", "manifest_for"]
+
+_KEY = "dotledger.documents"
 
 
-@lru_cache(maxsize=8)
-def _statements(rules_dir: str):
-    from service.chem.substances import load_catalogue
+def init_app(app: Flask) -> None:
+    """Load ``rules/controls.yaml`` and ``rules/transport-suggestions.yaml`` (once per process and folder)."""
+    rules_dir = str(app.config["RULES_DIR"])
+    app.extensions[_KEY] = (load_controls(rules_dir), load_transport(rules_dir))
 
-    return load_catalogue(rules_dir)[1]
+
+def _controls() -> ControlsFile:
+    return current_app.extensions[_KEY][0]
+
+
+def _transport() -> TransportFile:
+    return current_app.extensions[_KEY][1]
 
 
 def _now() -> str:
     return dt.datetime.now(dt.timezone.utc).strftime("%Y-%m-%d %H:%M:%S UTC")
-
-
-def _substance(record: Substance) -> dict:
-    return {"key": record.key, "name": record.name, "formula": record.formula, "cas": record.cas,
-            "state": record.state, "flash_point_c": record.flash_point_c, "hazard": record.hazard or {},
-            "flags": list(record.flags or ())}
-
-
-def _lab(lab: Lab) -> dict:
-    return {"id": lab.id, "code": lab.code, "name": lab.name}
 
 
 def _safe_name(text: str) -> str:
@@ -54,40 +61,33 @@ def _common() -> dict:
     return {"site": site_name(get_session()), "page_size": config["PAGE_SIZE"], "generated_at": _now()}
 
 
-def assessment_for(proc: Procedure) -> Document:
-    """The risk-assessment sheet of ``proc`` (the caller has checked the lab scope)."""
-    from service.api.procedures import dump_procedure
-
+def assessment_for(proc: Procedure) -> Draft:
+    """The risk-assessment sheet's data for ``proc`` (the caller has checked the lab scope)."""
     session = get_session()
     config = current_app.config
     view = dump_procedure(proc)
-    substances = [[_substance(d.stock.substance)] if d.stock is not None
-                  else [_substance(c.substance) for c in d.mixture.components] for d in proc.draws]
+    substances = [[substance_facts(d.stock.substance)] if d.stock is not None
+                  else [substance_facts(c.substance) for c in d.mixture.components] for d in proc.draws]
     researcher = session.get(User, proc.researcher_id)
     document_id = f"RA-{proc.id:05d}-R{proc.revision}"
-    data = assessment_data(view, substances=substances, lab=_lab(session.get(Lab, proc.lab_id)),
+    data = assessment_data(view, substances=substances, lab=lab_heading(session.get(Lab, proc.lab_id)),
                            researcher=researcher.display_name if researcher else "—", document_id=document_id,
-                           controls=load_controls(config["RULES_DIR"]), text_of=_statements(config["RULES_DIR"]).text_of,
+                           controls=_controls(), text_of=statements().text_of,
                            followed_elements=tuple(config["BALANCE_ELEMENTS"]), **_common())
-    return render_html("assessment.html", data, document_id=document_id,
-                       filename=f"assessment-{proc.id}-r{proc.revision}")
+    return Draft("assessment.html", data, document_id, f"assessment-{proc.id}-r{proc.revision}")
 
 
-def manifest_for(container: WasteContainer) -> Document:
-    """The waste manifest of ``container`` (the caller has checked the lab scope)."""
-    from service.api.waste import dump_container, dump_entry
-
+def manifest_for(container: WasteContainer) -> Draft:
+    """The waste manifest's data for ``container`` (the caller has checked the lab scope)."""
     session = get_session()
-    config = current_app.config
     view = dump_container(container)
-    entries = session.query(WasteEntry).filter(WasteEntry.container_id == container.id).order_by(WasteEntry.id)
+    entries = waste.entries_of(session, container)
     keys = [c["key"] for c in view["solvent_composition"] if c["key"]]
-    records = {s.key: _substance(s) for s in session.query(Substance).filter(Substance.key.in_(keys))} if keys else {}
-    place = session.get(Location, container.location_id)
-    location = {"building": place.building, "room": place.room, "storage": place.storage} if place else {}
+    records = {s.key: substance_facts(s) for s in session.query(Substance).filter(Substance.key.in_(keys))} if keys else {}
+    location = location_heading(session.get(Location, container.location_id))
     document_id = f"WM-{container.id:05d}"
     data = manifest_data(view, entries=[dump_entry(e) for e in entries], records=records,
-                         lab=_lab(session.get(Lab, container.lab_id)), location=location, document_id=document_id,
-                         transport=load_transport(config["RULES_DIR"]), text_of=_statements(config["RULES_DIR"]).text_of,
+                         lab=lab_heading(session.get(Lab, container.lab_id)), location=location, document_id=document_id,
+                         transport=_transport(), text_of=statements().text_of,
                          **_common())
-    return render_html("manifest.html", data, document_id=document_id, filename=f"manifest-{_safe_name(container.label)}")
+    return Draft("manifest.html", data, document_id, f"manifest-{_safe_name(container.label)}")

@@ -10,6 +10,8 @@ from service.rules.measures import MEASURES, Measure, MeasureNameError, MeasureR
 from service.rules.model import COMPARATORS, LEVELS, SCOPES, Rule, RulePack, SuggestedCode
 from service.rules.subjects import INERT_ATMOSPHERES, ProcedureSubject, ReagentFacts, StepFacts
 
+from service.rules import container_measures  # noqa: E402,F401,I001  (the waste_container measures register on import)
+
 __all__ = [
     "ActiveRule",
     "COMPARATORS",

@@ -14,11 +14,13 @@ import re
 from decimal import Decimal
 from typing import Optional
 
-from service.rules import measures as _registry
-from service.rules.measures import MeasureNameError, MeasureResult, _dec, _plain, _text, measure
+from service.rules.registry import MeasureNameError, MeasureResult, measure, parameter
+from service.rules.registry import dec as _dec
+from service.rules.registry import plain as _plain
+from service.rules.registry import text as _text
 from service.rules.subjects import ContainerComponent, ContainerSubject
 
-__all__ = ["TRACE_FRACTION", "TC_EXTRACT_SOLIDS_PERCENT", "is_water"]
+__all__ = ["TRACE_FRACTION", "TC_EXTRACT_SOLIDS_PERCENT", "is_water", "concentration_basis", "mg_per_l", "mg_per_kg"]
 
 TRACE_FRACTION = Decimal("0.01")
 TC_EXTRACT_SOLIDS_PERCENT = Decimal("0.5")  # 40 CFR 261.24(a), seen: below it the liquid is the extract
@@ -32,8 +34,7 @@ def _check_key(key: str) -> str:
     raise MeasureNameError(f"{key!r} is not a catalogue key (a lowercase slug such as acetone or ethyl-acetate)")
 
 
-_registry._PARAMETER_LABELS["substance"] = "<key>"
-_registry._PARAMETER_CHECKS["substance"] = _check_key
+parameter("substance", "<key>", _check_key)
 
 
 def is_water(component: ContainerComponent) -> bool:
@@ -55,17 +56,55 @@ def _fraction(components: list[ContainerComponent]) -> MeasureResult:
     return MeasureResult(_plain(total), "", detail)
 
 
+def concentration_basis(subject: ContainerSubject) -> tuple[str, str]:
+    """Whether the container's mg/L compare with a toxicity-characteristic limit: (basis, why).
+
+    ``extract`` — a liquid with less than 0.5 % filterable solids is itself the extract
+    (40 CFR 261.24(a)), its mg/L compare with the TC limits; ``extraction_test`` — from 0.5 %
+    the extract of the leaching procedure decides, so no mg/L is comparable; ``solid`` — a solid
+    waste, likewise; ``empty`` — no liquid recorded.
+
+    >>> concentration_basis(ContainerSubject(label="W1", stream="aqueous_heavy_metal", form="liquid",
+    ...     volume_l=2.0, mass_kg=0.0, capacity_l=20.0, filterable_solids_percent=1.0))[0]
+    'extraction_test'
+    """
+    if subject.form == "solid":
+        return "solid", ("A solid waste: the toxicity characteristic is decided on the extract of the leaching "
+                         "procedure (40 CFR 261.24(a), Method 1311); element amounts per kg are totals, not extract "
+                         "concentrations.")
+    if not _liquid(subject):
+        return "empty", "No liquid recorded: no concentration."
+    share = _dec(subject.filterable_solids_percent)
+    if share >= TC_EXTRACT_SOLIDS_PERCENT:
+        return "extraction_test", (f"{_text(share)} % filterable solids (0.5 % or more): the liquid is not itself "
+                                   "the toxicity-characteristic extract; the extract of the leaching procedure decides "
+                                   "(40 CFR 261.24(a), Method 1311), so no mg/L here compares with a TC limit.")
+    return "extract", (f"{_text(share)} % filterable solids (below 0.5 %): the filtered liquid is itself the "
+                       "toxicity-characteristic extract (40 CFR 261.24(a)); its mg/L compare with the TC limits.")
+
+
+def mg_per_l(mass_ug: int, volume_l: float) -> Decimal:
+    """Element mass (µg) per litre of liquid as exact mg/L: 5 000 µg in 2 L -> Decimal('2.5')."""
+    return Decimal(mass_ug) / 1000 / _dec(volume_l)
+
+
+def mg_per_kg(mass_ug: int, mass_kg: float) -> Decimal:
+    """Element mass (µg) per kilogram of solid as exact mg/kg: 300 µg in 0.5 kg -> Decimal('0.6')."""
+    return Decimal(mass_ug) / 1000 / _dec(mass_kg)
+
+
 @measure("concentration_mg_per_l", scope="waste_container", unit="mg/L", parameter="element")
 def concentration_mg_per_l(subject: ContainerSubject, element: Optional[str]) -> Optional[MeasureResult]:
     """Element mass per litre of liquid waste, in mg/L; not applicable to solids or ≥ 0.5 % filterable solids.
 
     With less than 0.5 % filterable solids the filtered liquid is itself the toxicity
-    characteristic extract (40 CFR 261.24(a)); otherwise the extraction test decides.
+    characteristic extract (40 CFR 261.24(a)); otherwise the extraction test decides
+    (:func:`concentration_basis`).
     """
-    if not _liquid(subject) or _dec(subject.filterable_solids_percent) >= TC_EXTRACT_SOLIDS_PERCENT:
+    if concentration_basis(subject)[0] != "extract":
         return None
     mass_ug = subject.element_mass_ug.get(element, 0)
-    value = Decimal(mass_ug) / 1000 / _dec(subject.volume_l)
+    value = mg_per_l(mass_ug, subject.volume_l)
     detail = f"{_text(Decimal(mass_ug) / 1000)} mg {element} in {_text(_dec(subject.volume_l))} L"
     return MeasureResult(_plain(value), "mg/L", detail)
 

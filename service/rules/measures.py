@@ -1,123 +1,40 @@
-"""The measure registry: the fixed vocabulary of numbers that rules may compare.
+"""The procedure measures, and the public face of the measure registry.
 
-A measure turns a subject (see :mod:`service.rules.subjects`) into a
-:class:`MeasureResult` in the measure's unit, or ``None`` when it does not apply (the rule
-is then skipped). A parameterised measure is named ``name:<argument>``
-(``element_mass:Cd``). Adding a measure is one decorator line above its function:
-``@measure("volume_l", scope="waste_container", unit="L")``; the scope check and the
-vocabulary follow from it. The first docstring line of each function is its description.
+The registry itself (:class:`MeasureResult`, :func:`measure`, :func:`resolve_measure`,
+:func:`vocabulary`) is :mod:`service.rules.registry`; the waste-container measures are
+in :mod:`service.rules.container_measures`. Adding a measure is one decorator line above
+its function: ``@measure("volume_l", scope="waste_container", unit="L")``; the scope check
+and the vocabulary follow from it. The first docstring line of each function is its
+description.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
 from decimal import Decimal
-from typing import Callable, Iterable, Optional
+from typing import Iterable, Optional
 
-from service import vocab
+from service.rules.registry import (
+    MEASURES,
+    Measure,
+    MeasureNameError,
+    MeasureResult,
+    measure,
+    resolve_measure,
+    vocabulary,
+)
+from service.rules.registry import dec as _dec
+from service.rules.registry import plain as _plain
+from service.rules.registry import text as _text
 from service.rules.subjects import INERT_ATMOSPHERES, ProcedureSubject, ReagentFacts, StepFacts
 
 __all__ = ["MeasureResult", "Measure", "MeasureNameError", "MEASURES", "measure", "resolve_measure", "vocabulary"]
 
 
-@dataclass(frozen=True)
-class MeasureResult:
-    """A computed value (int for counts and µg, else float) in ``unit``, with a readable detail."""
-
-    value: float
-    unit: str
-    detail: str = ""
-
-
-@dataclass(frozen=True)
-class Measure:
-    """A named measure: its scope, pint unit ("" for dimensionless) and how to compute it."""
-
-    name: str
-    scope: str
-    unit: str
-    description: str
-    compute: Callable[[object, Optional[str]], Optional[MeasureResult]]
-    parameter: Optional[str] = None  # kind of the ":<argument>", e.g. "element"
-
-
-class MeasureNameError(ValueError):
-    """A measure name that is unknown or has a missing, unexpected or bad argument."""
-
-
-MEASURES: dict[str, Measure] = {}
-_PARAMETER_LABELS = {"element": "<El>"}
 LIQUID_STATES = frozenset({"liquid", "solution"})
 TOXIC_METALS = ("Cd", "Pb", "Se", "Te", "Hg", "Tl", "As")
 
 
-def measure(name: str, *, scope: str, unit: str, parameter: Optional[str] = None):
-    """Register the decorated function as measure ``name`` (description: its docstring's first line)."""
-
-    def register(compute):
-        description = (compute.__doc__ or "").strip().splitlines()[0]
-        MEASURES[name] = Measure(name, scope, unit, description, compute, parameter)
-        return compute
-
-    return register
-
-
-def _check_element(symbol: str) -> str:
-    """Return ``symbol`` if it is a chemical element symbol; raise MeasureNameError otherwise."""
-    try:
-        return vocab.element_symbol(symbol)
-    except vocab.UnknownElementError as exc:
-        raise MeasureNameError(str(exc)) from None
-
-
-_PARAMETER_CHECKS = {"element": _check_element}
-
-
-def resolve_measure(name: str) -> tuple[Measure, Optional[str]]:
-    """Look up ``name`` (``base`` or ``base:arg``) in the registry.
-
-    :returns: the measure and its checked argument (None if it takes none)
-    :raises MeasureNameError: unknown name, missing/unexpected argument, bad element symbol
-    """
-    base, sep, arg = name.partition(":")
-    found = MEASURES.get(base)
-    if found is None:
-        known = ", ".join(sorted(entry["name"] for entry in vocabulary()))
-        raise MeasureNameError(f"unknown measure {name!r}; known measures: {known}")
-    if found.parameter is None:
-        if sep:
-            raise MeasureNameError(f"measure {base!r} takes no ':<argument>'")
-        return found, None
-    if not arg:
-        raise MeasureNameError(f"measure {base!r} needs an argument: {base}:{_PARAMETER_LABELS[found.parameter]}")
-    return found, _PARAMETER_CHECKS[found.parameter](arg)
-
-
-def vocabulary() -> list[dict]:
-    """The measure table for documentation: name, scope, unit, description, in registry order."""
-    rows = []
-    for entry in MEASURES.values():
-        label = f"{entry.name}:{_PARAMETER_LABELS[entry.parameter]}" if entry.parameter else entry.name
-        rows.append({"name": label, "scope": entry.scope, "unit": entry.unit, "description": entry.description})
-    return rows
-
-
 # ---------------------------------------------------------------- helpers ----
-
-
-def _dec(number: float) -> Decimal:
-    """A float as the Decimal of its shortest repr (300.5 -> Decimal('300.5'))."""
-    return Decimal(repr(float(number)))
-
-
-def _plain(number: Decimal) -> float | int:
-    """An int when ``number`` is integral, else a float."""
-    return int(number) if number == number.to_integral_value() else float(number)
-
-
-def _text(number: Decimal) -> str:
-    """Decimal without exponent or trailing zeros: Decimal('151.0') -> '151'."""
-    return f"{number.normalize():f}"
 
 
 def _step_label(step: StepFacts) -> str:
@@ -226,6 +143,3 @@ def max_injection_temperature(subject: ProcedureSubject, _arg: None) -> Optional
     step = max(injections, key=lambda s: s.temperature_c)
     step_c = _dec(step.temperature_c)
     return MeasureResult(_plain(step_c), "degC", f"{_step_label(step)} at {_text(step_c)} °C")
-
-# The waste_container measures register themselves on import (kept in their own module).
-from service.rules import container_measures  # noqa: E402,F401

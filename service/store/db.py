@@ -10,7 +10,7 @@ from sqlalchemy import create_engine, event
 from sqlalchemy.engine import Engine
 from sqlalchemy.orm import Session, sessionmaker
 
-__all__ = ["make_engine", "make_sessionmaker", "session_scope", "upgrade", "init_app", "get_session"]
+__all__ = ["make_engine", "make_sessionmaker", "session_scope", "upgrade", "init_app", "get_session", "end_session"]
 
 MIGRATIONS = Path(__file__).with_name("migrations")
 
@@ -111,3 +111,20 @@ def get_session() -> Session:
     if "db_session" not in g:
         g.db_session = current_app.extensions["dotledger.sessions"]()
     return g.db_session
+
+
+def end_session() -> None:
+    """End the request's session now: commit what it wrote and close it.
+
+    For a view whose remaining work needs no database (rendering a document, serialising a
+    report), so that no transaction stays open during it. A later ``get_session()`` in the
+    same request opens a new session.
+    """
+    from flask import g
+
+    session = g.pop("db_session", None)
+    if session is not None:
+        try:
+            session.commit()
+        finally:
+            session.close()

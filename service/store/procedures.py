@@ -20,6 +20,7 @@ from service.rules import LayeredRules, evaluate, highest_level
 from service.rules.subjects import ProcedureSubject, ReagentFacts, StepFacts
 from service.schemas import DrawIn, ProcedureIn, ProcedurePatch, StepIn, WastePlanIn
 from service.store.paging import Page, paginate
+from service.store.findings import evaluate_once
 from service.store.models import (
     Lab,
     Mixture,
@@ -237,7 +238,7 @@ def reference_scale(session: Session, proc: Procedure) -> Optional[float]:
 
 def findings_of(session: Session, proc: Procedure, rules: LayeredRules, *, scale: Optional[float] = None) -> list:
     subject = subject_of(proc, scale=scale, approved_scale=reference_scale(session, proc))
-    return evaluate(rules, "procedure", subject)
+    return evaluate_once(session, rules, "procedure", (proc.id, scale), subject)
 
 
 # --- workflow -----------------------------------------------------------------

@@ -6,8 +6,7 @@ from urllib.parse import urlparse
 
 from flask import redirect, render_template, request, url_for
 
-from service.api.identity import login_limits
-from service.auth import sign_in, sign_out
+from service.auth import login_limits, sign_in, sign_out
 from service.store import identity
 from service.store.db import get_session
 from service.web import bp

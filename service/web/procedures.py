@@ -1,14 +1,15 @@
-"""Procedure, review-queue and run pages (read-only), rendered from the API's own JSON views."""
+"""Procedure, review-queue and run pages (read-only), rendered from the views the JSON API uses (service.present)."""
 
 from __future__ import annotations
 
 from flask import render_template, request
 
-from service.api.procedures import active_rules, dump_procedure
-from service.api.runs import dump_run
+from service.appdata import active_rules
 from service.auth import check_lab, current_user, lab_scope
 from service.permissions import allowed
 from service.schemas import PageQuery
+from service.present.procedures import dump_procedure
+from service.present.runs import dump_run
 from service.store import inventory, procedures
 from service.store.db import get_session
 from service.store.models import Mixture, Procedure, Run, Stock

@@ -1,4 +1,4 @@
-"""Waste container pages (read-only), rendered from the API's own JSON views."""
+"""Waste container pages (read-only), rendered from the same views as the JSON API (service.present)."""
 
 from __future__ import annotations
 
@@ -6,9 +6,9 @@ import datetime as dt
 
 from flask import render_template, request
 
-from service.api.waste import dump_container, dump_entry
 from service.auth import check_lab, lab_scope
 from service.schemas import PageQuery
+from service.present.waste import dump_container, dump_entry
 from service.store import inventory, waste
 from service.store.db import get_session
 from service.store.models import WasteContainer

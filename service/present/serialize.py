@@ -127,6 +127,23 @@ def mixture(record: Mixture) -> dict[str, Any]:
     }
 
 
+def substance_facts(record: Substance) -> dict[str, Any]:
+    """What a printed document shows of a substance: identity, state, flash point, hazard and flags."""
+    return {"key": record.key, "name": record.name, "formula": record.formula, "cas": record.cas,
+            "state": record.state, "flash_point_c": record.flash_point_c, "hazard": record.hazard or {},
+            "flags": list(record.flags or ())}
+
+
+def lab_heading(record: Lab) -> dict[str, Any]:
+    """A lab as a document's heading names it."""
+    return {"id": record.id, "code": record.code, "name": record.name}
+
+
+def location_heading(record: Location | None) -> dict[str, Any]:
+    """Where a container stands, as a manifest names it ({} if the location is gone)."""
+    return {"building": record.building, "room": record.room, "storage": record.storage} if record else {}
+
+
 def finding(record) -> dict[str, Any]:
     """A rule finding as JSON: Decimals as numbers, the suggested code as a plain object."""
     out = dataclasses.asdict(record)

@@ -1,0 +1,97 @@
+"""A waste container and its entries as people see them.
+
+Volume, mass, fill, filterable solids and concentrations are the values the container
+measures compute (:mod:`service.rules.container_measures`, exact Decimal), so what a page,
+the API or a manifest shows is what the rules judge. Where the liquid is not itself the
+toxicity-characteristic extract (0.5 % filterable solids or more, 40 CFR 261.24(a)) no mg/L is
+given, and ``concentration_basis`` / ``concentration_note`` say so and why.
+"""
+
+from __future__ import annotations
+
+from decimal import ROUND_HALF_EVEN, Decimal
+
+from service.appdata import active_rules
+from service.present.serialize import element_rows_from, finding
+from service.rules import highest_level
+from service.rules.container_measures import (
+    concentration_basis,
+    concentration_mg_per_l,
+    fill_fraction,
+    filterable_solids_percent,
+    mass_kg,
+    mg_per_kg,
+    volume_l,
+)
+from service.rules.registry import dec, plain
+from service.rules.subjects import ContainerSubject
+from service.store import waste
+from service.store.db import get_session
+from service.store.findings import evaluate_once
+from service.store.models import Substance, WasteContainer, WasteEntry
+
+__all__ = ["CAUTION", "dump_container", "dump_entry", "amounts", "concentrations"]
+
+CAUTION = ("Waste codes and transport descriptions are suggestions for review. The waste determination "
+           "rests with the site safety officer and local regulations; shipping papers with the licensed shipper.")
+
+
+def dump_container(container: WasteContainer) -> dict:
+    session = get_session()
+    contents = waste.contents_of(session, container)
+    subject = waste.subject_of(session, container, contents)
+    rules = active_rules()
+    findings = evaluate_once(session, rules, "waste_container", container.id, subject)
+    basis, note = concentration_basis(subject)
+    return {
+        "id": container.id, "label": container.label, "lab_id": container.lab_id, "location_id": container.location_id,
+        "stream": container.stream, "form": container.form, "capacity": container.capacity_text,
+        "acute_hazardous": container.acute_hazardous, "state": container.state,
+        "first_entry_at": _iso(container.first_entry_at), "full_at": _iso(container.full_at),
+        "pickup_requested_at": _iso(container.pickup_requested_at), "collected_at": _iso(container.collected_at),
+        "entries": contents.entries, **amounts(subject, contents, container.capacity_micro),
+        "concentration_basis": basis, "concentration_note": note,
+        "elements": [{**row, **concentrations(subject, row["element"], basis)}
+                     for row in element_rows_from(contents.element_mass_ug)],
+        "solvent_composition": [{"substance": c.name, "key": c.key, "volume_percent": round(100 * c.volume_fraction, 3)}
+                                for c in subject.components],
+        "findings": [finding(f) for f in findings], "highest_level": highest_level(findings),
+        "rule_packs": [{"pack": n, "version": v} for n, v in rules.packs], "caution": CAUTION,
+    }
+
+
+def amounts(subject: ContainerSubject, contents: waste.Contents, capacity_micro: int) -> dict:
+    """Volume, mass, fill and filterable solids as the container measures compute them (exact Decimal)."""
+    if subject.form == "liquid":
+        fill = fill_fraction(subject, None)
+        fill_share = dec(fill.value) if fill is not None else Decimal(0)
+    else:  # no rule judges a solids container's fill: the exact ratio of the stored integers
+        fill_share = Decimal(contents.mass_ug) / Decimal(capacity_micro)
+    return {"volume_l": volume_l(subject, None).value, "mass_kg": mass_kg(subject, None).value,
+            "fill_percent": float((fill_share * 100).quantize(Decimal("0.01"), rounding=ROUND_HALF_EVEN)),
+            "filterable_solids_percent": filterable_solids_percent(subject, None).value}
+
+
+def concentrations(subject: ContainerSubject, element: str, basis: str) -> dict:
+    """mg/L (only where the liquid is itself the TC extract) and, for solids, mg/kg of one element."""
+    per_l = concentration_mg_per_l(subject, element)  # None unless the basis is "extract"
+    per_kg = (plain(mg_per_kg(subject.element_mass_ug.get(element, 0), subject.mass_kg))
+              if basis == "solid" and subject.mass_kg > 0 else None)
+    return {"concentration_mg_per_l": per_l.value if per_l is not None else None, "concentration_mg_per_kg": per_kg}
+
+
+def _iso(value):
+    return value.isoformat() if value else None
+
+
+def dump_entry(entry: WasteEntry) -> dict:
+    session = get_session()
+    return {
+        "id": entry.id, "container_id": entry.container_id, "run_id": entry.run_id, "actor_id": entry.actor_id,
+        "at": entry.at.isoformat(), "description": entry.description, "volume_ml": entry.volume_ul / 1000,
+        "mass_g": entry.mass_ug / 1e6, "filterable_solids_percent": entry.filterable_solids_percent,
+        "reverses_entry_id": entry.reverses_entry_id,
+        "components": [{"substance_id": c.substance_id, "substance": session.get(Substance, c.substance_id).name,
+                        "volume_ml": c.volume_ul / 1000} for c in entry.components],
+        "elements": element_rows_from({e.element: e.mass_ug for e in sorted(entry.elements, key=lambda e: e.element)}),
+    }
