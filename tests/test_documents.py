@@ -151,14 +151,15 @@ MANIFEST_DATA = {
     "container": {"id": 1, "label": "W-1", "stream": "aqueous_heavy_metals", "form": "liquid", "capacity": "10 L",
                   "acute_hazardous": False, "volume_l": 0, "fill_percent": 0, "filterable_solids_percent": 0,
                   "state": "open", "first_entry_at": None, "full_at": None, "pickup_requested_at": None,
-                  "collected_at": None},
+                  "collected_at": None, "concentration_note": "Empty."},
     "stream_title": "Aqueous", "deferral": "Defer.", "caution": "Careful.", "transport_version": "t1",
     "rule_packs": [], "constituents": [], "elements": [], "suggested_codes": [], "transport": [],
     "metals_present": [], "hazards": [], "findings": [], "entries": [], "sign_off": ["Safety officer"],
 }
 MANIFEST_BYTES = (
     b'{"caution":"Careful.","constituents":[],'
-    b'"container":{"acute_hazardous":false,"capacity":"10 L","collected_at":null,"fill_percent":0,'
+    b'"container":{"acute_hazardous":false,"capacity":"10 L","collected_at":null,'
+    b'"concentration_note":"Empty.","fill_percent":0,'
     b'"filterable_solids_percent":0,"first_entry_at":null,"form":"liquid","full_at":null,"id":1,"label":"W-1",'
     b'"pickup_requested_at":null,"state":"open","stream":"aqueous_heavy_metals","volume_l":0},'
     b'"deferral":"Defer.","document_id":"WM-00001","elements":[],"entries":[],"findings":[],'
