@@ -200,7 +200,7 @@ def audit_verify() -> None:
     from service.store.db import session_scope
 
     app = _app()
-    with session_scope(_sessions(app)) as session:
+    with session_scope(_sessions(app), write=False) as session:
         head = session.get(audit.AuditHead, 1)
         report = audit.verify_chain(session)
     if report.ok:
@@ -229,7 +229,7 @@ def preview(procedure_id: int, scales: str) -> None:
     except ValidationError as exc:
         raise click.BadParameter(exc.errors()[0]["msg"].removeprefix("Value error, "), param_hint="--scale")
     app = _app()
-    with session_scope(_sessions(app)) as session:
+    with session_scope(_sessions(app), write=False) as session:
         proc = session.get(Procedure, procedure_id)
         if proc is None:
             raise click.ClickException(f"no procedure with id {procedure_id}")
@@ -259,7 +259,7 @@ def _report_frame(name: str, by: str | None, since, until, element: str | None):
     except ledger.UnknownGroupKey as exc:
         raise click.BadParameter(str(exc), param_hint="--by") from None
     app = _app()
-    with session_scope(_sessions(app)) as session:
+    with session_scope(_sessions(app), write=False) as session:
         return ledger.run_report(session, name, keys, **filters)
 
 

@@ -11,10 +11,14 @@ import json
 import threading
 import urllib.error
 import urllib.request
+from decimal import Decimal
 
 import pytest
+from sqlalchemy import insert, text
 from waitress.server import create_server
 
+from service.store.db import make_engine, upgrade
+from service.store.models import Lab, Location, Substance, WasteContainer, WasteEntry, WasteEntryComponent, WasteEntryElement
 from tests.conftest import Api, make_user
 
 
@@ -156,3 +160,99 @@ def test_concurrent_additions_over_http_are_never_lost(app, site):
     assert read["volume_l"] == pytest.approx(len(acknowledged) * 0.010)
     assert read["elements"][0]["mass_ug"] == 100 * len(acknowledged)
     assert read["entries"] == len(acknowledged)
+    stored, summed = _stored_and_summed(app.extensions["dotledger.engine"], container["id"])
+    assert stored == summed and summed["totals"] == [(len(acknowledged), 10_000 * len(acknowledged), 0)]
+
+
+# The running totals against a fresh SUM over the entries, in plain SQL (what the totals replace).
+_STORED = {
+    "totals": "SELECT entries, volume_ul, mass_ug FROM waste_container_totals WHERE container_id = :c",
+    "elements": "SELECT element, mass_ug FROM waste_container_elements WHERE container_id = :c AND mass_ug <> 0 "
+                "ORDER BY element",
+    "components": "SELECT substance_id, volume_ul FROM waste_container_components "
+                  "WHERE container_id = :c AND volume_ul <> 0 ORDER BY substance_id",
+}
+_SUMMED = {
+    "totals": "SELECT COUNT(*), COALESCE(SUM(volume_ul), 0), COALESCE(SUM(mass_ug), 0) FROM waste_entries "
+              "WHERE container_id = :c",
+    "elements": "SELECT x.element, SUM(x.mass_ug) FROM waste_entry_elements x JOIN waste_entries e ON e.id = x.entry_id "
+                "WHERE e.container_id = :c GROUP BY x.element HAVING SUM(x.mass_ug) <> 0 ORDER BY x.element",
+    "components": "SELECT x.substance_id, SUM(x.volume_ul) FROM waste_entry_components x "
+                  "JOIN waste_entries e ON e.id = x.entry_id WHERE e.container_id = :c "
+                  "GROUP BY x.substance_id HAVING SUM(x.volume_ul) <> 0 ORDER BY x.substance_id",
+}
+
+
+def _stored_and_summed(engine, container_id: int) -> tuple[dict, dict]:
+    def rows(sql: str) -> list[tuple]:  # PostgreSQL sums BIGINT as NUMERIC (Decimal)
+        return [tuple(int(v) if isinstance(v, Decimal) else v for v in row)
+                for row in connection.execute(text(sql), {"c": container_id})]
+
+    with engine.connect() as connection:
+        return {k: rows(q) for k, q in _STORED.items()}, {k: rows(q) for k, q in _SUMMED.items()}
+
+
+def test_running_totals_equal_the_sum_of_entries_and_reversals(app, site):
+    """40 entries of varying volume, Cd/Se mass, components and solids; every third one reversed."""
+    container = _container(site, capacity="200 L")
+    path = f"/waste_containers/{container['id']}/entries"
+    entries = []
+    for n in range(40):
+        volume_ml = 100 + 37 * n
+        body = {"description": f"wash {n}", "volume": f"{volume_ml} mL", "filterable_solids_percent": (n % 4) * 0.15,
+                "components": [{"substance_id": site["acetone" if n % 2 else "toluene"], "volume": f"{volume_ml // 2} mL"}],
+                "elements": [{"element": "Cd", "mass": f"{0.125 * n} mg"}] + (
+                    [{"element": "Se", "mass": f"{3 * n} ug"}] if n % 5 == 0 else [])}
+        entries.append(site["researcher"].call("POST", path, body, 201))
+    for entry in entries[::3]:
+        site["researcher"].call("POST", f"{path}/{entry['id']}/reverse", {"reason": "wrong container"}, 201)
+    stored, summed = _stored_and_summed(app.extensions["dotledger.engine"], container["id"])
+    assert stored == summed
+    # Independently of the code: the kept entries are n = 1, 2, 4, 5, 7, … (n % 3 != 0).
+    kept = [n for n in range(40) if n % 3]
+    assert summed["totals"] == [(40 + 14, sum(1000 * (100 + 37 * n) for n in kept), 0)]
+    assert dict(summed["elements"]) == {"Cd": sum(125 * n for n in kept), "Se": sum(3 * n for n in kept if n % 5 == 0)}
+    read = site["researcher"].call("GET", f"/waste_containers/{container['id']}")
+    volume_ul = sum(1000 * (100 + 37 * n) for n in kept)
+    assert read["volume_l"] == volume_ul / 1e6 and read["entries"] == 54
+    # filterable solids: the volume-weighted mean of the kept entries' percentages
+    weighted = sum(1000 * (100 + 37 * n) * (n % 4) * 0.15 for n in kept) / volume_ul
+    assert read["filterable_solids_percent"] == pytest.approx(weighted, abs=1e-3)
+
+
+def test_the_migration_fills_the_totals_from_existing_entries(database_url):
+    """Entries written before the totals existed are summed once by revision 0008."""
+    upgrade(database_url, "0006_site")
+    engine = make_engine(database_url)
+    try:
+        with engine.begin() as conn:
+            lab = conn.execute(insert(Lab).values(code="M-1", name="Migration lab")).inserted_primary_key[0]
+            place = conn.execute(insert(Location).values(lab_id=lab, building="M", room="1", storage="SAA",
+                                                         kind="satellite_accumulation_area")).inserted_primary_key[0]
+            acetone = conn.execute(insert(Substance).values(key="acetone", name="acetone", formula="C3H6O", cas="67-64-1",
+                                                            state="liquid", source="test")).inserted_primary_key[0]
+            full, empty = (conn.execute(insert(WasteContainer).values(
+                label=label, lab_id=lab, location_id=place, stream="non_halogenated_solvent_heavy_metals", form="liquid",
+                capacity_text="20 L", capacity_micro=20_000_000, state="open")).inserted_primary_key[0]
+                for label in ("M-C1", "M-C2"))
+            # (id, volume µL, solids %, reverses, {element: µg}, acetone µL)
+            for ident, volume, solids, reverses, elements, acetone_ul in (
+                    (1, 2_000_000, 1.0, None, {"Cd": 5000}, 2_000_000),
+                    (2, 3_000_000, None, None, {"Cd": 2000, "Se": 3000}, 1_000_000),
+                    (3, -3_000_000, None, 2, {"Cd": -2000, "Se": -3000}, -1_000_000)):
+                conn.execute(insert(WasteEntry).values(id=ident, container_id=full, description="before 0008",
+                                                       volume_ul=volume, mass_ug=0, filterable_solids_percent=solids,
+                                                       reverses_entry_id=reverses))
+                conn.execute(insert(WasteEntryComponent).values(entry_id=ident, substance_id=acetone, volume_ul=acetone_ul))
+                for element, mass in elements.items():
+                    conn.execute(insert(WasteEntryElement).values(entry_id=ident, element=element, mass_ug=mass))
+        upgrade(database_url)
+        stored, _ = _stored_and_summed(engine, full)
+        # 2 L + 3 L − 3 L; Cd 5 mg + 2 mg − 2 mg; Se cancels; acetone 2 L + 1 L − 1 L (worked by hand)
+        assert stored == {"totals": [(3, 2_000_000, 0)], "elements": [("Cd", 5000)], "components": [(acetone, 2_000_000)]}
+        assert _stored_and_summed(engine, empty)[0] == {"totals": [(0, 0, 0)], "elements": [], "components": []}
+        with engine.connect() as conn:  # 2 000 000 µL × 1.0 % × 10⁶
+            assert conn.scalar(text("SELECT solids_percent_ul_e6 FROM waste_container_totals WHERE container_id = :c"),
+                               {"c": full}) == 2_000_000 * 1_000_000
+    finally:
+        engine.dispose()

@@ -1,4 +1,16 @@
-"""Engine and sessions; one session per request, committed or rolled back at its end."""
+"""Engine and sessions; one session per request, committed or rolled back at its end.
+
+Reads and writes open their transactions differently. A session made with ``new_session(factory,
+write=False)`` (every GET/HEAD/OPTIONS request, the read-only CLI commands) begins its SQLite
+transactions DEFERRED: it takes no lock until it reads, and in WAL mode readers never wait for the
+writer nor hold it up. A session made with ``write=True`` (every other request, the CLI commands that
+change data, ``session_scope`` by default) is bound to the same engine with the ``WRITE`` execution
+option, so each of its transactions begins IMMEDIATE: the write lock is taken before the first
+statement, and two writers never both read a container total and then both add to it. A read
+session refuses to flush changes (a deferred SQLite transaction that upgrades to a write can fail
+with "database is locked" under load). On PostgreSQL the option is inert; rows that must not race
+are locked with ``SELECT … FOR UPDATE``.
+"""
 
 from __future__ import annotations
 
@@ -10,9 +22,18 @@ from sqlalchemy import create_engine, event
 from sqlalchemy.engine import Engine
 from sqlalchemy.orm import Session, sessionmaker
 
-__all__ = ["make_engine", "make_sessionmaker", "session_scope", "upgrade", "init_app", "get_session", "end_session"]
+__all__ = ["WRITE", "ReadOnlySession", "make_engine", "make_sessionmaker", "new_session", "session_scope", "upgrade",
+           "init_app", "get_session", "end_session"]
 
 MIGRATIONS = Path(__file__).with_name("migrations")
+# The execution option that marks a writing session's connections (see the module docstring).
+WRITE = "dotledger_write"
+# Request methods that only read; every other method gets a writing session.
+READ_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
+
+
+class ReadOnlySession(RuntimeError):
+    """A session opened for reading tried to flush changes."""
 
 
 def make_engine(url: str) -> Engine:
@@ -34,9 +55,8 @@ def make_engine(url: str) -> Engine:
 
         @event.listens_for(engine, "begin")
         def _sqlite_begin(conn):  # pragma: no cover - trivial
-            # An immediate transaction takes the write lock up front, so two writers
-            # never both read a container total and then both add to it.
-            conn.exec_driver_sql("BEGIN IMMEDIATE")
+            # A writing session takes the write lock up front; a reading one takes none.
+            conn.exec_driver_sql("BEGIN IMMEDIATE" if conn.get_execution_options().get(WRITE) else "BEGIN")
 
         return engine
     return create_engine(url, pool_pre_ping=True)
@@ -48,13 +68,30 @@ def make_sessionmaker(engine: Engine) -> sessionmaker[Session]:
 
     factory = sessionmaker(bind=engine, expire_on_commit=False)
     audit.install(factory)
+    event.listen(factory, "before_flush", _refuse_writes_when_reading)
     return factory
 
 
+def _refuse_writes_when_reading(session: Session, _flush_context, _instances) -> None:
+    if session.info.get(WRITE) is False and (session.new or session.deleted or any(
+            session.is_modified(obj) for obj in session.dirty)):
+        raise ReadOnlySession("this session was opened for reading; open it with write=True to change data")
+
+
+def new_session(factory: sessionmaker[Session], *, write: bool) -> Session:
+    """A session whose transactions take SQLite's write lock up front (``write=True``) or never."""
+    if write:
+        session = factory(bind=factory.kw["bind"].execution_options(**{WRITE: True}))
+    else:
+        session = factory()
+    session.info[WRITE] = write
+    return session
+
+
 @contextmanager
-def session_scope(factory: sessionmaker[Session]) -> Iterator[Session]:
-    """A session that commits on success and rolls back on any error."""
-    session = factory()
+def session_scope(factory: sessionmaker[Session], *, write: bool = True) -> Iterator[Session]:
+    """A session that commits on success and rolls back on any error (a writing one unless ``write=False``)."""
+    session = new_session(factory, write=write)
     try:
         yield session
         session.commit()
@@ -105,11 +142,12 @@ def init_app(app) -> None:
 
 
 def get_session() -> Session:
-    """The request's session (created on first use)."""
-    from flask import current_app, g
+    """The request's session (created on first use): a writing one unless the method only reads."""
+    from flask import current_app, g, has_request_context, request
 
     if "db_session" not in g:
-        g.db_session = current_app.extensions["dotledger.sessions"]()
+        write = has_request_context() and request.method not in READ_METHODS
+        g.db_session = new_session(current_app.extensions["dotledger.sessions"], write=write)
     return g.db_session
 
 

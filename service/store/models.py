@@ -52,6 +52,9 @@ __all__ = [
     "WasteEntry",
     "WasteEntryComponent",
     "WasteEntryElement",
+    "WasteContainerTotals",
+    "WasteContainerElement",
+    "WasteContainerComponent",
     "utcnow",
 ]
 
@@ -424,6 +427,14 @@ class WasteContainer(_Lifecycle, Base):
     full_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
     pickup_requested_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
     collected_at: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
+    # Running totals of the entries, kept by the store in the transaction that adds each entry.
+    totals: Mapped[Optional["WasteContainerTotals"]] = relationship(cascade="all, delete-orphan", lazy="selectin")
+    element_totals: Mapped[list["WasteContainerElement"]] = relationship(
+        cascade="all, delete-orphan", lazy="selectin", order_by="WasteContainerElement.element"
+    )
+    component_totals: Mapped[list["WasteContainerComponent"]] = relationship(
+        cascade="all, delete-orphan", lazy="selectin", order_by="WasteContainerComponent.substance_id"
+    )
 
 
 class WasteEntry(Base):
@@ -449,6 +460,7 @@ class WasteEntryComponent(Base):
     entry_id: Mapped[int] = mapped_column(ForeignKey("waste_entries.id"), primary_key=True)
     substance_id: Mapped[int] = mapped_column(ForeignKey("substances.id"), primary_key=True)
     volume_ul: Mapped[int] = mapped_column(BigInteger)  # signed
+    substance: Mapped[Substance] = relationship(lazy="joined")
 
 
 class WasteEntryElement(Base):
@@ -457,3 +469,31 @@ class WasteEntryElement(Base):
     entry_id: Mapped[int] = mapped_column(ForeignKey("waste_entries.id"), primary_key=True)
     element: Mapped[str] = mapped_column(String(3), primary_key=True, index=True)
     mass_ug: Mapped[int] = mapped_column(BigInteger)  # signed
+
+
+class WasteContainerTotals(Base):
+    """The sums over a container's entries (derived rows, one per container)."""
+
+    __tablename__ = "waste_container_totals"
+    container_id: Mapped[int] = mapped_column(ForeignKey("waste_containers.id"), primary_key=True)
+    entries: Mapped[int] = mapped_column(Integer, default=0)
+    volume_ul: Mapped[int] = mapped_column(BigInteger, default=0)
+    mass_ug: Mapped[int] = mapped_column(BigInteger, default=0)
+    # Σ volume_ul × filterable_solids_percent × 10⁶, each entry's term rounded once (half to even),
+    # so that a reversal cancels its entry exactly.
+    solids_percent_ul_e6: Mapped[int] = mapped_column(BigInteger, default=0)
+
+
+class WasteContainerElement(Base):
+    __tablename__ = "waste_container_elements"
+    container_id: Mapped[int] = mapped_column(ForeignKey("waste_containers.id"), primary_key=True)
+    element: Mapped[str] = mapped_column(String(3), primary_key=True)
+    mass_ug: Mapped[int] = mapped_column(BigInteger)
+
+
+class WasteContainerComponent(Base):
+    __tablename__ = "waste_container_components"
+    container_id: Mapped[int] = mapped_column(ForeignKey("waste_containers.id"), primary_key=True)
+    substance_id: Mapped[int] = mapped_column(ForeignKey("substances.id"), primary_key=True)
+    volume_ul: Mapped[int] = mapped_column(BigInteger)
+    substance: Mapped[Substance] = relationship(lazy="joined")

@@ -200,12 +200,32 @@ def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFa
     )
 
 
+# session.info cache: family id -> [(revision, id, scale)] of its approved (or since retired) revisions.
+# Filled set-wise by the list functions so that a list's findings need no query per procedure;
+# dropped by every transition.
+_APPROVED = "dotledger.procedures.approved_revisions"
+
+
+def _load_approved_revisions(session: Session, family_ids) -> dict[int, list[tuple[int, int, float]]]:
+    cache = session.info.setdefault(_APPROVED, {})
+    missing = sorted({f for f in family_ids if f is not None} - cache.keys())
+    if missing:
+        for family_id in missing:
+            cache[family_id] = []
+        rows = session.execute(select(Procedure.family_id, Procedure.revision, Procedure.id, Procedure.scale)
+                               .where(Procedure.family_id.in_(missing), Procedure.decided_at.is_not(None),
+                                      Procedure.state.in_(("approved", "retired"))))
+        for family_id, revision, ident, scale in rows:
+            cache[family_id].append((revision, ident, scale))
+    return cache
+
+
 def last_approved_scale(session: Session, proc: Procedure) -> Optional[float]:
     """The scale of the newest approved (or since retired) earlier revision, or None."""
-    query = (select(Procedure.scale).where(Procedure.family_id == proc.family_id, Procedure.id != proc.id,
-                                           Procedure.decided_at.is_not(None), Procedure.state.in_(("approved", "retired")))
-             .order_by(Procedure.revision.desc()).limit(1))
-    return session.scalar(query)
+    if proc.family_id is None:
+        return None
+    earlier = [row for row in _load_approved_revisions(session, [proc.family_id])[proc.family_id] if row[1] != proc.id]
+    return max(earlier)[2] if earlier else None
 
 
 def subject_of(proc: Procedure, *, scale: Optional[float] = None, approved_scale: Optional[float] = None) -> ProcedureSubject:
@@ -282,6 +302,7 @@ def transition(session: Session, proc: Procedure, action: str, actor: User, comm
     if action == "retire":
         proc.retired_at = now
     proc.state = target
+    session.info.pop(_APPROVED, None)  # which revisions are approved has changed
     session.flush()
     return proc
 
@@ -291,6 +312,7 @@ def review_queue(session: Session, rules: LayeredRules, *, limit: Optional[int] 
     """A page of submitted procedures, oldest submission first, each paired with its highest finding level."""
     procs = paginate(session, select(Procedure).where(Procedure.state == "submitted")
                      .order_by(Procedure.submitted_at, Procedure.id), limit, offset)
+    _load_approved_revisions(session, {p.family_id for p in procs})  # for their findings, in one query
     return procs.with_items([(p, highest_level(findings_of(session, p, rules))) for p in procs])
 
 
@@ -312,7 +334,9 @@ def list_procedures(session: Session, *, state: Optional[str] = None, lab_id: Op
         query = query.where(Procedure.lab_id.in_(sorted(lab_ids)))
     if family_id is not None:
         query = query.where(Procedure.family_id == family_id)
-    return paginate(session, query.order_by(Procedure.id), limit, offset)
+    found = paginate(session, query.order_by(Procedure.id), limit, offset)
+    _load_approved_revisions(session, {p.family_id for p in found})  # for their findings, in one query
+    return found
 
 
 def preview(session: Session, proc: Procedure, rules: LayeredRules, scales: list[float]):

@@ -1,0 +1,175 @@
+"""No N+1 queries: every list of the API and every list page costs a fixed handful of SQL statements.
+
+The demo scenario plus 100+ rows of everything a list shows; the app's engine counts the
+statements it sends (``before_cursor_execute``) during each request. A list of 100 rows must
+cost what a list of 5 costs.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+
+import pytest
+from click.testing import CliRunner
+from sqlalchemy import event, select
+
+from service.app import create_app
+from service.cli import main
+from service.schemas import (
+    ComponentIn,
+    ContainerIn,
+    DrawIn,
+    ElementAmountIn,
+    EntryComponentIn,
+    EntryIn,
+    LabIn,
+    LocationIn,
+    MixtureIn,
+    ProcedureIn,
+    RunIn,
+    StepIn,
+    StockIn,
+    UserIn,
+    WastePlanIn,
+)
+from service.store import identity, inventory, procedures, runs, waste
+from service.store.db import session_scope
+from service.store.models import Lab, Location, Substance, User, WasteContainer
+from tests.test_cli import sign_in
+
+ROWS = 105
+# BEGIN, the caller (token or cookie user, memberships), the list (and its total), the eager loads of
+# its rows, and the record a nested list belongs to (read first, with its own eager loads).
+HANDFUL = 15
+
+
+def _seed(app) -> dict[str, int]:
+    """ROWS of every listed record, written through the service functions."""
+    rules = app.extensions["dotledger.rules"]
+    with session_scope(app.extensions["dotledger.sessions"]) as s:
+        s.info["actor"] = {"user_id": None, "label": "test seed"}
+        lab = s.scalar(select(Lab).where(Lab.code == "C-214"))
+        saa = s.scalar(select(Location).where(Location.kind == "satellite_accumulation_area"))
+        researcher = s.scalar(select(User).where(User.email == "researcher@example.org"))
+        officer = s.scalar(select(User).where(User.email == "safety@example.org"))
+        admin = s.scalar(select(User).where(User.email == "admin@example.org"))
+        cdo, acetone, ode = (s.scalar(select(Substance.id).where(Substance.key == key))
+                             for key in ("cadmium-oxide", "acetone", "1-octadecene"))
+        for n in range(ROWS):
+            inventory.create_record(s, Lab, LabIn(code=f"S-{n}", name=f"Seed lab {n}"))
+            inventory.create_record(s, Location, LocationIn(lab_id=lab.id, building="S", room=f"S-{n}", storage="shelf"))
+            identity.create_user(s, UserIn(email=f"seed{n}@example.org", display_name=f"Seed {n}", role="researcher",
+                                           password="correct horse battery", lab_ids=[lab.id]))
+            identity.issue_token(s, admin, f"seed {n}")
+        stocks = [inventory.create_stock(s, StockIn(label=f"S-{n:04d}", substance_id=cdo if n % 2 else acetone,
+                                                    lab_id=lab.id, location_id=saa.id,
+                                                    amount="10 g" if n % 2 else "1 L"))
+                  for n in range(ROWS)]
+        for n in range(ROWS):
+            inventory.create_mixture(s, MixtureIn(label=f"S-M{n}", name=f"seed oleate {n}", lab_id=lab.id,
+                                                  location_id=saa.id, volume="10 mL",
+                                                  components=[ComponentIn(substance_id=cdo, molarity="0.1 mol/L"),
+                                                              ComponentIn(substance_id=ode, volume_fraction="0.9")]))
+        procs = []
+        for n in range(ROWS):
+            body = ProcedureIn(lab_id=lab.id, title=f"Seed batch {n}",
+                               steps=[StepIn(operation="hold", temperature_c=20, atmosphere="argon")],
+                               draws=[DrawIn(stock_id=stocks[k].id, amount="1 mg" if k % 2 else "1 mL")
+                                      for k in (n, (n + 1) % ROWS)],
+                               waste_plan=[WastePlanIn(stream="contaminated solids", contents="wipes")])
+            proc = procedures.create_procedure(s, body, researcher)
+            procedures.transition(s, proc, "submit", researcher, None, rules)
+            procs.append(proc)
+        for proc in procs[: ROWS // 2]:
+            procedures.transition(s, proc, "approve", officer, "reviewed for the statement count", rules)
+        runs_made = [runs.start_run(s, RunIn(procedure_id=procs[n % (ROWS // 2)].id), researcher, rules)
+                     for n in range(ROWS)]
+        containers = [waste.create_container(s, ContainerIn(label=f"S-W{n}", lab_id=lab.id, location_id=saa.id,
+                                                            stream="non_halogenated_solvent_heavy_metals",
+                                                            capacity="200 L"))
+                      for n in range(ROWS)]
+        for n, container in enumerate(containers):
+            waste.add_entry(s, container.id, EntryIn(description=f"wash {n}", volume="10 mL",
+                                                     components=[EntryComponentIn(substance_id=acetone, volume="5 mL")],
+                                                     elements=[ElementAmountIn(element="Cd", mass="1 mg")]),
+                            researcher.id)
+        for n in range(ROWS):  # one container with ROWS entries, each from its own run, half of them with ODE
+            waste.add_entry(s, containers[0].id, EntryIn(
+                description=f"supernatant {n}", volume="10 mL", run_id=runs_made[n].id,
+                components=[EntryComponentIn(substance_id=acetone if n % 2 else ode, volume="5 mL")],
+                elements=[ElementAmountIn(element="Cd", mass="1 mg"), ElementAmountIn(element="Se", mass="1 mg")]),
+                researcher.id)
+        return {"container": containers[0].id, "procedure": procs[0].id}
+
+
+@pytest.fixture(scope="module")
+def seeded(tmp_path_factory):
+    url = f"sqlite:///{tmp_path_factory.mktemp('counts') / 'counts.sqlite'}"
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setenv("DOTLEDGER_DATABASE_URL", url)
+        result = CliRunner().invoke(main, ["demo"])
+    assert result.exit_code == 0, result.output
+    passwords = dict(line.split() for line in result.output.splitlines() if line.startswith("  ") and "@" in line)
+    app = create_app({"DATABASE_URL": url})
+    ids = _seed(app)
+    statements = []
+    event.listen(app.extensions["dotledger.engine"], "before_cursor_execute",
+                 lambda conn, cursor, statement, *args: statements.append(statement))
+    with session_scope(app.extensions["dotledger.sessions"]) as s:
+        admin = s.scalar(select(User).where(User.email == "admin@example.org"))
+        token = identity.issue_token(s, admin, "counts").secret
+    page_client = app.test_client()
+    sign_in(page_client, "admin@example.org", passwords["admin@example.org"])
+    yield {"app": app, "ids": ids, "token": token, "pages": page_client, "statements": statements}
+    app.extensions["dotledger.engine"].dispose()
+
+
+def _summary(statements: list[str]) -> str:
+    """Each distinct statement (its start) with how often it ran: an N+1 shows as a large count."""
+    counts = Counter(" ".join(statement.split())[:160] for statement in statements)
+    return "\n".join(f"{n:5d} × {text}" for text, n in counts.most_common())
+
+
+def _count(seeded, client, path: str, **kwargs) -> tuple[int, object]:
+    del seeded["statements"][:]
+    response = client.get(path.format(**seeded["ids"]), **kwargs)
+    assert response.status_code == 200, (path, response.status_code, response.get_data(as_text=True)[:500])
+    return len(seeded["statements"]), response
+
+
+# path, how many rows the seeded list holds at least (on one page where the list pages)
+API_LISTS = [
+    ("/labs?limit=1000", ROWS), ("/locations?limit=1000", ROWS), ("/substances?limit=1000", 40),
+    ("/stocks?limit=1000", ROWS), ("/mixtures?limit=1000", ROWS), ("/procedures?limit=1000", ROWS),
+    ("/review_queue", ROWS // 2), ("/runs", ROWS), ("/waste_containers", ROWS),
+    ("/waste_containers/{container}/entries", ROWS), ("/tokens", ROWS), ("/users", ROWS),
+    ("/audit_events?limit=1000", ROWS), ("/procedures/{procedure}/revisions", 1),
+    ("/procedures/{procedure}/decisions", 2),
+]
+PAGES = ["/", "/stocks", "/mixtures", "/procedures", "/review", "/waste", "/waste/{container}"]
+
+
+@pytest.mark.parametrize("path, rows", API_LISTS)
+def test_api_lists_cost_a_fixed_handful_of_statements(seeded, path, rows):
+    client = seeded["app"].test_client()
+    headers = {"Authorization": f"Bearer {seeded['token']}"}
+    count, response = _count(seeded, client, f"/api/v1{path}", headers=headers)
+    body = response.get_json()
+    items = body["items"] if isinstance(body, dict) else body
+    assert len(items) >= rows, (path, len(items))
+    assert count <= HANDFUL, f"{path}: {count} statements\n{_summary(seeded['statements'])}"
+
+
+@pytest.mark.parametrize("path", ["/labs", "/stocks", "/mixtures", "/procedures", "/audit_events"])
+def test_a_list_of_100_costs_what_a_list_of_5_costs(seeded, path):
+    client = seeded["app"].test_client()
+    headers = {"Authorization": f"Bearer {seeded['token']}"}
+    few, _ = _count(seeded, client, f"/api/v1{path}?limit=5", headers=headers)
+    many, _ = _count(seeded, client, f"/api/v1{path}?limit=100", headers=headers)
+    assert many == few, (path, few, many)
+
+
+@pytest.mark.parametrize("path", PAGES)
+def test_list_pages_cost_a_fixed_handful_of_statements(seeded, path):
+    count, _ = _count(seeded, seeded["pages"], path)
+    assert count <= HANDFUL, f"{path}: {count} statements\n{_summary(seeded['statements'])}"
