@@ -486,6 +486,7 @@ class WasteContainerTotals(Base):
 
 class WasteContainerElement(Base):
     __tablename__ = "waste_container_elements"
+    __table_args__ = (_one_of("element", vocab.ELEMENT_SYMBOLS),)
     container_id: Mapped[int] = mapped_column(ForeignKey("waste_containers.id"), primary_key=True)
     element: Mapped[str] = mapped_column(String(3), primary_key=True)
     mass_ug: Mapped[int] = mapped_column(BigInteger)

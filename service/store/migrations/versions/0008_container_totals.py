@@ -1,7 +1,7 @@
 """running totals per waste container, backfilled from the entries
 
 Revision ID: 0008_container_totals
-Revises: 0006_site
+Revises: 0007_vocabulary_checks
 Create Date: 2026-12-03 09:00:00
 """
 
@@ -9,6 +9,15 @@ from decimal import ROUND_HALF_EVEN, Decimal
 
 from alembic import op
 import sqlalchemy as sa
+
+# The element symbols as migration 0007 writes them out for the other element tables.
+ELEMENT_SYMBOLS = (
+    'H He Li Be B C N O F Ne Na Mg Al Si P S Cl Ar K Ca Sc Ti V Cr Mn Fe Co Ni Cu Zn Ga Ge As Se Br Kr '
+    'Rb Sr Y Zr Nb Mo Tc Ru Rh Pd Ag Cd In Sn Sb Te I Xe Cs Ba La Ce Pr Nd Pm Sm Eu Gd Tb Dy Ho Er Tm Yb Lu '
+    'Hf Ta W Re Os Ir Pt Au Hg Tl Pb Bi Po At Rn Fr Ra Ac Th Pa U Np Pu Am Cm Bk Cf Es Fm Md No Lr '
+    'Rf Db Sg Bh Hs Mt Ds Rg Cn Nh Fl Mc Lv Ts Og'
+).split()
+ELEMENT_CHECK = "element IN (" + ", ".join(f"'{symbol}'" for symbol in ELEMENT_SYMBOLS) + ")"
 
 
 revision = '0008_container_totals'
@@ -34,7 +43,9 @@ def upgrade() -> None:
     sa.Column('mass_ug', sa.BigInteger(), nullable=False),
     sa.ForeignKeyConstraint(['container_id'], ['waste_containers.id'],
                             name=op.f('fk_waste_container_elements_container_id_waste_containers')),
-    sa.PrimaryKeyConstraint('container_id', 'element', name=op.f('pk_waste_container_elements'))
+    sa.PrimaryKeyConstraint('container_id', 'element', name=op.f('pk_waste_container_elements')),
+    sa.CheckConstraint(ELEMENT_CHECK,
+                       name=op.f('ck_waste_container_elements_element')),
     )
     op.create_table('waste_container_components',
     sa.Column('container_id', sa.Integer(), nullable=False),
