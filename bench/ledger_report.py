@@ -27,8 +27,8 @@ sys.path.insert(0, str(ROOT))
 
 from service.store import ledger  # noqa: E402
 from service.store.db import make_engine, upgrade  # noqa: E402
+from service.vocab import STREAMS  # noqa: E402
 from service.store.models import (  # noqa: E402
-    STREAMS,
     Lab,
     Location,
     WasteContainer,

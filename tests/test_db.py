@@ -13,7 +13,8 @@ from sqlalchemy import event, insert
 from service.schemas import LabIn
 from service.store import inventory
 from service.store.db import ReadOnlySession, make_engine, make_sessionmaker, session_scope, upgrade
-from service.store.models import STREAMS, Lab, Location, WasteContainer, WasteEntry, WasteEntryElement
+from service.store.models import Lab, Location, WasteContainer, WasteEntry, WasteEntryElement
+from service.vocab import STREAMS
 from tests.conftest import make_app, make_user
 
 
