@@ -137,14 +137,12 @@ def _count(seeded, client, path: str, **kwargs) -> tuple[int, object]:
     return len(seeded["statements"]), response
 
 
-# path, how many rows the seeded list holds at least (on one page where the list pages)
+# path, how many rows the seeded list holds at least; every list asks for its largest page (limit 500)
 API_LISTS = [
-    ("/labs?limit=1000", ROWS), ("/locations?limit=1000", ROWS), ("/substances?limit=1000", 40),
-    ("/stocks?limit=1000", ROWS), ("/mixtures?limit=1000", ROWS), ("/procedures?limit=1000", ROWS),
-    ("/review_queue", ROWS // 2), ("/runs", ROWS), ("/waste_containers", ROWS),
+    ("/labs", ROWS), ("/locations", ROWS), ("/substances", 40), ("/stocks", ROWS), ("/mixtures", ROWS),
+    ("/procedures", ROWS), ("/review_queue", ROWS // 2), ("/runs", ROWS), ("/waste_containers", ROWS),
     ("/waste_containers/{container}/entries", ROWS), ("/tokens", ROWS), ("/users", ROWS),
-    ("/audit_events?limit=1000", ROWS), ("/procedures/{procedure}/revisions", 1),
-    ("/procedures/{procedure}/decisions", 2),
+    ("/audit_events", ROWS), ("/procedures/{procedure}/revisions", 1), ("/procedures/{procedure}/decisions", 2),
 ]
 PAGES = ["/", "/stocks", "/mixtures", "/procedures", "/review", "/waste", "/waste/{container}"]
 
@@ -153,10 +151,9 @@ PAGES = ["/", "/stocks", "/mixtures", "/procedures", "/review", "/waste", "/wast
 def test_api_lists_cost_a_fixed_handful_of_statements(seeded, path, rows):
     client = seeded["app"].test_client()
     headers = {"Authorization": f"Bearer {seeded['token']}"}
-    count, response = _count(seeded, client, f"/api/v1{path}", headers=headers)
+    count, response = _count(seeded, client, f"/api/v1{path}?limit=500", headers=headers)
     body = response.get_json()
-    items = body["items"] if isinstance(body, dict) else body
-    assert len(items) >= rows, (path, len(items))
+    assert body["total"] >= rows and len(body["items"]) == min(body["total"], 500), (path, body["total"])
     assert count <= HANDFUL, f"{path}: {count} statements\n{_summary(seeded['statements'])}"
 
 
