@@ -27,6 +27,7 @@ def create_app(test_config: Optional[Mapping[str, Any]] = None) -> Flask:
     from service import appdata, auth, documents
     from service.api import bp as api_bp
     from service.api import errors
+    from service.documents.routes import bp as documents_bp
     from service.store import db
     from service.web import bp as web_bp
 
@@ -36,6 +37,7 @@ def create_app(test_config: Optional[Mapping[str, Any]] = None) -> Flask:
     errors.init_app(app)
     auth.init_app(app)
     app.register_blueprint(api_bp)
+    app.register_blueprint(documents_bp)  # under /api/v1 too: tokens, JSON errors, in the OpenAPI document
     app.register_blueprint(web_bp)
     return app
 

@@ -14,6 +14,7 @@ from typing import Optional
 from flask import Flask, current_app, g, redirect, request, session, url_for
 
 from service.errors import CsrfFailed, Forbidden, Unauthenticated
+from service.operations import is_api_path
 from service.permissions import LAB_SCOPED_ROLES, MATRIX, PUBLIC
 from service.store import identity
 from service.store.db import get_session
@@ -57,7 +58,7 @@ def sign_out() -> None:
 
 def _identify() -> Optional[User]:
     db = get_session()
-    if request.path.startswith("/api/"):
+    if is_api_path(request.path):
         header = request.headers.get("Authorization", "")
         scheme, _, secret = header.partition(" ")
         if scheme.lower() != "bearer" or not secret:
@@ -72,7 +73,7 @@ def _authorize():
     endpoint = request.endpoint
     if endpoint is None:  # no such route: the 404/405 handler answers
         return None
-    is_page = not request.path.startswith("/api/")
+    is_page = not is_api_path(request.path)
     if is_page and request.method == "POST":
         sent = request.form.get("csrf_token", "")
         if not sent or not hmac.compare_digest(sent, session.get("csrf", "")):

@@ -1,4 +1,8 @@
-"""The ``dotledger`` command line."""
+"""The ``dotledger`` command line.
+
+The console script is ``service.console:main``: this group with the commands of the other
+top-layer packages added (``print`` from ``service.documents.commands``).
+"""
 
 from __future__ import annotations
 
@@ -55,12 +59,16 @@ def _init(app) -> tuple[int, int]:
 
 @click.group()
 @click.version_option(package_name="dotledger")
-def main() -> None:
+@click.pass_context
+def main(context: click.Context) -> None:
     """dotledger: inventory, mass balance and waste records for nanocrystal labs.
 
     Suggestions only: classification and approval rest with local regulations and the
     site safety officer.
     """
+    # Commands added from other layers (service.console wires `print` from service.documents)
+    # start the application with this, as the commands here do, instead of importing it.
+    context.obj = _app
 
 
 @main.command()
@@ -339,46 +347,3 @@ def estimate(**options) -> None:
     for row in result["elements"]:
         click.echo(f"  {row['element']:<2} {row['mass_mg']:10.3f} mg  (± {100 * row['relative_uncertainty']:.0f} %)")
     click.echo(result["caution"])
-
-
-@main.group(name="print")
-def print_group() -> None:
-    """Write a printed document (PDF): a risk assessment or a waste manifest."""
-
-
-def _print_document(kind: str, ident: int, output: Path | None) -> None:
-    from service import documents
-    from service.store import inventory
-    from service.store.db import get_session
-    from service.store.models import Procedure, WasteContainer
-
-    app = _app()
-    model, build = (Procedure, documents.assessment_for) if kind == "assessment" else (WasteContainer,
-                                                                                        documents.manifest_for)
-    with app.test_request_context():  # the session ends with the context, before rendering
-        try:
-            draft = build(inventory.get(get_session(), model, ident))
-        except LookupError as exc:
-            raise click.ClickException(str(exc)) from None
-    doc = draft.render()
-    pdf = doc.pdf()
-    target = output or Path(f"{doc.filename}.pdf")
-    target.write_bytes(pdf)
-    click.echo(str(target))
-    click.echo(f"SHA-256 {doc.sha256}")
-
-
-@print_group.command(name="assessment")
-@click.argument("ident", type=int)
-@click.option("--output", type=click.Path(dir_okay=False, path_type=Path), help="PDF file to write.")
-def print_assessment(ident: int, output: Path | None) -> None:
-    """Write the risk-assessment sheet of procedure IDENT as PDF; print the path and the data SHA-256."""
-    _print_document("assessment", ident, output)
-
-
-@print_group.command(name="manifest")
-@click.argument("ident", type=int)
-@click.option("--output", type=click.Path(dir_okay=False, path_type=Path), help="PDF file to write.")
-def print_manifest(ident: int, output: Path | None) -> None:
-    """Write the waste manifest of container IDENT as PDF; print the path and the data SHA-256."""
-    _print_document("manifest", ident, output)

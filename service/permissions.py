@@ -80,10 +80,10 @@ MATRIX: dict[str, frozenset[str]] = {
     "api.request_pickup_waste_container": frozenset({"lab_manager", "safety_officer", "admin"}),
     "api.collect_waste_container": frozenset({"safety_officer", "admin"}),
     # printed documents (risk assessment, waste manifest): read-only, everyone; researchers lab-scoped
-    "api.procedure_assessment_pdf": EVERYONE,
-    "api.procedure_assessment_html": EVERYONE,
-    "api.waste_container_manifest_pdf": EVERYONE,
-    "api.waste_container_manifest_html": EVERYONE,
+    "documents.procedure_assessment_pdf": EVERYONE,
+    "documents.procedure_assessment_html": EVERYONE,
+    "documents.waste_container_manifest_pdf": EVERYONE,
+    "documents.waste_container_manifest_html": EVERYONE,
     # pages
     "web.overview": EVERYONE,
     "web.stocks": EVERYONE,

@@ -76,3 +76,16 @@ def test_html_errors_for_pages(sqlite_url, monkeypatch):
 def test_import_of_a_missing_file_is_a_clear_error(tmp_path):
     result = CliRunner().invoke(main, ["import-inventory", str(tmp_path / "nope.csv")])
     assert result.exit_code == 2 and "does not exist" in result.output
+
+
+def test_the_console_script_lists_every_command():
+    # The installed `dotledger` is pyproject's console script; its commands are those DEVELOPERS.md
+    # "Layout" lists, `print` among them although service.documents, not service.cli, defines it.
+    from importlib.metadata import entry_points
+
+    (script,) = entry_points(group="console_scripts", name="dotledger")
+    result = CliRunner().invoke(script.load(), ["--help"])
+    assert result.exit_code == 0, result.output
+    listed = set(re.findall(r"^  ([a-z][a-z-]*) ", result.output.split("Commands:")[1], re.M))
+    assert listed == {"init", "demo", "serve", "import-inventory", "add-user", "audit-verify", "preview",
+                      "report", "export", "estimate", "print"}

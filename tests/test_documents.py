@@ -19,7 +19,7 @@ import pytest
 from click.testing import CliRunner
 from pypdf import PdfReader
 
-import service.cli
+import service.console
 from service.documents import canonical_json, data_sha256
 from service.documents.render import render_html
 from tests.conftest import Api, make_app, make_user
@@ -49,7 +49,7 @@ def demo(tmp_path_factory):
     url = f"sqlite:///{path}"
     mp = pytest.MonkeyPatch()
     mp.setenv("DOTLEDGER_DATABASE_URL", url)
-    result = CliRunner().invoke(service.cli.main, ["demo"])
+    result = CliRunner().invoke(service.console.main, ["demo"])
     assert result.exit_code == 0, result.output
     from service.resources import RULES_DIR
 
@@ -229,11 +229,11 @@ def test_cli_print_writes_pdf_and_hash(demo, tmp_path):
     app, api, _ = demo
     procs, _ = _ids(api)
     target = tmp_path / "ra.pdf"
-    result = CliRunner().invoke(service.cli.main, ["print", "assessment", str(procs["CdSe/ZnS core-shell growth"]),
-                                                   "--output", str(target)])
+    result = CliRunner().invoke(service.console.main, ["print", "assessment", str(procs["CdSe/ZnS core-shell growth"]),
+                                                       "--output", str(target)])
     assert result.exit_code == 0, result.output
     digest = re.search(r"SHA-256 ([0-9a-f]{64})", result.output).group(1)
     assert str(target) in result.output
     assert digest in _text(target.read_bytes())[1][0]
-    missing = CliRunner().invoke(service.cli.main, ["print", "manifest", "99999"])
+    missing = CliRunner().invoke(service.console.main, ["print", "manifest", "99999"])
     assert missing.exit_code != 0

@@ -4,16 +4,16 @@ The layers, lowest first (../shared/DESIGN.md "Layering", DEVELOPERS.md "Layout"
 
     core       chem, nano, balance, rules, datafiles, resources,  pure: no Flask, no database
                vocab (the shared vocabularies)
-    shared     errors, config, schemas, permissions, estimates    plain modules on the core
+    shared     errors, config, schemas, permissions, estimates,   plain modules on the core
+               operations (the /api/v1 prefix, @operation)
     store      store/                                              SQLAlchemy models and service functions
     app        appdata (rule packs, catalogue), auth               what every request needs
     present    present/                                            records -> what people see
-    documents  documents/                                          printed documents
-    top        api/, web/, cli                                     the ways in; none imports another
-    root       app (create_app)                                    wires everything; only the CLI imports it
+    top        api/, web/, documents/, cli                         the ways in; none imports another
+    root       app (create_app), console (the console script)      wires everything; only the CLI imports app
 
 A module may import from its own layer and the layers below, never from one above. The top
-three never import each other. The pure modules of documents (assessment, manifest, render,
+four never import each other. The pure modules of documents (assessment, manifest, render,
 controls) import only the core. Imports inside functions count as much as those at the top.
 """
 
@@ -29,13 +29,12 @@ SERVICE = ROOT / "service"
 
 LAYERS = {
     "core": {"chem", "nano", "balance", "rules", "datafiles", "resources", "vocab"},
-    "shared": {"errors", "config", "schemas", "permissions", "estimates"},
+    "shared": {"errors", "config", "schemas", "permissions", "estimates", "operations"},
     "store": {"store"},
     "app": {"appdata", "auth"},
     "present": {"present"},
-    "documents": {"documents"},
-    "top": {"api", "web", "cli"},
-    "root": {"app"},
+    "top": {"api", "web", "documents", "cli"},
+    "root": {"app", "console"},
 }
 ORDER = list(LAYERS)
 PURE_DOCUMENTS = {"service.documents.assessment", "service.documents.manifest", "service.documents.render",
@@ -109,8 +108,8 @@ def _violations(module: str) -> list[str]:
         theirs = layer_of(target)
         if theirs is None:
             bad.append(f"{target} (not in any layer)")
-        elif theirs == "root" and module == "service.cli":
-            continue  # the command line starts the application
+        elif target == "service.app" and module == "service.cli":
+            continue  # the command line starts the application (and hands the starter to wired-in commands)
         elif ORDER.index(theirs) > rank:
             bad.append(f"{target} (up: {own} -> {theirs})")
         elif own == "top" and theirs == "top" and _component(target) != _component(module):
@@ -202,7 +201,8 @@ def test_the_scan_sees_every_layer():
     seen = {layer_of(m) for m in MODULES}
     assert set(ORDER) <= seen
     assert {"service.chem.formula", "service.rules.measures", "service.store.waste", "service.present.waste",
-            "service.api.waste", "service.web.waste", "service.documents.sources", "service.cli"} <= set(MODULES)
+            "service.api.waste", "service.web.waste", "service.documents.sources", "service.documents.routes",
+            "service.documents.commands", "service.cli", "service.console", "service.operations"} <= set(MODULES)
 
 
 def test_the_scan_catches_an_upward_import(monkeypatch, tmp_path):
@@ -213,3 +213,39 @@ def test_the_scan_catches_an_upward_import(monkeypatch, tmp_path):
     monkeypatch.setitem(MODULES, "service.chem.bad", fake)
     bad = _violations("service.chem.bad")
     assert any(b.startswith("service.api ") for b in bad) and any(b.startswith("flask") for b in bad)
+
+
+@pytest.mark.parametrize("module, source, expected", [
+    # the top four never import each other, at the top or inside a function
+    ("service.api.bad", "from service import documents\n", "service.documents (sideways: api -> documents)"),
+    ("service.api.bad", "def f():\n    from service.documents.routes import bp\n",
+     "service.documents.routes (sideways: api -> documents)"),
+    ("service.documents.bad", "from service.api.openapi import build_document\n",
+     "service.api.openapi (sideways: documents -> api)"),
+    ("service.documents.bad", "import service.cli\n", "service.cli (sideways: documents -> cli)"),
+    ("service.cli", "from service.documents.commands import print_group\n",
+     "service.documents.commands (sideways: cli -> documents)"),
+    ("service.web.bad", "from service.documents import assessment_for\n", "service.documents (sideways: web -> documents)"),
+    # only the root wires them; the documents (a way in) do not start the application themselves
+    ("service.documents.bad", "from service.app import create_app\n", "service.app (up: top -> root)"),
+    ("service.documents.bad", "from service import console\n", "service.console (up: top -> root)"),
+    # the presentation layer is below the documents
+    ("service.present.bad", "from service.documents.sources import manifest_for\n",
+     "service.documents.sources (up: present -> top)"),
+])
+def test_the_scan_catches_a_sideways_or_upward_import(monkeypatch, tmp_path, module, source, expected):
+    fake = tmp_path.joinpath(*module.split(".")).with_suffix(".py")
+    fake.parent.mkdir(parents=True, exist_ok=True)
+    fake.write_text(source, encoding="utf-8")
+    monkeypatch.setitem(MODULES, module, fake)
+    assert expected in _violations(module)
+
+
+def test_a_pure_document_module_imports_only_the_core(monkeypatch, tmp_path):
+    fake = tmp_path / "service" / "documents" / "manifest.py"
+    fake.parent.mkdir(parents=True)
+    fake.write_text("from service.present.waste import dump_container\nfrom service.chem import formula\n",
+                    encoding="utf-8")
+    monkeypatch.setitem(MODULES, "service.documents.manifest", fake)
+    assert _violations("service.documents.manifest") == [
+        "service.present.waste (a pure document module imports only the core)"]

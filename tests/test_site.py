@@ -10,7 +10,7 @@ import pytest
 from click.testing import CliRunner
 from pypdf import PdfReader
 
-from service.cli import main
+from service.console import main  # the console script: the command line with `print` wired in
 from service.errors import InvalidInput
 from service.store.db import session_scope
 from service.store.site import NAME_MAX_LENGTH, UNNAMED, set_site_name, site_name

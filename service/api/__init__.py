@@ -1,9 +1,15 @@
-"""JSON API under /api/v1: one blueprint, one module per resource area."""
+"""JSON API under /api/v1: one blueprint, one module per resource area.
+
+The printed documents serve under the same prefix from a blueprint of their own
+(``service.documents.routes``); ``service.operations.is_api_path`` treats both alike.
+"""
 
 from flask import Blueprint
 
-bp = Blueprint("api", __name__, url_prefix="/api/v1")
+from service.operations import API_PREFIX
 
-from service.api import documents, identity, inventory, meta, procedures, reports, runs, waste  # noqa: E402,F401  (routes register on bp)
+bp = Blueprint("api", __name__, url_prefix=API_PREFIX)
+
+from service.api import identity, inventory, meta, procedures, reports, runs, waste  # noqa: E402,F401  (routes register on bp)
 
 __all__ = ["bp"]

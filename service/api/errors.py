@@ -1,6 +1,7 @@
 """The one place where errors become HTTP answers.
 
-API paths answer ``{"error": {"code", "message", "details"}}``; pages answer HTML.
+API paths (``service.operations.is_api_path``: the API's and the documents' routes) answer
+``{"error": {"code", "message", "details"}}``; pages answer HTML.
 Nothing reaches the client as a bare 500: an unexpected error is logged, rolled back and
 answered with a generic message.
 """
@@ -19,6 +20,7 @@ from service.chem.units import QuantityError
 from service.datafiles import DataFileError
 from service.nano import NanoError
 from service.errors import Blocked, Conflict, CsrfFailed, Forbidden, InvalidInput, NotFound, Unauthenticated
+from service.operations import is_api_path
 
 __all__ = ["ApiError", "error_response", "init_app"]
 
@@ -34,7 +36,7 @@ class ApiError(Exception):
 
 
 def _wants_json() -> bool:
-    if request.path.startswith("/api/"):
+    if is_api_path(request.path):
         return True
     best = request.accept_mimetypes.best_match(["application/json", "text/html"])
     return best == "application/json" and request.accept_mimetypes[best] > request.accept_mimetypes["text/html"]

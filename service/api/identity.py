@@ -8,9 +8,9 @@ from service import schemas
 from service.api import bp
 from service.api.errors import ApiError
 from service.api.inventory import json_body, page_answer
-from service.api.openapi import operation
 from service.api.responses import AuditEvent, IssuedToken, Token, User as UserAnswer
 from service.auth import current_user, login_limits
+from service.operations import operation
 from service.present.identity import dump_event, dump_token, dump_user
 from service.store import audit, identity, inventory
 from service.store.db import get_session

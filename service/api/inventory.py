@@ -14,8 +14,8 @@ from pydantic import BaseModel
 from service import schemas
 from service.api import bp, responses
 from service.api.errors import ApiError
-from service.api.openapi import operation
 from service.auth import check_lab, lab_scope
+from service.operations import operation
 from service.present.serialize import dump
 from service.schemas import ListQuery
 from service.store import inventory

@@ -6,8 +6,9 @@ from flask import current_app, jsonify
 
 from service import permissions
 from service.api import bp
-from service.api.openapi import build_document, operation
+from service.api.openapi import build_document
 from service.api.responses import Index
+from service.operations import operation
 
 
 def openapi_document() -> dict:

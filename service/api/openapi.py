@@ -1,5 +1,8 @@
 """The OpenAPI 3.1 document of /api/v1, generated from what each view declares with ``@operation``.
 
+The decorator lives in ``service.operations`` (below every blueprint that serves under /api/v1:
+``api`` and ``documents``); the document covers every route under the prefix, whichever blueprint.
+
 A view names the pydantic models it validates its body and query string with, its success status
 and the shape of its answer, and the 4xx answers particular to it (a conflict, a lab check). The
 answers every route shares follow from the route and the permission matrix: 401 unless the route is
@@ -11,46 +14,17 @@ and tests/test_openapi.py fails.
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
 from http import HTTPStatus
-from typing import Callable, Optional, Union
+from typing import Callable, Optional
 
 from pydantic import BaseModel
 
 from service.api.responses import Error
+from service.operations import JSON, Operation, declared
 
-__all__ = ["Operation", "operation", "declared", "build_document"]
+__all__ = ["build_document"]
 
 REF = "#/components/schemas/{model}"
-JSON = "application/json"
-
-
-@dataclass(frozen=True)
-class Operation:
-    body: Optional[type[BaseModel]] = None  # the model the view validates its JSON body with
-    body_required: bool = True
-    query: Optional[type[BaseModel]] = None  # the model the view validates its query string with
-    response: Optional[type[BaseModel]] = None  # the shape of the success answer (of one item if paged)
-    paged: bool = False  # the answer is {"items", "total", "limit", "offset"}
-    status: Union[int, tuple[int, ...]] = 200
-    errors: tuple[int, ...] = ()  # 4xx answers beyond those the route implies
-    media: tuple[str, ...] = (JSON,)
-    summary: Optional[str] = None
-
-
-def operation(**spec) -> Callable:
-    """Record ``Operation(**spec)`` on the view for the document builder; the view is unchanged."""
-    described = Operation(**spec)
-
-    def mark(view: Callable) -> Callable:
-        view.openapi_operation = described
-        return view
-
-    return mark
-
-
-def declared(view: Callable) -> Optional[Operation]:
-    return getattr(view, "openapi_operation", None)
 
 
 class _Components:

@@ -8,10 +8,10 @@ from pydantic import Field
 from service import schemas
 from service.api import bp
 from service.api.inventory import json_body, page_answer
-from service.api.openapi import operation
 from service.api.responses import Decision, Preview, Procedure as ProcedureAnswer, ReviewItem
 from service.appdata import active_rules
 from service.auth import check_lab, current_user, lab_scope
+from service.operations import operation
 from service.present.procedures import CAUTION, dump_procedure
 from service.present.serialize import element_rows_from, finding
 from service.store import inventory, procedures

@@ -15,9 +15,9 @@ from flask import Response, jsonify, request
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 from service.api import bp
-from service.api.openapi import operation
 from service.api.responses import Report
 from service.auth import lab_scope
+from service.operations import operation
 from service.schemas import ElementSymbol
 from service.store import ledger
 from service.store.db import get_session

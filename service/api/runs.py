@@ -10,10 +10,10 @@ from service import schemas
 from service.api import bp
 from service.api.errors import ApiError
 from service.api.inventory import json_body, page_answer
-from service.api.openapi import operation
 from service.api.responses import Balance, Estimate, Run as RunAnswer
 from service.appdata import active_rules
 from service.auth import check_lab, current_user, lab_scope
+from service.operations import operation
 from service.present.runs import balance_elements, balance_tolerance, dump_balance, dump_run
 from service.store import inventory, runs
 from service.store.db import get_session

@@ -10,9 +10,9 @@ from pydantic import Field
 from service import schemas
 from service.api import bp
 from service.api.inventory import json_body, page_answer
-from service.api.openapi import operation
 from service.api.responses import WasteContainer as ContainerAnswer, WasteEntry as EntryAnswer
 from service.auth import check_lab, current_user, lab_scope
+from service.operations import operation
 from service.present.waste import dump_container, dump_entry
 from service.store import inventory, waste
 from service.store.db import get_session

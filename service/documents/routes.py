@@ -1,4 +1,8 @@
-"""Printed documents: risk-assessment sheets and waste manifests as PDF or HTML preview.
+"""Printed documents over HTTP: risk-assessment sheets and waste manifests as PDF or HTML preview.
+
+A blueprint of its own under the API's prefix (``/api/v1``), registered by ``service.app``; being
+under the prefix, its requests take bearer tokens and answer JSON errors like the API's
+(``service.operations.is_api_path``), and its views appear in the OpenAPI document.
 
 Lab-scoped like the JSON reads. The data is gathered in the request's session, which then
 ends; the HTML and the PDF are made after it (no transaction open while WeasyPrint works).
@@ -8,15 +12,19 @@ printed in its footer.
 
 from __future__ import annotations
 
-from flask import Response
+from flask import Blueprint, Response
 
-from service import documents
-from service.api import bp
-from service.api.openapi import operation
 from service.auth import check_lab
+from service.documents.render import Draft
+from service.documents.sources import assessment_for, manifest_for
+from service.operations import API_PREFIX, operation
 from service.store import inventory
 from service.store.db import end_session, get_session
 from service.store.models import Procedure, WasteContainer
+
+__all__ = ["bp"]
+
+bp = Blueprint("documents", __name__, url_prefix=API_PREFIX)
 
 
 def _visible(model, ident: int):
@@ -25,7 +33,7 @@ def _visible(model, ident: int):
     return record
 
 
-def _answer(draft: documents.Draft, fmt: str) -> Response:
+def _answer(draft: Draft, fmt: str) -> Response:
     end_session()
     doc = draft.render()
     headers = {"X-Document-SHA256": doc.sha256, "X-Document-Id": doc.document_id}
@@ -39,25 +47,25 @@ def _answer(draft: documents.Draft, fmt: str) -> Response:
 @operation(media=("application/pdf",), errors=(403,))
 def assessment_pdf(ident: int):
     """The procedure's risk-assessment sheet as PDF."""
-    return _answer(documents.assessment_for(_visible(Procedure, ident)), "pdf")
+    return _answer(assessment_for(_visible(Procedure, ident)), "pdf")
 
 
 @bp.get("/procedures/<int:ident>/assessment.html", endpoint="procedure_assessment_html")
 @operation(media=("text/html",), errors=(403,))
 def assessment_html(ident: int):
     """The procedure's risk-assessment sheet as HTML (preview)."""
-    return _answer(documents.assessment_for(_visible(Procedure, ident)), "html")
+    return _answer(assessment_for(_visible(Procedure, ident)), "html")
 
 
 @bp.get("/waste_containers/<int:ident>/manifest.pdf", endpoint="waste_container_manifest_pdf")
 @operation(media=("application/pdf",), errors=(403,))
 def manifest_pdf(ident: int):
     """The container's waste manifest as PDF."""
-    return _answer(documents.manifest_for(_visible(WasteContainer, ident)), "pdf")
+    return _answer(manifest_for(_visible(WasteContainer, ident)), "pdf")
 
 
 @bp.get("/waste_containers/<int:ident>/manifest.html", endpoint="waste_container_manifest_html")
 @operation(media=("text/html",), errors=(403,))
 def manifest_html(ident: int):
     """The container's waste manifest as HTML (preview)."""
-    return _answer(documents.manifest_for(_visible(WasteContainer, ident)), "html")
+    return _answer(manifest_for(_visible(WasteContainer, ident)), "html")
