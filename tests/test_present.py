@@ -160,6 +160,27 @@ def test_documents_render_after_the_session_has_ended(site, app, monkeypatch):
     assert all(session is None and checked_out == 0 for _, session, checked_out in seen), seen
 
 
+@pytest.mark.parametrize("fmt, writer", [("csv", "to_csv_bytes"), ("xlsx", "to_xlsx_bytes")])
+def test_reports_serialise_after_the_session_has_ended(site, app, monkeypatch, fmt, writer):
+    from service.store import ledger
+
+    _aqueous_cd(site, 0.0)  # one entry, so the report has a row
+    engine = app.extensions["dotledger.engine"]
+    seen = []
+    original = getattr(ledger, writer)
+
+    def wrapped(*args, **kwargs):
+        seen.append((g.get("db_session"), engine.pool.checkedout()))
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(ledger, writer, wrapped)
+    api = site["admin"]
+    response = api.client.get(f"/api/v1/reports/waste?by=element&format={fmt}",
+                              headers={"Authorization": f"Bearer {api.token}"})
+    assert response.status_code == 200 and len(response.data) > 0
+    assert seen == [(None, 0)]
+
+
 def test_rule_packs_and_catalogue_load_once_per_process(sqlite_url, rules_dir):
     from service.app import create_app
 

@@ -20,7 +20,7 @@ from service.auth import lab_scope
 from service.operations import operation
 from service.schemas import ElementSymbol
 from service.store import ledger
-from service.store.db import get_session
+from service.store.db import end_session, get_session
 
 XLSX = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
 
@@ -95,6 +95,7 @@ def report_waste():
     """Waste leaving: element masses into waste, grouped as asked."""
     query = _parse(WasteQuery)
     frame = ledger.run_report(get_session(), "waste", query.by, lab_ids=lab_scope(), **query.filters())
+    end_session()  # the frame is plain data: serialise it with no transaction open
     return render(frame, query)
 
 
@@ -104,4 +105,5 @@ def report_inventory():
     """Inventory on hand: element masses in active stocks and mixtures, grouped as asked."""
     query = _parse(InventoryQuery)
     frame = ledger.run_report(get_session(), "inventory", query.by, lab_ids=lab_scope(), **query.filters())
+    end_session()  # the frame is plain data: serialise it with no transaction open
     return render(frame, query)
