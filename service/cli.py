@@ -158,7 +158,7 @@ def import_inventory_command(file: Path, dry_run: bool, report_path: Path | None
     for row in report.rejected:
         click.echo(f"line {row.line} ({row.label or 'no label'}): {row.reason}")
     if report_path is not None:
-        report.to_frame().to_csv(report_path, index=False)
+        report_path.write_bytes(report.to_csv_bytes())
     verb = "would import" if dry_run else "imported"
     click.echo(
         f"{report.rows} row(s) read: {verb} {report.imported}, rejected {len(report.rejected)}"

@@ -22,6 +22,7 @@ from service.chem.content import substance_element_masses_ug
 from service.errors import InvalidInput
 from service.schemas import LocationIn, StockIn
 from service.store import inventory
+from service.store.ledger import to_csv_bytes
 from service.store.models import Lab, Location, Stock, Substance
 
 __all__ = ["ImportReport", "Rejected", "REQUIRED_COLUMNS", "read_table", "import_inventory"]
@@ -70,6 +71,10 @@ class ImportReport:
 
     def to_frame(self) -> pd.DataFrame:
         return pd.DataFrame([r.__dict__ for r in self.rejected], columns=["line", "label", "reason"])
+
+    def to_csv_bytes(self) -> bytes:
+        """The rejected rows as UTF-8 CSV, text that looks like a formula neutralised (the cells come from the file)."""
+        return to_csv_bytes(self.to_frame(), caution=None)
 
 
 def read_table(path: Path | str) -> pd.DataFrame:

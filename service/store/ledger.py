@@ -28,6 +28,7 @@ from service.store.models import (
     WasteEntry,
     WasteEntryElement,
 )
+from service.store.sheets import neutralise_frame
 
 __all__ = ["CAUTION", "UNITS", "UnknownGroupKey", "Report", "REPORTS", "waste_by", "inventory_on_hand",
            "run_report", "to_csv_bytes", "to_xlsx_bytes"]
@@ -177,17 +178,22 @@ def run_report(session: Session, name: str, by: Optional[Sequence[str]] = None, 
 def to_csv_bytes(df: pd.DataFrame, *, caution: Optional[str] = CAUTION) -> bytes:
     """UTF-8 CSV; the first line is ``# <caution>`` unless ``caution`` is None.
 
+    Text a spreadsheet would read as a formula gets a leading ``'`` (``sheets.neutralise_cell``).
     Read it back with ``pd.read_csv(buffer, skiprows=1)``.
     """
     head = f"# {caution}\n" if caution else ""
-    return (head + df.to_csv(index=False, lineterminator="\n")).encode("utf-8")
+    return (head + neutralise_frame(df).to_csv(index=False, lineterminator="\n")).encode("utf-8")
 
 
 def to_xlsx_bytes(df: pd.DataFrame, *, caution: Optional[str] = CAUTION, sheet: str = "report") -> bytes:
-    """An XLSX workbook: the table on the first sheet, the caution and units on a sheet "about"."""
+    """An XLSX workbook: the table on the first sheet, the caution and units on a sheet "about".
+
+    Text cells are neutralised as in the CSV: openpyxl stores any text that starts with ``=`` as a
+    formula, and after ``neutralise_frame`` none does, so every text cell is stored as text.
+    """
     buffer = io.BytesIO()
     with pd.ExcelWriter(buffer, engine="openpyxl") as writer:
-        df.to_excel(writer, sheet_name=sheet, index=False)
+        neutralise_frame(df).to_excel(writer, sheet_name=sheet, index=False)
         notes = [caution] if caution else []
         notes += [f"{column}: {unit}" for column, unit in UNITS.items()]
         pd.DataFrame({"about": notes}).to_excel(writer, sheet_name="about", index=False)
