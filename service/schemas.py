@@ -6,13 +6,21 @@ import datetime as dt
 from decimal import Decimal
 from typing import Annotated, Literal, Optional
 
-from pydantic import AfterValidator, BaseModel, ConfigDict, Field, SecretStr, field_validator, model_validator
+import unicodedata
+
+from pydantic import AfterValidator, BaseModel, BeforeValidator, ConfigDict, Field, SecretStr, field_validator, model_validator
 
 from service import vocab
 from service.chem.substances import Substance as CatalogueSubstance
+from service.chem.units import LIMITS, MAX_AMOUNT_CHARS, check_bounds, parse_quantity
 
 __all__ = [
     "ElementSymbol",
+    "Id",
+    "Label",
+    "Text",
+    "Density",
+    "MassOrVolume",
     "LabIn",
     "LabPatch",
     "LocationIn",
@@ -59,77 +67,178 @@ LocationKind = Literal[vocab.LOCATION_KINDS]
 ElementSymbol = Annotated[str, AfterValidator(vocab.element_symbol)]
 
 
+# --- bounded field types -----------------------------------------------------------------------
+
+# Ids are SQL BIGINTs: 1 to 2^63 - 1.
+Id = Annotated[int, Field(ge=1, le=2**63 - 1)]
+
+
+# Hyphen (U+2010) and non-breaking hyphen (U+2011), which NFKC keeps, read as "-" in a label.
+_HYPHENS = {0x2010: "-", 0x2011: "-"}
+
+
+def _plain_text(value: str, *, newlines: bool) -> str:
+    """NFKC-normalised text without control or format characters (zero-width, direction overrides)."""
+    value = unicodedata.normalize("NFKC", value)
+    if not newlines:
+        value = value.translate(_HYPHENS)
+    for char in value:
+        if newlines and char in "\n\r\t":
+            continue
+        if unicodedata.category(char) in ("Cc", "Cf"):
+            raise ValueError(f"contains the control or format character U+{ord(char):04X}, which is not allowed")
+    return value
+
+
+# A label or name (one line); uniqueness of labels is checked case-folded by the store.
+Label = Annotated[str, AfterValidator(lambda v: _plain_text(v, newlines=False))]
+# Free text (notes, descriptions): line breaks and tabs allowed.
+Text = Annotated[str, AfterValidator(lambda v: _plain_text(v, newlines=True))]
+
+
+def _amount(*kinds: str, example: str):
+    """An amount text of one of ``kinds``: at most MAX_AMOUNT_CHARS characters (checked before parsing),
+    within service.chem.units.LIMITS, and not below the smallest unit kept (1 µg, 1 µL)."""
+
+    def check(text: str) -> str:
+        check_bounds(parse_quantity(text, expect=kinds), text=text)
+        return text
+
+    bounds = "; ".join(f"{k} at most {LIMITS[k][0]}" for k in kinds if k in LIMITS)
+    return Annotated[str, Field(min_length=1, max_length=MAX_AMOUNT_CHARS,
+                                description=f'{" or ".join(kinds)} with unit, e.g. "{example}"; '
+                                            f"at most {MAX_AMOUNT_CHARS} characters; {bounds}"),
+                     AfterValidator(check)]
+
+
+MassOrVolume = _amount("mass", "volume", example="25 g")
+Mass = _amount("mass", example="2.5 mg")
+Volume = _amount("volume", example="4.0 mL")
+Molarity = _amount("molarity", example="0.2 mol/L")
+MassConcentration = _amount("density", example="12.5 mg/L")  # mass per volume
+
+
+def _not_text(value):
+    if isinstance(value, (str, bool)):
+        raise ValueError("must be a JSON number, not text or a boolean")
+    return value
+
+
+def _iso_date(value):
+    if not isinstance(value, (str, dt.date)):
+        raise ValueError("must be a date as text, YYYY-MM-DD")
+    return value
+
+
+# Dates arrive as ISO text in JSON; numbers as JSON numbers (strict mode refuses "1" and "yes").
+Day = Annotated[dt.date, BeforeValidator(_iso_date), Field(strict=False)]
+Fraction = Annotated[Decimal, BeforeValidator(_not_text), Field(strict=False, ge=0, le=1, allow_inf_nan=False)]
+# Densities of lab materials stay below 25 g/mL (osmium, the densest element, is 22.6 g/mL; from memory).
+Density = Annotated[float, Field(gt=0, le=25, description="g/mL, above 0 and at most 25")]
+Celsius = Annotated[float, Field(ge=-273.15, le=5000, description="°C, from -273.15 to 5000")]
+
+
 class _Body(BaseModel):
-    model_config = ConfigDict(extra="forbid", str_strip_whitespace=True)
+    """A JSON body: strict types (no "1" for 1, no "yes" for true), no NaN or Infinity, no unknown keys."""
+
+    model_config = ConfigDict(extra="forbid", str_strip_whitespace=True, strict=True, allow_inf_nan=False)
+
+
+class _Query(BaseModel):
+    """Query parameters arrive as text: converted (lax), but unknown names and ill-typed values are refused."""
+
+    model_config = ConfigDict(extra="forbid", str_strip_whitespace=True, allow_inf_nan=False)
 
 
 class LabIn(_Body):
-    code: str = Field(min_length=1, max_length=40)
-    name: str = Field(min_length=1, max_length=200)
-    building: Optional[str] = Field(default=None, max_length=100)
+    code: Label = Field(min_length=1, max_length=40)
+    name: Label = Field(min_length=1, max_length=200)
+    building: Optional[Label] = Field(default=None, max_length=100)
 
 
 class LabPatch(_Body):
-    name: Optional[str] = Field(default=None, min_length=1, max_length=200)
-    building: Optional[str] = Field(default=None, max_length=100)
+    name: Optional[Label] = Field(default=None, min_length=1, max_length=200)
+    building: Optional[Label] = Field(default=None, max_length=100)
 
 
 class LocationIn(_Body):
-    lab_id: Optional[int] = None
-    building: str = Field(min_length=1, max_length=100)
-    room: str = Field(min_length=1, max_length=100)
-    storage: str = Field(min_length=1, max_length=200)
+    lab_id: Optional[Id] = None
+    building: Label = Field(min_length=1, max_length=100)
+    room: Label = Field(min_length=1, max_length=100)
+    storage: Label = Field(min_length=1, max_length=200)
     kind: LocationKind = "storage"
 
 
 class LocationPatch(_Body):
-    lab_id: Optional[int] = None
-    storage: Optional[str] = Field(default=None, min_length=1, max_length=200)
+    lab_id: Optional[Id] = None
+    storage: Optional[Label] = Field(default=None, min_length=1, max_length=200)
     kind: Optional[LocationKind] = None
 
 
 class SubstanceIn(CatalogueSubstance):
     """A locally added substance: the catalogue's own checks (formula, CAS, H-codes)."""
 
-    model_config = ConfigDict(extra="forbid", frozen=False, str_strip_whitespace=True)
-    source: str = Field(default="local entry — not from the shipped catalogue", min_length=3)
+    model_config = ConfigDict(extra="forbid", frozen=False, str_strip_whitespace=True, allow_inf_nan=False)
+    name: Label = Field(min_length=1, max_length=200)
+    synonyms: tuple[Annotated[Label, Field(max_length=200)], ...] = Field(default=(), max_length=50)
+    formula: str = Field(max_length=100)
+    cas: str = Field(max_length=12)
+    density_g_per_ml: Optional[Density] = None
+    flash_point_c: Optional[Celsius] = None
+    boiling_point_c: Optional[Celsius] = None
+    autoignition_c: Optional[Celsius] = None
+    source: Text = Field(default="local entry — not from the shipped catalogue", min_length=3, max_length=2000)
+    physical_source: Optional[Text] = Field(default=None, max_length=2000)
+
+    @model_validator(mode="before")
+    @classmethod
+    def _json_types(cls, data):
+        # The catalogue model converts loosely; a JSON body must give numbers as numbers and text as text.
+        if isinstance(data, dict):
+            for key in ("density_g_per_ml", "flash_point_c", "boiling_point_c", "autoignition_c"):
+                if data.get(key) is not None:
+                    _not_text(data[key])
+            for key in ("key", "name", "formula", "cas", "state", "source", "physical_source"):
+                if data.get(key) is not None and not isinstance(data[key], str):
+                    raise ValueError(f"{key}: must be text")
+        return data
 
 
 class SubstancePatch(_Body):
-    name: Optional[str] = Field(default=None, min_length=1)
-    density_g_per_ml: Optional[float] = Field(default=None, gt=0)
-    flash_point_c: Optional[float] = None
-    boiling_point_c: Optional[float] = None
-    source: Optional[str] = Field(default=None, min_length=3)
+    name: Optional[Label] = Field(default=None, min_length=1, max_length=200)
+    density_g_per_ml: Optional[Density] = None
+    flash_point_c: Optional[Celsius] = None
+    boiling_point_c: Optional[Celsius] = None
+    source: Optional[Text] = Field(default=None, min_length=3, max_length=2000)
 
 
 class StockIn(_Body):
-    label: str = Field(min_length=1, max_length=80)
-    substance_id: int
-    lab_id: int
-    location_id: int
-    amount: str = Field(description='mass or volume with unit, e.g. "25 g" or "500 mL"')
+    label: Label = Field(min_length=1, max_length=80)
+    substance_id: Id
+    lab_id: Id
+    location_id: Id
+    amount: MassOrVolume
     purity_percent: float = Field(default=100.0, gt=0, le=100)
-    density_g_per_ml: Optional[float] = Field(default=None, gt=0, description="overrides the catalogue density")
-    opened_on: Optional[dt.date] = None
-    expires_on: Optional[dt.date] = None
+    density_g_per_ml: Optional[Density] = Field(default=None, description="overrides the catalogue density")
+    opened_on: Optional[Day] = None
+    expires_on: Optional[Day] = None
 
 
 class StockPatch(_Body):
-    label: Optional[str] = Field(default=None, min_length=1, max_length=80)
-    location_id: Optional[int] = None
-    amount: Optional[str] = None
+    label: Optional[Label] = Field(default=None, min_length=1, max_length=80)
+    location_id: Optional[Id] = None
+    amount: Optional[MassOrVolume] = None
     purity_percent: Optional[float] = Field(default=None, gt=0, le=100)
-    density_g_per_ml: Optional[float] = Field(default=None, gt=0)
-    opened_on: Optional[dt.date] = None
-    expires_on: Optional[dt.date] = None
+    density_g_per_ml: Optional[Density] = None
+    opened_on: Optional[Day] = None
+    expires_on: Optional[Day] = None
 
 
 class ComponentIn(_Body):
-    substance_id: int
-    molarity: Optional[str] = Field(default=None, description='e.g. "0.2 mol/L"')
-    mass_fraction: Optional[Decimal] = Field(default=None, ge=0, le=1)
-    volume_fraction: Optional[Decimal] = Field(default=None, ge=0, le=1)
+    substance_id: Id
+    molarity: Optional[Molarity] = None
+    mass_fraction: Optional[Fraction] = None
+    volume_fraction: Optional[Fraction] = None
 
     @model_validator(mode="after")
     def _exactly_one(self) -> "ComponentIn":
@@ -139,23 +248,23 @@ class ComponentIn(_Body):
 
 
 class MixtureIn(_Body):
-    label: str = Field(min_length=1, max_length=80)
-    name: str = Field(min_length=1, max_length=200)
-    lab_id: int
-    location_id: int
-    volume: str = Field(description='total volume with unit, e.g. "10 mL"')
-    density_g_per_ml: Optional[float] = Field(default=None, gt=0)
-    components: list[ComponentIn] = Field(min_length=1)
-    prepared_on: Optional[dt.date] = None
-    expires_on: Optional[dt.date] = None
+    label: Label = Field(min_length=1, max_length=80)
+    name: Label = Field(min_length=1, max_length=200)
+    lab_id: Id
+    location_id: Id
+    volume: Volume
+    density_g_per_ml: Optional[Density] = None
+    components: list[ComponentIn] = Field(min_length=1, max_length=50)
+    prepared_on: Optional[Day] = None
+    expires_on: Optional[Day] = None
 
 
 class MixturePatch(_Body):
-    name: Optional[str] = Field(default=None, min_length=1, max_length=200)
-    location_id: Optional[int] = None
-    volume: Optional[str] = None
-    density_g_per_ml: Optional[float] = Field(default=None, gt=0)
-    expires_on: Optional[dt.date] = None
+    name: Optional[Label] = Field(default=None, min_length=1, max_length=200)
+    location_id: Optional[Id] = None
+    volume: Optional[Volume] = None
+    density_g_per_ml: Optional[Density] = None
+    expires_on: Optional[Day] = None
 
 
 Role = Literal[vocab.ROLES]
@@ -163,23 +272,23 @@ Role = Literal[vocab.ROLES]
 
 class UserIn(_Body):
     email: str = Field(pattern=r"^[^@\s]+@[^@\s]+\.[^@\s]+$", max_length=254)
-    display_name: str = Field(min_length=1, max_length=200)
+    display_name: Label = Field(min_length=1, max_length=200)
     role: Role
-    password: SecretStr = Field(min_length=12, description="at least 12 characters")
-    lab_ids: list[int] = []
+    password: SecretStr = Field(min_length=12, max_length=1000, description="12 to 1000 characters")
+    lab_ids: list[Id] = Field(default=[], max_length=1000)
 
 
 class UserPatch(_Body):
-    display_name: Optional[str] = Field(default=None, min_length=1, max_length=200)
+    display_name: Optional[Label] = Field(default=None, min_length=1, max_length=200)
     role: Optional[Role] = None
-    password: Optional[SecretStr] = Field(default=None, min_length=12)
-    lab_ids: Optional[list[int]] = None
+    password: Optional[SecretStr] = Field(default=None, min_length=12, max_length=1000)
+    lab_ids: Optional[list[Id]] = Field(default=None, max_length=1000)
 
 
 class TokenRequest(_Body):
     email: str = Field(min_length=3, max_length=254)
-    password: SecretStr
-    name: str = Field(default="api", min_length=1, max_length=100)
+    password: SecretStr = Field(max_length=1000)
+    name: Label = Field(default="api", min_length=1, max_length=100)
 
 
 # Every listing answers one page: ``limit`` records from ``offset``, beside the ``total`` that match.
@@ -187,7 +296,7 @@ PAGE_LIMIT_DEFAULT = 50
 PAGE_LIMIT_MAX = 500
 
 
-class PageQuery(_Body):
+class PageQuery(_Query):
     """The page of a listing the query string asks for (a larger or non-integer limit is refused)."""
 
     limit: int = Field(default=PAGE_LIMIT_DEFAULT, ge=1, le=PAGE_LIMIT_MAX,
@@ -199,9 +308,9 @@ class ListQuery(PageQuery):
     """Filters of the inventory listings (labs, locations, substances, stocks, mixtures)."""
 
     include_retired: bool = False
-    lab_id: Optional[int] = None
-    location_id: Optional[int] = None
-    substance_id: Optional[int] = None
+    lab_id: Optional[Id] = None
+    location_id: Optional[Id] = None
+    substance_id: Optional[Id] = None
     element: Optional[ElementSymbol] = None
 
 
@@ -221,14 +330,14 @@ class StepIn(_Body):
     operation: Operation
     temperature_c: Optional[float] = Field(default=None, ge=-196, le=1200)
     atmosphere: Optional[Atmosphere] = None
-    duration_min: Optional[float] = Field(default=None, ge=0)
-    note: Optional[str] = Field(default=None, max_length=2000)
+    duration_min: Optional[float] = Field(default=None, ge=0, le=100_000, description="minutes, 0 to 100 000 (about 10 weeks)")
+    note: Optional[Text] = Field(default=None, max_length=2000)
 
 
 class DrawIn(_Body):
-    stock_id: Optional[int] = None
-    mixture_id: Optional[int] = None
-    amount: str = Field(description='amount drawn at scale 1, e.g. "25.7 mg" or "4 mL"')
+    stock_id: Optional[Id] = None
+    mixture_id: Optional[Id] = None
+    amount: MassOrVolume = Field(description='amount drawn at scale 1, e.g. "25.7 mg" or "4 mL"')
 
     @model_validator(mode="after")
     def _one_source(self) -> "DrawIn":
@@ -238,15 +347,15 @@ class DrawIn(_Body):
 
 
 class WastePlanIn(_Body):
-    stream: str = Field(min_length=1, max_length=60, description="e.g. non-halogenated solvent with heavy metals")
-    contents: str = Field(min_length=1, max_length=2000)
-    expected_amount: Optional[str] = Field(default=None, max_length=60)
+    stream: Label = Field(min_length=1, max_length=60, description="e.g. non-halogenated solvent with heavy metals")
+    contents: Text = Field(min_length=1, max_length=2000)
+    expected_amount: Optional[Label] = Field(default=None, max_length=60)
 
 
 class ProcedureIn(_Body):
-    lab_id: int
-    title: str = Field(min_length=3, max_length=300)
-    summary: Optional[str] = Field(default=None, max_length=5000)
+    lab_id: Id
+    title: Label = Field(min_length=3, max_length=300)
+    summary: Optional[Text] = Field(default=None, max_length=5000)
     scale: float = Field(default=1.0, gt=0, le=1000)
     steps: list[StepIn] = Field(min_length=1, max_length=200)
     draws: list[DrawIn] = Field(min_length=1, max_length=200)
@@ -254,8 +363,8 @@ class ProcedureIn(_Body):
 
 
 class ProcedurePatch(_Body):
-    title: Optional[str] = Field(default=None, min_length=3, max_length=300)
-    summary: Optional[str] = Field(default=None, max_length=5000)
+    title: Optional[Label] = Field(default=None, min_length=3, max_length=300)
+    summary: Optional[Text] = Field(default=None, max_length=5000)
     scale: Optional[float] = Field(default=None, gt=0, le=1000)
     steps: Optional[list[StepIn]] = Field(default=None, min_length=1, max_length=200)
     draws: Optional[list[DrawIn]] = Field(default=None, min_length=1, max_length=200)
@@ -263,7 +372,7 @@ class ProcedurePatch(_Body):
 
 
 class DecisionIn(_Body):
-    comment: Optional[str] = Field(default=None, max_length=5000)
+    comment: Optional[Text] = Field(default=None, max_length=5000)
 
 
 Stream = Literal[vocab.STREAMS]
@@ -271,59 +380,60 @@ Stream = Literal[vocab.STREAMS]
 
 class ElementAmountIn(_Body):
     element: ElementSymbol
-    mass: str = Field(description='e.g. "2.5 mg"')
+    mass: Mass
 
 
 class AssayIn(_Body):
     element: ElementSymbol
-    concentration: str = Field(description='measured concentration, e.g. "12.5 mg/L" (ICP-OES of a digest)')
-    volume: str = Field(description='volume the concentration applies to, e.g. "4.0 mL"')
+    concentration: MassConcentration = Field(description='measured concentration, e.g. "12.5 mg/L" (ICP-OES of a digest)')
+    volume: Volume = Field(description='volume the concentration applies to, e.g. "4.0 mL"')
 
 
 class ContainerIn(_Body):
-    label: str = Field(min_length=1, max_length=80)
-    lab_id: int
-    location_id: int
+    label: Label = Field(min_length=1, max_length=80)
+    lab_id: Id
+    location_id: Id
     stream: Stream
-    capacity: str = Field(description='"20 L" for liquids, "5 kg" for solids')
+    capacity: MassOrVolume = Field(description='"20 L" for liquids, "5 kg" for solids')
     acute_hazardous: bool = False
 
 
 class ContainerPatch(_Body):
-    location_id: Optional[int] = None
+    location_id: Optional[Id] = None
     acute_hazardous: Optional[bool] = None
 
 
 class EntryComponentIn(_Body):
-    substance_id: int
-    volume: str
+    substance_id: Id
+    volume: Volume
 
 
 class EntryIn(_Body):
-    description: str = Field(min_length=1, max_length=2000)
-    run_id: Optional[int] = None
-    volume: Optional[str] = Field(default=None, description="liquid containers")
-    mass: Optional[str] = Field(default=None, description="solid containers")
+    description: Text = Field(min_length=1, max_length=2000)
+    run_id: Optional[Id] = None
+    volume: Optional[Volume] = Field(default=None, description="liquid containers")
+    mass: Optional[Mass] = Field(default=None, description="solid containers")
     components: list[EntryComponentIn] = Field(default_factory=list, max_length=50)
     elements: list[ElementAmountIn] = Field(default_factory=list, max_length=30)
     filterable_solids_percent: Optional[float] = Field(default=None, ge=0, le=100)
 
 
 class ReverseIn(_Body):
-    reason: str = Field(min_length=3, max_length=2000)
+    reason: Text = Field(min_length=3, max_length=2000)
 
 
 class RunIn(_Body):
-    procedure_id: int
+    procedure_id: Id
     scale: float = Field(default=1.0, gt=0, le=1000)
-    draws: Optional[list[DrawIn]] = Field(default=None, description="actual draws; omitted: the planned ones × scale")
-    note: Optional[str] = Field(default=None, max_length=5000)
+    draws: Optional[list[DrawIn]] = Field(default=None, max_length=200,
+                                          description="actual draws; omitted: the planned ones × scale")
+    note: Optional[Text] = Field(default=None, max_length=5000)
 
 
 class OutputIn(_Body):
-    label: str = Field(min_length=1, max_length=120)
+    label: Label = Field(min_length=1, max_length=120)
     method: Literal["measured", "estimated", "by_difference"]
-    description: Optional[str] = Field(default=None, max_length=2000)
+    description: Optional[Text] = Field(default=None, max_length=2000)
     elements: list[ElementAmountIn] = Field(default_factory=list, max_length=30)
     assays: list[AssayIn] = Field(default_factory=list, max_length=30)
     estimate: Optional["EstimateIn"] = Field(default=None, description="for method estimated: the absorbance data")
@@ -341,7 +451,7 @@ class OutputIn(_Body):
 
 
 class LossIn(_Body):
-    description: str = Field(min_length=3, max_length=2000)
+    description: Text = Field(min_length=3, max_length=2000)
     elements: list[ElementAmountIn] = Field(min_length=1, max_length=30)
 
 
@@ -349,11 +459,12 @@ class EstimateIn(_Body):
     """Metal content of a nanocrystal dispersion from its first excitonic absorption peak."""
 
     core: Literal["CdSe", "CdTe", "CdS"]
-    wavelength_nm: float = Field(gt=0, description="first excitonic absorption peak of the core, nm")
-    absorbance: float = Field(gt=0, description="absorbance at that peak of the measured sample")
-    path_length_cm: float = Field(default=1.0, gt=0)
-    dilution_factor: float = Field(default=1.0, ge=1, description="dispersion volume over measured aliquot volume")
-    volume: str = Field(description='volume of the undiluted dispersion, e.g. "4.0 mL"')
+    wavelength_nm: float = Field(gt=0, le=2000, description="first excitonic absorption peak of the core, nm (up to 2000)")
+    absorbance: float = Field(gt=0, le=10, description="absorbance at that peak of the measured sample (up to 10)")
+    path_length_cm: float = Field(default=1.0, gt=0, le=100, description="cm, up to 100")
+    dilution_factor: float = Field(default=1.0, ge=1, le=1_000_000,
+                                   description="dispersion volume over measured aliquot volume, 1 to 10^6")
+    volume: Volume = Field(description='volume of the undiluted dispersion, e.g. "4.0 mL"')
     shell: Optional[Literal["ZnS", "CdS"]] = None
     shell_monolayers: float = Field(default=0.0, ge=0, le=20)
 
@@ -364,8 +475,7 @@ OutputIn.model_rebuild()  # resolves the forward reference to EstimateIn
 # --- query parameters shared by the API, the pages and the command line ----------------------
 
 
-class PreviewQuery(BaseModel):
-    model_config = ConfigDict(extra="forbid")
+class PreviewQuery(_Query):
     scales: list[float] = Field(default=[2.0, 5.0, 10.0], description="1 to 20 comma-separated scale factors")
 
     @field_validator("scales", mode="before")
@@ -379,6 +489,6 @@ class PreviewQuery(BaseModel):
     @field_validator("scales")
     @classmethod
     def _positive(cls, value: list[float]) -> list[float]:
-        if any(v <= 0 or v > 1000 for v in value):
+        if any(not (0 < v <= 1000) for v in value):  # also refuses nan
             raise ValueError("scale factors must be above 0 and at most 1000")
         return value

@@ -111,7 +111,7 @@ def test_states_and_entries(site):
     [
         ({"description": "x", "mass": "1 kg"}, "volume"),  # a liquid container takes volumes
         ({"description": "x", "volume": "1 L", "elements": [{"element": "Qq", "mass": "1 mg"}]}, "elements.0.element"),
-        ({"description": "x", "volume": "1 L", "elements": [{"element": "Cd", "mass": "1 mL"}]}, "elements[0].mass"),
+        ({"description": "x", "volume": "1 L", "elements": [{"element": "Cd", "mass": "1 mL"}]}, "elements.0.mass"),
         ({"description": "x", "volume": "1 L", "components": [{"substance_id": 1, "volume": "2 L"}]}, "components"),
         ({"description": "x", "volume": "0 L"}, "volume"),
     ],

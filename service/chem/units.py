@@ -8,6 +8,7 @@ that names the substance.
 
 from __future__ import annotations
 
+import math
 import re
 from decimal import Decimal
 from typing import Optional
@@ -22,7 +23,13 @@ __all__ = [
     "kind_of",
     "mass_g",
     "to_decimal",
+    "MAX_AMOUNT_CHARS",
+    "LIMITS",
+    "check_bounds",
 ]
+
+# Longer text is refused before any parsing: pint's preprocessing grows with the square of the length.
+MAX_AMOUNT_CHARS = 40
 
 # A number, then a unit made of letters, "/", "*", "^", digits and spaces: no arithmetic.
 _AMOUNT = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?(\s*[A-Za-z°%][A-Za-z0-9°%/*^ ]*)?$")
@@ -76,6 +83,8 @@ def parse_quantity(text: str, *, expect: str | tuple[str, ...] | None = None, fi
     >>> parse_quantity("250 mg", expect="mass").to("g").magnitude
     0.25
     """
+    if isinstance(text, str) and len(text) > MAX_AMOUNT_CHARS:
+        raise QuantityError(text[:20] + "…", f"an amount is at most {MAX_AMOUNT_CHARS} characters", field)
     raw = (text or "").strip() if isinstance(text, str) else ""
     if not raw:
         raise QuantityError(str(text or ""), "an amount with a unit is required, e.g. '250 mg' or '5 mL'", field)
@@ -101,8 +110,38 @@ def parse_quantity(text: str, *, expect: str | tuple[str, ...] | None = None, fi
             if kind == "dimensionless":
                 raise QuantityError(raw, f"a number needs a unit ({' or '.join(kinds)})", field)
             raise QuantityError(raw, f"expected a {' or '.join(kinds)}, got a {kind or 'quantity of another kind'}", field)
+    if not math.isfinite(float(quantity.magnitude)):
+        raise QuantityError(raw, "must be a finite number", field)
     if quantity.magnitude < 0:
         raise QuantityError(raw, "must not be negative", field)
+    return quantity
+
+
+# Physical sense of one amount: (largest value, its unit text, smallest non-zero value kept, its unit).
+# A mass is kept in whole µg and a volume in whole µL; more than a tonne or 10 m³ is no lab amount.
+LIMITS = {
+    "mass": ("1000 kg", "ug"),
+    "volume": ("10000 L", "uL"),
+    "molarity": ("100 mol/L", None),
+    "density": ("25 g/mL", None),  # also a mass concentration; osmium is 22.6 g/mL (from memory)
+}
+
+
+def check_bounds(quantity, *, text: str = "", field: Optional[str] = None):
+    """``quantity`` if within :data:`LIMITS` for its kind; else QuantityError naming the bound.
+
+    A non-zero mass below 1 µg or volume below 1 µL is refused: it would be kept as 0.
+    """
+    kind = kind_of(quantity)
+    if kind not in LIMITS:
+        return quantity
+    largest, smallest = LIMITS[kind]
+    top = ureg.Quantity(largest)
+    if quantity.to(top.units).magnitude > top.magnitude:
+        raise QuantityError(text, f"must be at most {largest}", field)
+    if smallest and 0 < quantity.to(smallest).magnitude < 1:
+        shown = smallest.replace("u", "µ")
+        raise QuantityError(text, f"below 1 {shown}, the smallest amount kept; give 0 or at least 1 {shown}", field)
     return quantity
 
 

@@ -6,6 +6,7 @@ Idempotent: records are looked up by their unique labels and created only if mis
 from __future__ import annotations
 
 import secrets
+from decimal import Decimal
 
 from sqlalchemy import select
 from sqlalchemy.orm import Session
@@ -105,7 +106,8 @@ def load_demo(session: Session, catalogue: SubstanceCatalogue) -> tuple[dict[str
             added["stocks"] += 1
     for label, name, volume, parts, place in MIXTURES:
         if session.scalar(select(Mixture.id).where(Mixture.label == label)) is None:
-            components = [ComponentIn(substance_id=substance_id(n), molarity=m, volume_fraction=v) for n, m, v in parts]
+            components = [ComponentIn(substance_id=substance_id(n), molarity=m, volume_fraction=Decimal(v) if v else None)
+                          for n, m, v in parts]
             inventory.create_mixture(session, MixtureIn(label=label, name=name, lab_id=lab.id, location_id=places[place].id,
                                                         volume=volume, components=components))
             added["mixtures"] += 1

@@ -20,7 +20,7 @@ from sqlalchemy.orm import Session
 from service.chem.cas import validate_cas
 from service.chem.content import substance_element_masses_ug
 from service.errors import InvalidInput
-from service.schemas import LocationIn, StockIn
+from service.schemas import Density, Label, LocationIn, MassOrVolume, StockIn
 from service.store import inventory
 from service.store.ledger import to_csv_bytes
 from service.store.models import Lab, Location, Stock, Substance
@@ -35,16 +35,16 @@ class ImportRow(BaseModel):
     """One spreadsheet row, as text cells; empty cells are None."""
 
     model_config = ConfigDict(str_strip_whitespace=True, extra="ignore")
-    label: str = Field(min_length=1, max_length=80)
-    substance: str = Field(min_length=1)
-    amount: str = Field(min_length=1)
-    lab: str = Field(min_length=1)
-    building: str = Field(min_length=1)
-    room: str = Field(min_length=1)
-    storage: str = Field(min_length=1)
-    cas: Optional[str] = None
-    purity_percent: float = Field(default=100.0, gt=0, le=100)
-    density_g_per_ml: Optional[float] = Field(default=None, gt=0)
+    label: Label = Field(min_length=1, max_length=80)
+    substance: str = Field(min_length=1, max_length=200)
+    amount: MassOrVolume
+    lab: Label = Field(min_length=1, max_length=40)
+    building: Label = Field(min_length=1, max_length=100)
+    room: Label = Field(min_length=1, max_length=100)
+    storage: Label = Field(min_length=1, max_length=200)
+    cas: Optional[str] = Field(default=None, max_length=12)
+    purity_percent: float = Field(default=100.0, gt=0, le=100, allow_inf_nan=False)
+    density_g_per_ml: Optional[Density] = Field(default=None, allow_inf_nan=False)
     opened_on: Optional[dt.date] = None
     expires_on: Optional[dt.date] = None
 

@@ -10,7 +10,7 @@ from decimal import Decimal
 from typing import Any, Optional, TypeVar
 
 from pydantic import BaseModel
-from sqlalchemy import exists, func, select
+from sqlalchemy import and_, exists, func, select
 from sqlalchemy.orm import Session
 
 from service.chem.content import Component, mixture_element_masses_ug, substance_element_masses_ug
@@ -54,7 +54,10 @@ __all__ = [
 T = TypeVar("T")
 _ENTITY = {Lab: "lab", Location: "location", Substance: "substance", Stock: "stock", Mixture: "mixture", User: "user",
            Procedure: "procedure", Run: "run", WasteContainer: "waste container"}
-_UNIQUE = {Lab: ("code",), Substance: ("key",), Stock: ("label",), Mixture: ("label",)}
+# Columns whose values must be unique together, compared case-insensitively ("NG-01" and "ng-01" are one label;
+# the text itself is NFKC-normalised by the schemas). The unique constraints of the tables stay the last guard.
+_UNIQUE = {Lab: (("code",),), Substance: (("key",),), Stock: (("label",),), Mixture: (("label",),),
+           Location: (("building", "room", "storage"),)}
 
 
 def get(session: Session, model: type[T], ident: int, *, field: Optional[str] = None) -> T:
@@ -74,14 +77,22 @@ def _active(session: Session, model: type[T], ident: int, field: str) -> T:
     return record
 
 
+def same_text(column, value: str):
+    """A clause: ``column`` equals ``value`` ignoring case (SQL lower() on both sides)."""
+    return func.lower(column) == func.lower(value)
+
+
 def _check_unique(session: Session, model, values: dict[str, Any], own_id: Optional[int] = None) -> None:
-    for column in _UNIQUE.get(model, ()):
-        if column in values and values[column] is not None:
-            clause = getattr(model, column) == values[column]
-            if own_id is not None:
-                clause = clause & (model.id != own_id)
-            if session.scalar(select(exists().where(clause))):
-                raise Conflict(f"a {_ENTITY[model]} with {column} {values[column]!r} exists", column, values[column])
+    for columns in _UNIQUE.get(model, ()):
+        if any(values.get(column) is None for column in columns):
+            continue
+        clause = and_(*(same_text(getattr(model, column), values[column]) for column in columns))
+        if own_id is not None:
+            clause = clause & (model.id != own_id)
+        if session.scalar(select(exists().where(clause))):
+            shown = ", ".join(str(values[c]) for c in columns)
+            raise Conflict(f"a {_ENTITY[model]} with {'/'.join(columns)} {shown!r} exists (case is not a difference)",
+                           columns[-1] if len(columns) == 1 else "/".join(columns), shown)
 
 
 def _check_refs(session: Session, values: dict[str, Any]) -> None:

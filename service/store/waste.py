@@ -14,7 +14,7 @@ from dataclasses import dataclass
 from decimal import ROUND_HALF_EVEN, Decimal
 from typing import Optional
 
-from sqlalchemy import select
+from sqlalchemy import func, select
 from sqlalchemy.orm import Session, selectinload
 
 from service import vocab
@@ -70,7 +70,7 @@ def create_container(session: Session, body: ContainerIn) -> WasteContainer:
     if micro <= 0:
         raise InvalidInput("capacity", "must be above zero")
     get(session, Location, body.location_id, field="location_id")
-    if session.scalar(select(WasteContainer.id).where(WasteContainer.label == body.label)):
+    if session.scalar(select(WasteContainer.id).where(func.lower(WasteContainer.label) == func.lower(body.label))):
         raise Conflict(f"a waste container labelled {body.label!r} exists", "label", body.label)
     container = WasteContainer(label=body.label, lab_id=body.lab_id, location_id=body.location_id, stream=body.stream,
                                form=form, capacity_text=body.capacity, capacity_micro=micro,
@@ -174,7 +174,8 @@ def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Opti
     components = []
     for i, comp in enumerate(body.components):
         get(session, Substance, comp.substance_id, field=f"components[{i}].substance_id")
-        ul = int(to_decimal(parse_quantity(comp.volume, expect="volume", field=f"components[{i}].volume"), "uL"))
+        ul = int(to_decimal(parse_quantity(comp.volume, expect="volume", field=f"components[{i}].volume"),
+                            "uL").to_integral_value())
         components.append(WasteEntryComponent(substance_id=comp.substance_id, volume_ul=ul))
     if sum(c.volume_ul for c in components) > micro:
         raise InvalidInput("components", "the components add up to more than the entry's volume")
