@@ -39,6 +39,12 @@ def create_app(test_config: Optional[Mapping[str, Any]] = None) -> Flask:
     app.register_blueprint(api_bp)
     app.register_blueprint(documents_bp)  # under /api/v1 too: tokens, JSON errors, in the OpenAPI document
     app.register_blueprint(web_bp)
+    if app.config["TRUSTED_PROXIES"]:
+        from werkzeug.middleware.proxy_fix import ProxyFix
+
+        # The client address (sign-in lockout) and scheme as the trusted proxies saw them.
+        proxies = app.config["TRUSTED_PROXIES"]
+        app.wsgi_app = ProxyFix(app.wsgi_app, x_for=proxies, x_proto=proxies)
     return app
 
 

@@ -20,7 +20,7 @@ from service.store import identity
 from service.store.db import get_session
 from service.store.models import User
 
-__all__ = ["init_app", "current_user", "csrf_token", "lab_scope", "check_lab", "sign_in", "sign_out", "login_limits"]
+__all__ = ["init_app", "client_address", "current_user", "csrf_token", "lab_scope", "check_lab", "sign_in", "sign_out", "login_limits"]
 
 
 def current_user() -> Optional[User]:
@@ -49,10 +49,16 @@ def csrf_token() -> str:
 def sign_in(user: User) -> None:
     session.clear()
     session["user_id"] = user.id
+    # The cookie is good while the account's version stays; sign-out and a new password raise it.
+    session["session_version"] = user.session_version
     session["csrf"] = secrets.token_urlsafe(32)
 
 
 def sign_out() -> None:
+    """End this browser's session and every other copy of its cookie."""
+    user = current_user()
+    if user is not None:
+        identity.end_sessions(user)
     session.clear()
 
 
@@ -66,7 +72,9 @@ def _identify() -> Optional[User]:
         return identity.user_for_token(db, secret.strip())
     user_id = session.get("user_id")
     user = db.get(User, user_id) if isinstance(user_id, int) else None
-    return user if user is not None and user.retired_at is None else None
+    if user is None or user.retired_at is not None or session.get("session_version") != user.session_version:
+        return None
+    return user
 
 
 def _authorize():
@@ -94,13 +102,37 @@ def _authorize():
     return None
 
 
+# Every answer, pages and API alike. Styles may be inline (the bar charts set their widths in a
+# style attribute); scripts, frames, plugins and form targets only from this server.
+SECURITY_HEADERS = {
+    "Content-Security-Policy": "default-src 'self'; script-src 'self'; style-src 'self' 'unsafe-inline'; "
+                               "img-src 'self' data:; object-src 'none'; base-uri 'self'; form-action 'self'; "
+                               "frame-ancestors 'none'",
+    "X-Frame-Options": "DENY",
+    "X-Content-Type-Options": "nosniff",
+    "Referrer-Policy": "same-origin",
+}
+
+
+def _security_headers(response):
+    for name, value in SECURITY_HEADERS.items():
+        response.headers.setdefault(name, value)
+    return response
+
+
 def init_app(app: Flask) -> None:
     app.config["SESSION_COOKIE_HTTPONLY"] = True
     app.config["SESSION_COOKIE_SAMESITE"] = "Lax"
     app.config["SESSION_COOKIE_SECURE"] = bool(app.config.get("SECURE_COOKIES"))
     app.before_request(_authorize)
+    app.after_request(_security_headers)
     app.jinja_env.globals["csrf_token"] = csrf_token
     app.jinja_env.globals["current_user"] = current_user
+
+
+def client_address() -> str:
+    """The address sign-in limits count by: the peer, or the client that ``TRUSTED_PROXIES`` proxies name."""
+    return (request.remote_addr or "unknown")[:64]  # the column's length
 
 
 def login_limits() -> identity.LoginLimits:

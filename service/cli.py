@@ -14,12 +14,16 @@ import click
 
 from service import vocab
 from service.app import create_app
+from service.config import ConfigError
 
 __all__ = ["main"]
 
 
 def _app():
-    app = create_app()
+    try:
+        app = create_app()
+    except ConfigError as exc:
+        raise click.ClickException(str(exc)) from None
     # Close the pooled connections when the command ends (a long-lived caller, such as a test
     # runner invoking many commands, would otherwise leave them to the garbage collector).
     context = click.get_current_context(silent=True)

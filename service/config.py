@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import secrets
 from decimal import Decimal
 from pathlib import Path
 
@@ -10,19 +11,29 @@ from service import vocab
 from service.resources import RULES_DIR
 from typing import Any, Mapping, Optional
 
-__all__ = ["load_config"]
+__all__ = ["ConfigError", "load_config", "DEVELOPMENT_KEY", "instance_secret_key"]
+
+# Once the default; now refused outside TESTING, since anyone who reads the source can sign with it.
+DEVELOPMENT_KEY = "dev-only-change-me"
+SECRET_KEY_FILE = "secret_key"
+
+
+class ConfigError(ValueError):
+    """A setting the server must not start with."""
 
 # name -> (default, parser); the environment variable is DOTLEDGER_<NAME>.
 _SETTINGS: dict[str, tuple[Any, Any]] = {
     "DATABASE_URL": (None, str),  # default: SQLite file in the instance folder
     "RULES_DIR": (str(RULES_DIR), str),
     "RULE_PACKS": ("us-federal,eu,site-example", str),
-    "SECRET_KEY": ("dev-only-change-me", str),
+    "SECRET_KEY": (None, str),  # default: a random key kept in <instance>/secret_key
     "PAGE_SIZE": ("A4", str),
     "SECURE_COOKIES": ("false", lambda v: str(v).lower() in ("1", "true", "yes")),
     "LOGIN_MAX_FAILURES_PER_ACCOUNT": (5, int),
     "LOGIN_MAX_FAILURES_PER_ADDRESS": (20, int),
     "LOGIN_WINDOW_S": (900, int),
+    # Proxies in front of the server that append to X-Forwarded-For; 0 ignores the header.
+    "TRUSTED_PROXIES": (0, int),
     # Share of a run's input (per element) that may stay unaccounted for the run to close.
     "BALANCE_TOLERANCE": ("0.05", lambda v: Decimal(str(v))),
     # Elements a run's mass balance follows (carbon, hydrogen and the like from solvents are not).
@@ -43,4 +54,36 @@ def load_config(instance_path: str, test_config: Optional[Mapping[str, Any]] = N
     if config["DATABASE_URL"] is None:
         config["DATABASE_URL"] = f"sqlite:///{Path(instance_path) / 'dotledger.sqlite'}"
     config.update(test_config or {})
+    if config["SECRET_KEY"] is None:
+        # Tests without a key get a fresh one; a server keeps one per instance folder.
+        config["SECRET_KEY"] = secrets.token_hex(32) if config.get("TESTING") else instance_secret_key(instance_path)
+    elif config["SECRET_KEY"] == DEVELOPMENT_KEY and not config.get("TESTING"):
+        raise ConfigError("DOTLEDGER_SECRET_KEY is the development key, with which anyone who reads the source "
+                         "can forge a session; unset it (a random key is then kept in the instance folder) "
+                         "or set a long random value")
+    if not 0 <= config["TRUSTED_PROXIES"] <= 10:
+        raise ConfigError(f"DOTLEDGER_TRUSTED_PROXIES={config['TRUSTED_PROXIES']!r}: expected 0 to 10")
     return config
+
+
+def instance_secret_key(instance_path: str) -> str:
+    """The session signing key kept in ``<instance>/secret_key``, created (mode 0600) on first use."""
+    path = Path(instance_path) / SECRET_KEY_FILE
+    path.parent.mkdir(parents=True, exist_ok=True)
+    if not path.exists():
+        # Written aside, then linked into place: of two processes starting at once, one key wins
+        # and neither reads a half-written file.
+        draft = path.with_name(f"{SECRET_KEY_FILE}.{os.getpid()}.{secrets.token_hex(4)}")
+        fd = os.open(draft, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+        with os.fdopen(fd, "w", encoding="ascii") as handle:
+            handle.write(secrets.token_hex(32) + "\n")
+        try:
+            os.link(draft, path)
+        except FileExistsError:
+            pass
+        finally:
+            draft.unlink()
+    key = path.read_text(encoding="ascii").strip()
+    if len(key) < 32:
+        raise ConfigError(f"{path}: the secret key is empty or too short; delete the file to make a new one")
+    return key

@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 import datetime as dt
+import unicodedata
 from decimal import Decimal
+from functools import lru_cache
 from typing import Annotated, Literal, Optional
 
 import unicodedata
@@ -13,6 +15,8 @@ from pydantic import AfterValidator, BaseModel, BeforeValidator, ConfigDict, Fie
 from service import vocab
 from service.chem.substances import Substance as CatalogueSubstance
 from service.chem.units import LIMITS, MAX_AMOUNT_CHARS, check_bounds, parse_quantity
+from service.datafiles import load_data_file
+from service.resources import RULES_DIR
 
 __all__ = [
     "ElementSymbol",
@@ -33,6 +37,7 @@ __all__ = [
     "MixtureIn",
     "MixturePatch",
     "UserIn",
+    "check_password",
     "UserPatch",
     "TokenRequest",
     "AuditQuery",
@@ -269,6 +274,38 @@ class MixturePatch(_Body):
 
 Role = Literal[vocab.ROLES]
 
+PASSWORD_MIN_CHARS = 12
+
+
+class _CommonPasswords(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+    source: str = Field(min_length=1)
+    passwords: list[str] = Field(min_length=1)
+
+
+@lru_cache(maxsize=1)
+def _common_passwords() -> frozenset[str]:
+    listed = load_data_file(RULES_DIR / "common-passwords.yaml", _CommonPasswords).passwords
+    return frozenset(unicodedata.normalize("NFKC", p).casefold() for p in listed)
+
+
+def check_password(secret: SecretStr) -> SecretStr:
+    """The one password rule (accounts made and changed by the API, pages and CLI).
+
+    At least 12 characters after Unicode NFKC normalisation, not counting invisible format and
+    control characters (zero-width spaces and joiners, bidirectional marks); not one character
+    repeated; not in rules/common-passwords.yaml (case ignored).
+    """
+    text = unicodedata.normalize("NFKC", secret.get_secret_value())
+    visible = "".join(ch for ch in text if unicodedata.category(ch) not in ("Cf", "Cc"))
+    if len(visible) < PASSWORD_MIN_CHARS:
+        raise ValueError(f"at least {PASSWORD_MIN_CHARS} characters, not counting invisible ones")
+    if len(set(visible.casefold())) == 1:
+        raise ValueError("one character repeated is not a password")
+    if text.casefold() in _common_passwords() or visible.casefold() in _common_passwords():
+        raise ValueError("this password is on the list of common passwords; choose another")
+    return secret
+
 
 class UserIn(_Body):
     email: str = Field(pattern=r"^[^@\s]+@[^@\s]+\.[^@\s]+$", max_length=254)
@@ -277,12 +314,22 @@ class UserIn(_Body):
     password: SecretStr = Field(min_length=12, max_length=1000, description="12 to 1000 characters")
     lab_ids: list[Id] = Field(default=[], max_length=1000)
 
+    @field_validator("password")
+    @classmethod
+    def _password_rule(cls, value: SecretStr) -> SecretStr:
+        return check_password(value)
+
 
 class UserPatch(_Body):
     display_name: Optional[Label] = Field(default=None, min_length=1, max_length=200)
     role: Optional[Role] = None
     password: Optional[SecretStr] = Field(default=None, min_length=12, max_length=1000)
     lab_ids: Optional[list[Id]] = Field(default=None, max_length=1000)
+
+    @field_validator("password")
+    @classmethod
+    def _password_rule(cls, value: Optional[SecretStr]) -> Optional[SecretStr]:
+        return None if value is None else check_password(value)
 
 
 class TokenRequest(_Body):

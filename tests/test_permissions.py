@@ -163,9 +163,10 @@ def _url(rule, ids: dict[str, int], app) -> str:
 
 def _sign_in_page(client, app, email: str) -> str:
     with session_scope(app.extensions["dotledger.sessions"]) as session:
-        user_id = session.query(User.id).filter(User.email == email).scalar()
+        user_id, version = session.query(User.id, User.session_version).filter(User.email == email).one()
     with client.session_transaction() as cookie:
         cookie["user_id"] = user_id
+        cookie["session_version"] = version
         cookie["csrf"] = "test-csrf"
     return "test-csrf"
 

@@ -9,8 +9,9 @@ answered with a generic message.
 from __future__ import annotations
 
 import logging
+from typing import Mapping, Optional
 
-from flask import Flask, jsonify, render_template, request
+from flask import Flask, jsonify, make_response, render_template, request
 from pydantic import ValidationError
 from werkzeug.exceptions import HTTPException
 
@@ -30,9 +31,11 @@ log = logging.getLogger(__name__)
 class ApiError(Exception):
     """An answer with a status, a code and details (raised by views for request-level problems)."""
 
-    def __init__(self, status: int, code: str, message: str, details: object = None) -> None:
+    def __init__(self, status: int, code: str, message: str, details: object = None,
+                 headers: Optional[Mapping[str, str]] = None) -> None:
         super().__init__(message)
         self.status, self.code, self.message, self.details = status, code, message, details
+        self.headers = dict(headers or {})
 
 
 def _wants_json() -> bool:
@@ -63,7 +66,9 @@ def _validation_details(exc: ValidationError) -> list[dict]:
 def init_app(app: Flask) -> None:
     @app.errorhandler(ApiError)
     def _api_error(exc: ApiError):
-        return error_response(exc.status, exc.code, exc.message, exc.details)
+        response = make_response(error_response(exc.status, exc.code, exc.message, exc.details))
+        response.headers.update(exc.headers)
+        return response
 
     @app.errorhandler(Unauthenticated)
     def _unauthenticated(exc: Unauthenticated):

@@ -9,7 +9,7 @@ from service.api import bp
 from service.api.errors import ApiError
 from service.api.inventory import json_body, page_answer
 from service.api.responses import AuditEvent, IssuedToken, Token, User as UserAnswer
-from service.auth import current_user, login_limits
+from service.auth import client_address, current_user, login_limits
 from service.operations import operation
 from service.present.identity import dump_event, dump_token, dump_user
 from service.store import audit, identity, inventory
@@ -25,10 +25,11 @@ def issue_token():
     session = get_session()
     try:
         user = identity.authenticate(session, body.email, body.password.get_secret_value(),
-                                     request.remote_addr or "unknown", login_limits())
+                                     client_address(), login_limits())
     except identity.LoginLocked as exc:
         session.commit()  # keep the record of the attempt
-        raise ApiError(429, "locked", str(exc), {"retry_after_s": exc.retry_after_s, "scope": exc.scope}) from None
+        raise ApiError(429, "locked", str(exc), {"retry_after_s": exc.retry_after_s, "scope": exc.scope},
+                       headers={"Retry-After": str(exc.retry_after_s)}) from None
     except identity.BadCredentials as exc:
         session.commit()
         raise ApiError(401, "bad_credentials", str(exc)) from None
@@ -101,7 +102,7 @@ def retire_user(ident: int):
     user = inventory.get(session, User, ident)
     if user.id == current_user().id:
         raise ApiError(409, "conflict", "an administrator cannot retire their own account")
-    return jsonify(dump_user(inventory.retire(session, user)))
+    return jsonify(dump_user(identity.retire_user(session, user)))
 
 
 @bp.get("/audit_events", endpoint="list_audit_events")

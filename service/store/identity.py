@@ -6,6 +6,7 @@ import datetime as dt
 import hashlib
 import secrets
 from dataclasses import dataclass
+from functools import lru_cache
 from typing import Optional
 
 from sqlalchemy import func, select
@@ -14,6 +15,7 @@ from werkzeug.security import check_password_hash, generate_password_hash
 
 from service.errors import Conflict, InvalidInput, NotFound
 from service.schemas import UserIn, UserPatch
+from service.store.inventory import retire
 from service.store.models import ApiToken, Lab, LoginAttempt, Membership, User, utcnow
 from service.store.paging import Page, paginate
 
@@ -24,6 +26,9 @@ __all__ = [
     "create_user",
     "update_user",
     "authenticate",
+    "end_sessions",
+    "keep_an_admin",
+    "retire_user",
     "issue_token",
     "revoke_token",
     "list_tokens",
@@ -83,15 +88,61 @@ def create_user(session: Session, body: UserIn) -> User:
 
 def update_user(session: Session, user: User, patch: UserPatch) -> User:
     values = patch.model_dump(exclude_unset=True)
+    if values.get("role", "admin") != "admin" and user.role == "admin":
+        keep_an_admin(session, user, "demoted")
     if "password" in values:
         values.pop("password")
         user.password_hash = generate_password_hash(patch.password.get_secret_value())
+        # Whoever held the old password may hold a session or a token: end them all.
+        end_sessions(user)
+        revoke_all_tokens(session, user)
     if "lab_ids" in values:
         _set_labs(session, user, values.pop("lab_ids") or [])
     for key, value in values.items():
         setattr(user, key, value)
     session.flush()
     return user
+
+
+def keep_an_admin(session: Session, user: User, change: str) -> None:
+    """409 when ``user`` is the last active administrator (who would then be ``change``).
+
+    The other administrators' rows are locked (PostgreSQL), so that two administrators demoting
+    each other at once cannot both succeed; SQLite transactions are serial already.
+    """
+    others = session.scalars(
+        select(User.id).where(User.role == "admin", User.retired_at.is_(None), User.id != user.id).with_for_update()
+    ).all()
+    if user.role == "admin" and user.retired_at is None and not others:
+        raise Conflict(f"{user.email} is the last active administrator and cannot be {change}; "
+                       "make another account an administrator first", "role", user.role)
+
+
+def retire_user(session: Session, user: User) -> User:
+    """Retire an account, keeping at least one administrator; its sessions and tokens end with it."""
+    keep_an_admin(session, user, "retired")
+    retire(session, user)
+    end_sessions(user)
+    revoke_all_tokens(session, user)
+    return user
+
+
+def end_sessions(user: User) -> None:
+    """Make every session cookie issued to ``user`` so far stop working."""
+    user.session_version = (user.session_version or 0) + 1
+
+
+def revoke_all_tokens(session: Session, user: User) -> None:
+    now = utcnow()
+    for token in session.scalars(select(ApiToken).where(ApiToken.user_id == user.id, ApiToken.revoked_at.is_(None))):
+        token.revoked_at = now
+    session.flush()
+
+
+@lru_cache(maxsize=1)
+def _dummy_hash() -> str:
+    """A hash of a random password made as real ones are (same method and cost), checked for unknown emails."""
+    return generate_password_hash(secrets.token_urlsafe(16))
 
 
 def _locked_until(session: Session, column, value: str, limit: int, window_s: int, now: dt.datetime):
@@ -126,7 +177,9 @@ def authenticate(session: Session, email: str, password: str, address: str, limi
         if until is not None:
             raise LoginLocked(max(1, int((until - now).total_seconds()) + 1), scope)
     user = session.scalar(select(User).where(User.email == email))
-    ok = user is not None and user.retired_at is None and check_password_hash(user.password_hash, password or "")
+    # Always one hash check, so that an unknown email takes as long to refuse as a wrong password.
+    matches = check_password_hash(user.password_hash if user is not None else _dummy_hash(), password or "")
+    ok = user is not None and user.retired_at is None and matches
     session.add(LoginAttempt(email=email, address=address, at=now, succeeded=ok))
     session.flush()
     if not ok:

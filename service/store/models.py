@@ -236,6 +236,8 @@ class User(_Lifecycle, Base):
     display_name: Mapped[str] = mapped_column(String(200))
     role: Mapped[str] = mapped_column(String(20))  # vocab.ROLES
     password_hash: Mapped[str] = mapped_column(String(300))
+    # Raised by sign-out and a password change: session cookies carrying an older value stop working.
+    session_version: Mapped[int] = mapped_column(default=0, server_default="0")
     memberships: Mapped[list["Membership"]] = relationship(cascade="all, delete-orphan", lazy="selectin")
 
     @property

@@ -6,7 +6,7 @@ from urllib.parse import urlparse
 
 from flask import redirect, render_template, request, url_for
 
-from service.auth import login_limits, sign_in, sign_out
+from service.auth import client_address, login_limits, sign_in, sign_out
 from service.store import identity
 from service.store.db import get_session
 from service.web import bp
@@ -31,11 +31,13 @@ def login_submit():
     session = get_session()
     try:
         user = identity.authenticate(session, email, request.form.get("password", ""),
-                                     request.remote_addr or "unknown", login_limits())
+                                     client_address(), login_limits())
     except (identity.LoginLocked, identity.BadCredentials) as exc:
         session.commit()  # the failed attempt counts towards the limit
-        status = 429 if isinstance(exc, identity.LoginLocked) else 401
-        return render_template("pages/login.html", next=_safe_next(request.form.get("next")), error=str(exc), email=email), status
+        page = render_template("pages/login.html", next=_safe_next(request.form.get("next")), error=str(exc), email=email)
+        if isinstance(exc, identity.LoginLocked):
+            return page, 429, {"Retry-After": str(exc.retry_after_s)}
+        return page, 401
     sign_in(user)
     return redirect(_safe_next(request.form.get("next")))
 
