@@ -149,3 +149,35 @@ def test_draws_of_another_labs_stock_or_mixture(site, source):
     _same_as_missing(site, res_b, "POST", "/runs", lambda i: {"procedure_id": b["proc"], "draws": draws(i)}, theirs)
     _same_as_missing(site, site["admin"], "POST", "/runs", lambda i: {"procedure_id": b["proc"], "draws": draws(i)},
                      theirs)
+
+
+def test_import_refuses_rows_placed_in_another_labs_location(database_url, rules_dir, catalogue):
+    import pandas as pd
+    from sqlalchemy import func, select
+
+    from service.store.db import session_scope
+    from service.store.importer import import_inventory
+    from service.store.models import Lab, Location, Stock
+    from tests.conftest import make_app
+
+    app = make_app(database_url, rules_dir)
+    sessions = app.extensions["dotledger.sessions"]
+    with session_scope(sessions) as session:
+        session.add_all([Lab(code="IA", name="group IA"), Lab(code="IB", name="group IB")])
+        session.flush()
+        session.add(Location(lab_id=session.scalar(select(Lab.id).where(Lab.code == "IA")), building="I", room="1",
+                             storage="shelf", kind="storage"))
+    row = {"substance": "cadmium oxide", "amount": "1 g", "building": "I", "room": "1"}
+    frame = pd.DataFrame([{**row, "label": "IA-1", "lab": "IA", "storage": "shelf"},     # A's own shelf
+                          {**row, "label": "IB-1", "lab": "IB", "storage": "shelf"},     # A's shelf: refused
+                          {**row, "label": "IB-2", "lab": "IB", "storage": "cupboard"},  # a new place, B's
+                          {**row, "label": "IA-2", "lab": "IA", "storage": "cupboard"}])  # now B's: refused
+    with session_scope(sessions) as session:
+        report = import_inventory(session, frame, catalogue_lookup=lambda t: catalogue.find(t).key)
+    assert report.imported == 2 and [r.line for r in report.rejected] == [3, 5]
+    assert all("location of another lab" in r.reason for r in report.rejected)
+    with session_scope(sessions) as session:
+        placed = session.execute(select(Stock.label, Stock.lab_id, Location.lab_id).join(Location)).all()
+        assert all(stock_lab == place_lab for _, stock_lab, place_lab in placed) and len(placed) == 2
+        assert session.scalar(select(func.count()).select_from(Stock)) == 2
+    app.extensions["dotledger.engine"].dispose()
