@@ -90,6 +90,7 @@ def _authorize():
     if user is not None:
         g.user = user
         get_session().info["actor"] = {"user_id": user.id, "label": user.email}
+        get_session().info["lab_scope"] = lab_scope()  # what the store lets this request refer to
     if endpoint in PUBLIC:
         return None
     if user is None:

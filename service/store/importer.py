@@ -117,6 +117,7 @@ def import_inventory(
     substances = {s.key: s for s in session.scalars(select(Substance).where(Substance.retired_at.is_(None)))}
     labs = {lab.code.lower(): lab for lab in session.scalars(select(Lab).where(Lab.retired_at.is_(None)))}
     locations = {(l.building, l.room, l.storage): l for l in session.scalars(select(Location))}
+    owners = {where: place.lab_id for where, place in locations.items()}  # a new place: the lab of its first row
     taken = set(session.scalars(select(Stock.label)))
     accepted: list[tuple[ImportRow, Substance, Lab]] = []
 
@@ -141,6 +142,9 @@ def import_inventory(
                 row.amount, substance.formula, purity=row.purity_percent / 100,
                 density_g_per_ml=row.density_g_per_ml or substance.density_g_per_ml, substance=substance.name,
             )
+            where = (row.building, row.room, row.storage)
+            if owners.setdefault(where, lab.id) not in (None, lab.id):
+                raise InvalidInput("storage", f"{' / '.join(where)} is a location of another lab")
         except (ValueError, ValidationError) as exc:
             report.rejected.append(Rejected(line, label, _reason(exc)))
         else:

@@ -38,6 +38,7 @@ from service.store.models import (
 
 __all__ = [
     "get",
+    "reference",
     "create_record",
     "update_record",
     "retire",
@@ -70,9 +71,31 @@ def get(session: Session, model: type[T], ident: int, *, field: Optional[str] = 
     return record
 
 
-def _active(session: Session, model: type[T], ident: int, field: str) -> T:
-    record = get(session, model, ident, field=field)
-    if record.retired_at is not None:
+def _lab_of(record) -> Optional[int]:
+    return record.id if isinstance(record, Lab) else getattr(record, "lab_id", None)
+
+
+def reference(session: Session, model: type[T], ident: int, field: str, *, lab_id: Optional[int] = None,
+              active: bool = True, lock: bool = False) -> T:
+    """The record that ``field`` refers to, if the caller may refer to it; else InvalidInput naming ``field``.
+
+    The caller's labs are ``session.info["lab_scope"]`` (set per request from the signed-in user;
+    absent or None for site-wide roles and the CLI). ``lab_id`` further asks for a record of that
+    lab (a waste entry's run of the container's lab, a stock's location of the stock's lab).
+    Records without a lab (substances, shared locations) pass both. A missing record and one the
+    caller may not refer to get the same answer, so it tells nothing of other labs' records;
+    ``active`` refuses a retired one; ``lock`` takes the row lock (SELECT … FOR UPDATE).
+    """
+    if lock:
+        record = session.scalar(select(model).where(model.id == ident).with_for_update(of=model))
+    else:
+        record = session.get(model, ident)
+    owner = None if record is None else _lab_of(record)
+    scope = session.info.get("lab_scope")
+    if record is None or (owner is not None and ((scope is not None and owner not in scope)
+                                                 or (lab_id is not None and owner != lab_id))):
+        raise InvalidInput(field, f"no {_ENTITY[model]} with id {ident}", ident)
+    if active and getattr(record, "retired_at", None) is not None:
         raise InvalidInput(field, f"{_ENTITY[model]} {ident} is retired", ident)
     return record
 
@@ -95,10 +118,13 @@ def _check_unique(session: Session, model, values: dict[str, Any], own_id: Optio
                            columns[-1] if len(columns) == 1 else "/".join(columns), shown)
 
 
-def _check_refs(session: Session, values: dict[str, Any]) -> None:
+def _check_refs(session: Session, values: dict[str, Any], lab_id: Optional[int] = None) -> None:
+    """Check the lab, location and substance that ``values`` refer to; a location must be of the
+    record's lab (``values["lab_id"]``, else ``lab_id``: the lab of the record being updated) or shared."""
+    owner = values.get("lab_id", lab_id)
     for field, model in (("lab_id", Lab), ("location_id", Location), ("substance_id", Substance)):
         if values.get(field) is not None:
-            _active(session, model, values[field], field)
+            reference(session, model, values[field], field, lab_id=owner if model is Location else None)
 
 
 def create_record(session: Session, model: type[T], body: BaseModel, **extra: Any) -> T:
@@ -220,7 +246,7 @@ def create_stock(session: Session, body: StockIn) -> Stock:
 def update_stock(session: Session, stock: Stock, patch: StockPatch) -> Stock:
     values = patch.model_dump(exclude_unset=True)
     _check_unique(session, Stock, values, stock.id)
-    _check_refs(session, values)
+    _check_refs(session, values, stock.lab_id)
     if "amount" in values:
         amount = values.pop("amount")
         stock.quantity_kind, stock.quantity_micro = _quantity_micro(amount or "")
@@ -265,7 +291,7 @@ def create_mixture(session: Session, body: MixtureIn) -> Mixture:
     volume = values.pop("volume")
     mixture = Mixture(**values, volume_text=volume, volume_ul=_volume_ul(volume))
     for position, comp in enumerate(body.components):
-        substance = _active(session, Substance, comp.substance_id, f"components[{position}].substance_id")
+        substance = reference(session, Substance, comp.substance_id, f"components[{position}].substance_id")
         mixture.components.append(
             MixtureComponent(
                 position=position,
@@ -284,7 +310,7 @@ def create_mixture(session: Session, body: MixtureIn) -> Mixture:
 
 def update_mixture(session: Session, mixture: Mixture, patch: MixturePatch) -> Mixture:
     values = patch.model_dump(exclude_unset=True)
-    _check_refs(session, values)
+    _check_refs(session, values, mixture.lab_id)
     if "volume" in values:
         volume = values.pop("volume") or ""
         mixture.volume_ul = _volume_ul(volume)

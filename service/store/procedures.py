@@ -19,6 +19,7 @@ from service.errors import Blocked, Conflict, Forbidden, InvalidInput
 from service.rules import LayeredRules, evaluate, highest_level
 from service.rules.subjects import ProcedureSubject, ReagentFacts, StepFacts
 from service.schemas import DrawIn, ProcedureIn, ProcedurePatch, StepIn, WastePlanIn
+from service.store import inventory
 from service.store.paging import Page, paginate
 from service.store.findings import evaluate_once
 from service.store.models import (
@@ -68,16 +69,8 @@ _SEVERITY = {level: rank for rank, level in enumerate(vocab.FINDING_LEVELS)}  # 
 
 def _draw(session: Session, lab_id: int, position: int, body: DrawIn) -> ReagentDraw:
     field = f"draws[{position}]"
-    if body.stock_id is not None:
-        source = session.get(Stock, body.stock_id)
-        kind = "stock"
-    else:
-        source = session.get(Mixture, body.mixture_id)
-        kind = "mixture"
-    if source is None or source.retired_at is not None:
-        raise InvalidInput(f"{field}.{kind}_id", f"no active {kind} with id {body.stock_id or body.mixture_id}")
-    if source.lab_id != lab_id:
-        raise InvalidInput(f"{field}.{kind}_id", f"{kind} {source.label} belongs to another lab")
+    model, kind = (Stock, "stock") if body.stock_id is not None else (Mixture, "mixture")
+    source = inventory.reference(session, model, body.stock_id or body.mixture_id, f"{field}.{kind}_id", lab_id=lab_id)
     draw = ReagentDraw(position=position, stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount)
     draw.stock, draw.mixture = (source, None) if kind == "stock" else (None, source)
     _reagent(draw, 1.0, field)  # checks the amount now: unit, kind, density

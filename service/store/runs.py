@@ -40,12 +40,8 @@ def _take(session: Session, body: DrawIn, lab_id: int, field: str) -> RunDraw:
     """Decrement the stock or mixture by the draw; refuse a draw larger than it holds."""
     model, kind = (Stock, "stock") if body.stock_id else (Mixture, "mixture")
     # Lock only the stock's own row: PostgreSQL refuses FOR UPDATE on the outer-joined substance.
-    source = session.scalar(select(model).where(model.id == (body.stock_id or body.mixture_id))
-                            .with_for_update(of=model))
-    if source is None or source.retired_at is not None:
-        raise InvalidInput(f"{field}.{kind}_id", f"no active {kind} with id {body.stock_id or body.mixture_id}")
-    if source.lab_id != lab_id:
-        raise InvalidInput(f"{field}.{kind}_id", f"{kind} {source.label} belongs to another lab")
+    source = inventory.reference(session, model, body.stock_id or body.mixture_id, f"{field}.{kind}_id",
+                                 lab_id=lab_id, lock=True)
     masses = procedures.source_element_masses(source if kind == "stock" else None,
                                               source if kind == "mixture" else None, body.amount, f"{field}.amount")
     quantity = parse_quantity(body.amount, expect=("mass", "volume"), field=f"{field}.amount")
@@ -89,7 +85,7 @@ def _planned(proc: Procedure, scale: float) -> list[DrawIn]:
 
 def start_run(session: Session, body: RunIn, actor: User, rules: LayeredRules) -> Run:
     """Start a run of an approved procedure at ``body.scale`` (at most the approved scale)."""
-    proc = inventory.get(session, Procedure, body.procedure_id, field="procedure_id")
+    proc = inventory.reference(session, Procedure, body.procedure_id, "procedure_id", active=False)
     if proc.state != "approved":
         raise Conflict(f"procedure {proc.id} is {proc.state.replace('_', ' ')}; only approved procedures are run",
                        "procedure_id", proc.id)

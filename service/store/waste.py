@@ -23,7 +23,7 @@ from service.chem.units import QuantityError, parse_quantity, to_decimal
 from service.errors import Conflict, InvalidInput
 from service.rules.subjects import ContainerComponent, ContainerSubject
 from service.schemas import ContainerIn, ElementAmountIn, EntryIn
-from service.store.inventory import get
+from service.store.inventory import get, reference
 from service.store.paging import Page, paginate
 from service.store.models import (
     Location,
@@ -69,7 +69,7 @@ def create_container(session: Session, body: ContainerIn) -> WasteContainer:
     micro = int(to_decimal(quantity, "ug" if form == "solid" else "uL").to_integral_value())
     if micro <= 0:
         raise InvalidInput("capacity", "must be above zero")
-    get(session, Location, body.location_id, field="location_id")
+    reference(session, Location, body.location_id, "location_id", lab_id=body.lab_id)
     if session.scalar(select(WasteContainer.id).where(func.lower(WasteContainer.label) == func.lower(body.label))):
         raise Conflict(f"a waste container labelled {body.label!r} exists", "label", body.label)
     container = WasteContainer(label=body.label, lab_id=body.lab_id, location_id=body.location_id, stream=body.stream,
@@ -161,9 +161,7 @@ def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Opti
     if not liquid and (body.mass is None or body.volume is not None or body.components):
         raise InvalidInput("mass", f"{container.label} holds solids: give the entry's mass (and no volume)")
     if body.run_id is not None:
-        run = session.get(Run, body.run_id)
-        if run is None:
-            raise InvalidInput("run_id", f"no run with id {body.run_id}")
+        run = reference(session, Run, body.run_id, "run_id", lab_id=container.lab_id)
         if run.state != "open":
             raise Conflict(f"run {run.id} is closed; record a clean-up entry without run_id instead", "run_id")
     amount = parse_quantity(body.volume if liquid else body.mass, expect="volume" if liquid else "mass",
@@ -173,7 +171,7 @@ def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Opti
         raise QuantityError(body.volume or body.mass or "", "must be above zero", "volume" if liquid else "mass")
     components = []
     for i, comp in enumerate(body.components):
-        get(session, Substance, comp.substance_id, field=f"components[{i}].substance_id")
+        reference(session, Substance, comp.substance_id, f"components[{i}].substance_id", active=False)
         ul = int(to_decimal(parse_quantity(comp.volume, expect="volume", field=f"components[{i}].volume"),
                             "uL").to_integral_value())
         components.append(WasteEntryComponent(substance_id=comp.substance_id, volume_ul=ul))
