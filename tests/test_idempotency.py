@@ -14,15 +14,21 @@ from tests.conftest import Api, make_user
 HEADER = "Idempotency-Key"
 
 
+def open_container(admin: Api, code: str, capacity: str) -> tuple[int, int]:
+    """A lab ``code`` with a satellite accumulation area and a solvent waste container there: (lab, container)."""
+    lab = admin.call("POST", "/labs", {"code": code, "name": f"Test lab {code}"}, 201)["id"]
+    saa = admin.call("POST", "/locations", {"lab_id": lab, "building": "T", "room": code, "storage": "hood SAA",
+                                            "kind": "satellite_accumulation_area"}, 201)["id"]
+    container = admin.call("POST", "/waste_containers", {"label": f"{code}-C1", "lab_id": lab, "location_id": saa,
+                                                         "stream": "non_halogenated_solvent_heavy_metals",
+                                                         "capacity": capacity}, 201)["id"]
+    return lab, container
+
+
 @pytest.fixture
 def site(app, client):
     admin = Api(client, make_user(app, "admin@test.example", "admin"))
-    lab = admin.call("POST", "/labs", {"code": "I-1", "name": "Retry test lab"}, 201)["id"]
-    saa = admin.call("POST", "/locations", {"lab_id": lab, "building": "I", "room": "I-1", "storage": "hood SAA",
-                                            "kind": "satellite_accumulation_area"}, 201)["id"]
-    container = admin.call("POST", "/waste_containers", {"label": "I-C1", "lab_id": lab, "location_id": saa,
-                                                         "stream": "non_halogenated_solvent_heavy_metals",
-                                                         "capacity": "20 L"}, 201)["id"]
+    lab, container = open_container(admin, "I-1", "20 L")
     researcher = make_user(app, "res@test.example", "researcher", lab_ids=[lab])
     return {"client": client, "admin": admin, "researcher": researcher, "lab": lab, "container": container,
             "acetone": admin.substance_id("acetone"), "admin_token": admin.token}

@@ -25,6 +25,7 @@ from click.testing import CliRunner
 
 from service.cli import main
 from tests.conftest import Api, make_app, make_user
+from tests.test_idempotency import open_container
 
 pytestmark = pytest.mark.slow
 
@@ -122,12 +123,7 @@ def test_no_acknowledged_entry_is_lost_across_kill_nine(database_url, rules_dir,
     app = make_app(database_url, rules_dir)
     token = make_user(app, "admin@test.example", "admin")
     api = Api(app.test_client(), token)
-    lab = api.call("POST", "/labs", {"code": "K-9", "name": "Restart test lab"}, 201)["id"]
-    saa = api.call("POST", "/locations", {"lab_id": lab, "building": "K", "room": "K-9", "storage": "hood SAA",
-                                          "kind": "satellite_accumulation_area"}, 201)["id"]
-    container = api.call("POST", "/waste_containers", {"label": "K-C1", "lab_id": lab, "location_id": saa,
-                                                       "stream": "non_halogenated_solvent_heavy_metals",
-                                                       "capacity": "200 L"}, 201)["id"]
+    _, container = open_container(api, "K-9", "200 L")
     body = {"description": "acetone washes", "volume": "10 mL",
             "components": [{"substance_id": api.substance_id("acetone"), "volume": "10 mL"}],
             "elements": [{"element": "Cd", "mass": "0.1 mg"}]}
