@@ -36,6 +36,8 @@ need python3-venv        "$python" -c "import ensurepip, venv"
 if [ "$profile" = test ]; then
   # Browser tests drive Debian's Chromium (never a browser download of a test tool's own).
   need chromium          test -x /usr/bin/chromium
+  # `dotledger backup` / `restore` on PostgreSQL run pg_dump and pg_restore (tests/test_backup.py).
+  need postgresql-client command -v pg_dump
 fi
 
 if [ "${#missing[@]}" -eq 0 ]; then

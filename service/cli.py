@@ -206,7 +206,10 @@ def add_user(email: str, display_name: str, role: str, lab_codes: tuple[str, ...
 
 
 @main.command("audit-verify")
-def audit_verify() -> None:
+@click.option("--expect", "expected_hash", metavar="HASH",
+              help="A head hash kept outside the database (printed by backup, in PATH.head): fail unless the "
+                   "intact chain still holds it.")
+def audit_verify(expected_hash: str | None) -> None:
     """Recompute the audit trail's hash chain; name the first broken event (exit status 1)."""
     from service.store import audit
     from service.store.db import session_scope
@@ -215,13 +218,68 @@ def audit_verify() -> None:
     with session_scope(_sessions(app), write=False) as session:
         head = session.get(audit.AuditHead, 1)
         report = audit.verify_chain(session)
-    if report.ok:
-        click.echo(f"audit chain intact: {report.events_checked} event(s); head hash {head.last_hash}")
+        anchor = audit.find_hash(session, expected_hash.strip().lower()) if report.ok and expected_hash else None
+    if not report.ok:
+        click.echo(f"audit chain BROKEN at event {report.first_broken_id}: {report.reason} "
+                   f"({report.events_checked} event(s) before it verified)", err=True)
+        sys.exit(1)
+    click.echo(f"audit chain intact: {report.events_checked} event(s); head hash {head.last_hash}")
+    if expected_hash is None:
         click.echo("keep the head hash outside the database (e.g. in the lab notebook) to detect a rewritten tail")
-        return
-    click.echo(f"audit chain BROKEN at event {report.first_broken_id}: {report.reason} "
-               f"({report.events_checked} event(s) before it verified)", err=True)
-    sys.exit(1)
+    elif anchor is None:
+        click.echo(f"audit chain does NOT hold the expected head hash {expected_hash}: the chain was rolled back or "
+                   f"rewritten after that hash was recorded (its head is now {head.last_hash})", err=True)
+        sys.exit(1)
+    else:
+        later = head.last_event_id - anchor
+        click.echo(f"expected head hash found at event {anchor}"
+                   + (" (the head)" if later == 0 else f"; {later} event(s) recorded after it"))
+
+
+@main.command()
+@click.argument("path", type=click.Path(dir_okay=False, path_type=Path))
+@click.option("--force", is_flag=True, help="Replace PATH if it exists.")
+def backup(path: Path, force: bool) -> None:
+    """Write an online, consistent copy of the database to PATH and its audit head hash to PATH.head.
+
+    SQLite: a copy through SQLite's backup API. PostgreSQL: a pg_dump archive (custom format) of the
+    database's schema. The server may keep running.
+    """
+    from service.store.backup import BackupError, backup as run_backup, head_file
+
+    app = _app()
+    try:
+        done = run_backup(app.config["DATABASE_URL"], path, force=force)
+    except BackupError as exc:
+        raise click.ClickException(str(exc)) from None
+    click.echo(f"backup written to {path}: audit head event {done.last_event_id}, hash {done.head_hash}")
+    click.echo(f"head hash written to {head_file(path)}; check a copy with: dotledger audit-verify --expect "
+               f"{done.head_hash}")
+
+
+@main.command()
+@click.argument("path", type=click.Path(exists=True, dir_okay=False, path_type=Path))
+@click.option("--force", is_flag=True, help="Replace the contents of a database that is not empty.")
+def restore(path: Path, force: bool) -> None:
+    """Load the backup at PATH into the configured database (an empty one unless --force)."""
+    from service.store.backup import BackupError, head_file, restore as run_restore
+
+    app = _app()
+    app.extensions["dotledger.engine"].dispose()  # no pooled connection of ours holds the target open
+    try:
+        report = run_restore(path, app.config["DATABASE_URL"], force=force)
+    except BackupError as exc:
+        raise click.ClickException(str(exc)) from None
+    if not report.ok:
+        click.echo(f"restored, but the audit chain is BROKEN at event {report.first_broken_id}: {report.reason}",
+                   err=True)
+        sys.exit(1)
+    click.echo(f"restored {path} into {app.config['DATABASE_URL']}; audit chain intact: "
+               f"{report.events_checked} event(s)")
+    kept = head_file(path)
+    if kept.is_file():
+        click.echo(f"check it against the head hash kept at the backup: dotledger audit-verify --expect "
+                   f"{kept.read_text(encoding='ascii').strip()}")
 
 
 @main.command()

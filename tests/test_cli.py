@@ -88,4 +88,4 @@ def test_the_console_script_lists_every_command():
     assert result.exit_code == 0, result.output
     listed = set(re.findall(r"^  ([a-z][a-z-]*) ", result.output.split("Commands:")[1], re.M))
     assert listed == {"init", "demo", "serve", "import-inventory", "add-user", "audit-verify", "preview",
-                      "report", "export", "estimate", "print"}
+                      "report", "export", "estimate", "print", "backup", "restore"}

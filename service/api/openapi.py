@@ -19,6 +19,7 @@ from typing import Callable, Optional
 
 from pydantic import BaseModel
 
+from service.api.idempotency import HEADER as IDEMPOTENCY_HEADER, KEY_MAX_CHARS, METHODS as IDEMPOTENT_METHODS
 from service.api.responses import Error
 from service.operations import JSON, Operation, declared
 
@@ -87,9 +88,27 @@ def _errors(codes: set[int]) -> dict:
             for code in sorted(codes)}
 
 
-def _operation(endpoint: str, rule: str, view: Callable, op: Operation, components: _Components,
+_IDEMPOTENCY_PARAMETER = {
+    "name": IDEMPOTENCY_HEADER, "in": "header", "required": False,
+    "schema": {"type": "string", "minLength": 1, "maxLength": KEY_MAX_CHARS, "pattern": "^[!-~]+$"},
+    "description": "a key the client makes up for this write: a repeat with the same key, method, path and body "
+                   "answers the first success again and records nothing (the header Idempotent-Replayed: true "
+                   "marks it); the same key with another request answers 422; 409 while a request with the key "
+                   "is still being recorded",
+}
+
+
+def _idempotent(endpoint: str, method: str, public: frozenset) -> bool:
+    """Whether the operation takes an Idempotency-Key (the api blueprint's writes by a signed-in user)."""
+    return method in IDEMPOTENT_METHODS and endpoint.startswith("api.") and endpoint not in public
+
+
+def _operation(endpoint: str, method: str, rule: str, view: Callable, op: Operation, components: _Components,
                public: frozenset, allowed_roles: frozenset, all_roles: frozenset) -> dict:
     codes = set(op.errors)
+    idempotent = _idempotent(endpoint, method, public)
+    if idempotent:
+        codes |= {409, 422}
     if endpoint not in public:
         codes.add(401)
         if allowed_roles != all_roles:
@@ -112,7 +131,7 @@ def _operation(endpoint: str, rule: str, view: Callable, op: Operation, componen
         "operationId": endpoint.split(".", 1)[-1],
         "summary": op.summary or (doc[0] if doc else endpoint.split(".", 1)[-1].replace("_", " ")),
         "tags": [rule.split("/")[3] or "api"],
-        "parameters": _parameters(rule, op, components),
+        "parameters": _parameters(rule, op, components) + ([dict(_IDEMPOTENCY_PARAMETER)] if idempotent else []),
         "responses": {**responses, **_errors(codes)},
     }
     if op.body is not None:
@@ -137,7 +156,7 @@ def build_document(app, prefix: str, *, public: frozenset, matrix: dict, roles: 
         path = _PATH_ARG.sub(r"{\2}", rule.rule)
         for method in sorted(rule.methods - {"HEAD", "OPTIONS"}):
             paths.setdefault(path, {})[method.lower()] = _operation(
-                rule.endpoint, rule.rule, view, op, components, public, matrix.get(rule.endpoint, frozenset()),
+                rule.endpoint, method, rule.rule, view, op, components, public, matrix.get(rule.endpoint, frozenset()),
                 frozenset(roles))
     return {
         "openapi": "3.1.0",

@@ -33,12 +33,14 @@ __all__ = [
     "redact_secrets",
     "install",
     "verify_chain",
+    "find_hash",
     "list_events",
 ]
 
 GENESIS = "0" * 64
 NOT_AUDITED = frozenset({"audit_events", "audit_head", "login_attempts", "stock_elements", "mixture_elements",
-                         "waste_container_totals", "waste_container_elements", "waste_container_components"})
+                         "idempotency_keys", "waste_container_totals", "waste_container_elements",
+                         "waste_container_components"})
 SECRETS = {"password_hash": "password_changed", "token_hash": "token_changed"}
 # A change to these alone is bookkeeping, not an event worth a link in the chain
 # (``last_used_at`` would otherwise add one per token-authenticated request).
@@ -325,6 +327,13 @@ def verify_chain(session: Session, *, batch_size: int = 1000) -> ChainReport:
         reason = f"the head names event {head.last_event_id} but the chain ends at event {prev_id}"
         return ChainReport(False, checked, prev_id + 1 if prev_id < head.last_event_id else prev_id, reason)
     return ChainReport(True, checked, None, f"{checked} events verified")
+
+
+def find_hash(session: Session, digest: str) -> Optional[int]:
+    """The id of the event whose hash is ``digest``, 0 for the empty chain's (None when the chain holds neither)."""
+    if digest == GENESIS:
+        return 0
+    return session.scalar(select(AuditEvent.id).where(AuditEvent.hash == digest))
 
 
 def list_events(session: Session, *, entity: Optional[str] = None, entity_id: Any = None,

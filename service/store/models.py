@@ -55,6 +55,7 @@ __all__ = [
     "WasteContainerTotals",
     "WasteContainerElement",
     "WasteContainerComponent",
+    "IdempotencyKey",
     "utcnow",
 ]
 
@@ -500,3 +501,24 @@ class WasteContainerComponent(Base):
     substance_id: Mapped[int] = mapped_column(ForeignKey("substances.id"), primary_key=True)
     volume_ul: Mapped[int] = mapped_column(BigInteger)
     substance: Mapped[Substance] = relationship(lazy="joined")
+
+
+# --- retried requests -------------------------------------------------------------
+
+class IdempotencyKey(Base):
+    """The first answer to an API write sent with an ``Idempotency-Key`` header, per user.
+
+    Saved in the transaction of the write itself, so a key is kept exactly when its write is.
+    """
+
+    __tablename__ = "idempotency_keys"
+    __table_args__ = (UniqueConstraint("user_id", "key"),)
+    id: Mapped[int] = mapped_column(primary_key=True)
+    user_id: Mapped[int] = mapped_column(ForeignKey("users.id"))
+    key: Mapped[str] = mapped_column(String(200))
+    request_sha256: Mapped[str] = mapped_column(String(64))  # method, path and body of the first request
+    status: Mapped[int] = mapped_column(Integer)
+    content_type: Mapped[str] = mapped_column(String(100))
+    location: Mapped[Optional[str]] = mapped_column(String(500), default=None)
+    body: Mapped[str] = mapped_column(Text)
+    created_at: Mapped[dt.datetime] = mapped_column(default=utcnow)
