@@ -12,6 +12,8 @@ from service import vocab
 from service.chem.substances import Substance as CatalogueSubstance
 
 __all__ = [
+    "ID_MAX",
+    "RecordId",
     "ElementSymbol",
     "LabIn",
     "LabPatch",
@@ -57,6 +59,11 @@ LocationKind = Literal[vocab.LOCATION_KINDS]
 
 # An element symbol checked against the periodic table ("Cd", not "cd", "n" or "Qq"): service.vocab's one check.
 ElementSymbol = Annotated[str, AfterValidator(vocab.element_symbol)]
+
+# A record id: the id columns are PostgreSQL ``integer`` (4 bytes, to 2^31 - 1), the narrower of the two
+# databases (SQLite's INTEGER goes to 2^63 - 1); a larger id names no record on either.
+ID_MAX = 2**31 - 1
+RecordId = Annotated[int, Field(ge=1, le=ID_MAX)]
 
 
 class _Body(BaseModel):
@@ -199,9 +206,9 @@ class ListQuery(PageQuery):
     """Filters of the inventory listings (labs, locations, substances, stocks, mixtures)."""
 
     include_retired: bool = False
-    lab_id: Optional[int] = None
-    location_id: Optional[int] = None
-    substance_id: Optional[int] = None
+    lab_id: Optional[RecordId] = None
+    location_id: Optional[RecordId] = None
+    substance_id: Optional[RecordId] = None
     element: Optional[ElementSymbol] = None
 
 

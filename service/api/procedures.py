@@ -27,7 +27,7 @@ def _visible(ident: int) -> Procedure:
 
 class ProcedureQuery(schemas.PageQuery):
     state: str | None = Field(default=None, max_length=40)
-    lab_id: int | None = None
+    lab_id: schemas.RecordId | None = None
 
 
 def _listed(proc: Procedure) -> dict:

@@ -27,7 +27,7 @@ def _visible(ident: int) -> Run:
 
 
 class RunQuery(schemas.PageQuery):
-    procedure_id: Optional[int] = None
+    procedure_id: Optional[schemas.RecordId] = None
 
 
 @bp.get("/runs", endpoint="list_runs")

@@ -10,7 +10,7 @@ from decimal import Decimal
 from typing import Any, Optional, TypeVar
 
 from pydantic import BaseModel
-from sqlalchemy import exists, func, select
+from sqlalchemy import and_, exists, func, select
 from sqlalchemy.orm import Session
 
 from service.chem.content import Component, mixture_element_masses_ug, substance_element_masses_ug
@@ -55,6 +55,7 @@ T = TypeVar("T")
 _ENTITY = {Lab: "lab", Location: "location", Substance: "substance", Stock: "stock", Mixture: "mixture", User: "user",
            Procedure: "procedure", Run: "run", WasteContainer: "waste container"}
 _UNIQUE = {Lab: ("code",), Substance: ("key",), Stock: ("label",), Mixture: ("label",)}
+_UNIQUE_TOGETHER = {Location: ("building", "room", "storage")}  # a place is named once
 
 
 def get(session: Session, model: type[T], ident: int, *, field: Optional[str] = None) -> T:
@@ -84,6 +85,20 @@ def _check_unique(session: Session, model, values: dict[str, Any], own_id: Optio
                 raise Conflict(f"a {_ENTITY[model]} with {column} {values[column]!r} exists", column, values[column])
 
 
+def _check_unique_together(session: Session, model, values: dict[str, Any], record=None) -> None:
+    """Refuse a create or update that would repeat a combination the table keeps unique (409, not 500)."""
+    columns = _UNIQUE_TOGETHER.get(model, ())
+    if not any(column in values for column in columns):
+        return
+    merged = {column: values[column] if column in values else getattr(record, column) for column in columns}
+    clause = and_(*(getattr(model, column) == value for column, value in merged.items()))
+    if record is not None:
+        clause = clause & (model.id != record.id)
+    if session.scalar(select(exists().where(clause))):
+        named = ", ".join(f"{column} {value!r}" for column, value in merged.items())
+        raise Conflict(f"a {_ENTITY[model]} with {named} exists", columns[-1], merged[columns[-1]])
+
+
 def _check_refs(session: Session, values: dict[str, Any]) -> None:
     for field, model in (("lab_id", Lab), ("location_id", Location), ("substance_id", Substance)):
         if values.get(field) is not None:
@@ -96,6 +111,7 @@ def create_record(session: Session, model: type[T], body: BaseModel, **extra: An
     if model is Substance:
         values = _substance_values(values)
     _check_unique(session, model, values)
+    _check_unique_together(session, model, values)
     _check_refs(session, values)
     record = model(**values)
     session.add(record)
@@ -107,6 +123,7 @@ def update_record(session: Session, record: T, patch: BaseModel) -> T:
     """Apply the fields set in ``patch`` to a lab, location or substance."""
     values = patch.model_dump(exclude_unset=True)
     _check_unique(session, type(record), values, record.id)
+    _check_unique_together(session, type(record), values, record)
     _check_refs(session, values)
     for key, value in values.items():
         setattr(record, key, value)
