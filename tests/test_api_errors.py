@@ -75,6 +75,15 @@ def test_a_conflict_only_the_database_sees_is_409_with_its_columns(api, monkeypa
     assert [d["field"] for d in error["details"]] == ["building", "room", "storage"]
 
 
+def test_a_null_the_database_refuses_is_422_naming_the_column(api):
+    # A patch may send null for a field whose column is NOT NULL; until the schema refuses it, the
+    # constraint answers (on either database) and names the column.
+    user = api.call("POST", "/users", {"email": "n@test.example", "display_name": "N", "role": "researcher",
+                                       "password": "correct horse battery"}, 201)
+    error = api.call("PATCH", f"/users/{user['id']}", {"display_name": None}, expect=422)["error"]
+    assert error["details"] == [{"field": "display_name", "message": "must not be null"}]
+
+
 @pytest.mark.parametrize("depth", [33, 100_000])
 def test_deeply_nested_json_is_refused_before_parsing(api, client, depth):
     text = '{"name": ' + "[" * depth + "]" * depth + "}"
