@@ -19,6 +19,8 @@ from service.datafiles import load_data_file
 from service.resources import RULES_DIR
 
 __all__ = [
+    "ID_MAX",
+    "RecordId",
     "ElementSymbol",
     "Id",
     "Label",
@@ -70,6 +72,11 @@ LocationKind = Literal[vocab.LOCATION_KINDS]
 
 # An element symbol checked against the periodic table ("Cd", not "cd", "n" or "Qq"): service.vocab's one check.
 ElementSymbol = Annotated[str, AfterValidator(vocab.element_symbol)]
+
+# A record id: the id columns are PostgreSQL ``integer`` (4 bytes, to 2^31 - 1), the narrower of the two
+# databases (SQLite's INTEGER goes to 2^63 - 1); a larger id names no record on either.
+ID_MAX = 2**31 - 1
+RecordId = Annotated[int, Field(ge=1, le=ID_MAX)]
 
 
 # --- bounded field types -----------------------------------------------------------------------

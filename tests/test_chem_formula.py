@@ -102,6 +102,8 @@ def test_fractional_hydrate():
     [
         ("Qq2", 0, "unknown element 'Qq'"),
         ("Cd$O", 2, "unexpected character '$'"),
+        ("Cd O", 2, "unexpected character ' '"),  # a space inside a group
+        (" Cd¾", 3, "unexpected character '¾'"),  # str.isalnum() holds for '¾', the pattern is ASCII
         ("CdO·", 4, "missing group"),
         ("Cd)O", 2, "cannot parse"),
         ("", 0, "empty formula"),

@@ -4,16 +4,23 @@ API paths (``service.operations.is_api_path``: the API's and the documents' rout
 ``{"error": {"code", "message", "details"}}``; pages answer HTML.
 Nothing reaches the client as a bare 500: an unexpected error is logged, rolled back and
 answered with a generic message.
+
+The guards on what a request may carry live here too, since they answer in the same shape: a path id
+outside 1..2^31-1 (the range of the id columns) answers 404, a body above
+``MAX_CONTENT_LENGTH`` answers 413, and a JSON body nested deeper than ``JSON_DEPTH_MAX`` answers 400
+before the JSON parser or pydantic sees it.
 """
 
 from __future__ import annotations
 
 import logging
+import re
 from typing import Mapping, Optional
 
 from flask import Flask, jsonify, make_response, render_template, request
 from pydantic import ValidationError
-from werkzeug.exceptions import HTTPException
+from sqlalchemy.exc import IntegrityError
+from werkzeug.exceptions import HTTPException, NotFound as NoRoute
 
 from service.chem.cas import CasNumberError
 from service.chem.formula import FormulaError
@@ -22,10 +29,28 @@ from service.datafiles import DataFileError
 from service.nano import NanoError
 from service.errors import Blocked, Conflict, CsrfFailed, Forbidden, InvalidInput, NotFound, Unauthenticated
 from service.operations import is_api_path
+from service.schemas import ID_MAX
 
-__all__ = ["ApiError", "error_response", "init_app"]
+__all__ = ["ApiError", "JSON_DEPTH_MAX", "error_response", "init_app"]
 
 log = logging.getLogger(__name__)
+
+JSON_DEPTH_MAX = 32  # the deepest request body the API takes (its own bodies nest 4 levels at most)
+_JSON_STRING = re.compile(r'"(?:[^"\\]|\\.)*"', re.DOTALL)
+_JSON_BRACKET = re.compile(r"[\[\]{}]")
+
+
+def json_depth(text: str) -> int:
+    """How deep the arrays and objects of a JSON text nest (strings skipped; no parsing).
+
+    >>> json_depth('{"a": [1, {"b": "]]]"}]}'), json_depth('3'), json_depth('[[[]]]')
+    (3, 0, 3)
+    """
+    depth = deepest = 0
+    for bracket in _JSON_BRACKET.findall(_JSON_STRING.sub("", text)):
+        depth += 1 if bracket in "[{" else -1
+        deepest = max(deepest, depth)
+    return deepest
 
 
 class ApiError(Exception):
@@ -63,7 +88,41 @@ def _validation_details(exc: ValidationError) -> list[dict]:
     ]
 
 
+def _integrity_answer(exc: IntegrityError) -> tuple[int, str, str, list[dict]]:
+    """What a constraint only the database caught means: a missing or out-of-range value (422), else a
+    clash with a stored record (409), with the columns the message names (SQLite or PostgreSQL)."""
+    text = str(exc.orig)
+    if "NOT NULL constraint failed" in text or "violates not-null constraint" in text:
+        found = re.search(r"failed: \w+\.(\w+)", text) or re.search(r'column "(\w+)"', text)
+        field = found.group(1) if found else None
+        return 422, "invalid_input", "a required value is missing", [{"field": field, "message": "must not be null"}]
+    if "CHECK constraint failed" in text or "violates check constraint" in text:
+        found = re.search(r"failed: (\w+)", text) or re.search(r'check constraint "(\w+)"', text)
+        rule = found.group(1) if found else None
+        return 422, "invalid_input", "a value is outside what the record allows", [{"field": None, "rule": rule}]
+    found = re.search(r"UNIQUE constraint failed: ([\w., ]+)", text) or re.search(r"Key \(([^)]*)\)=", text)
+    columns = [c.strip().rsplit(".", 1)[-1] for c in found.group(1).split(",")] if found else []
+    return 409, "conflict", "the change conflicts with a stored record", [
+        {"field": column, "message": "conflicts with a stored record"} for column in columns]
+
+
 def init_app(app: Flask) -> None:
+    """Install the error handlers and the request guards."""
+    if app.config.get("MAX_CONTENT_LENGTH") is None:
+        app.config["MAX_CONTENT_LENGTH"] = 1024 * 1024
+
+    @app.url_value_preprocessor
+    def _ids_in_range(endpoint, values):
+        # Every <int:...> of a route is a record id; one outside the columns' range names no record.
+        for name, value in (values or {}).items():
+            if isinstance(value, int) and not 1 <= value <= ID_MAX:
+                raise NoRoute(f"no record has {name} {value}: ids run from 1 to {ID_MAX}")
+
+    @app.before_request
+    def _json_depth():
+        if request.is_json and json_depth(request.get_data(as_text=True)) > JSON_DEPTH_MAX:
+            raise ApiError(400, "bad_request", f"the JSON body nests deeper than {JSON_DEPTH_MAX} levels")
+
     @app.errorhandler(ApiError)
     def _api_error(exc: ApiError):
         response = make_response(error_response(exc.status, exc.code, exc.message, exc.details))
@@ -127,10 +186,21 @@ def init_app(app: Flask) -> None:
     def _data_file(exc: DataFileError):
         return error_response(500, "bad_data_file", "a data file in rules/ is invalid", {"file": exc.path})
 
+    @app.errorhandler(IntegrityError)
+    def _integrity(exc: IntegrityError):
+        # Service functions check what they can first; this answers what only the database saw (a race,
+        # a check the schemas missed). Logged: each one is a check to add where the request is read.
+        log.warning("constraint caught by the database on %s %s: %s", request.method, request.path, exc.orig)
+        return error_response(*_integrity_answer(exc))
+
     @app.errorhandler(HTTPException)
     def _http(exc: HTTPException):
         code = (exc.name or "error").lower().replace(" ", "_")
-        return error_response(exc.code or 500, code, exc.description or exc.name)
+        response = make_response(error_response(exc.code or 500, code, exc.description or exc.name))
+        for name, value in exc.get_headers():  # Allow on a 405, and the like
+            if name.lower() != "content-type":
+                response.headers[name] = value
+        return response
 
     @app.errorhandler(Exception)
     def _unexpected(exc: Exception):  # pragma: no cover - exercised only by bugs

@@ -6,8 +6,8 @@ The decorator lives in ``service.operations`` (below every blueprint that serves
 A view names the pydantic models it validates its body and query string with, its success status
 and the shape of its answer, and the 4xx answers particular to it (a conflict, a lab check). The
 answers every route shares follow from the route and the permission matrix: 401 unless the route is
-public, 403 where the matrix leaves a role out, 404 for a record named in the path, 400 and 422 for
-a JSON body, 422 for query parameters. A view without ``@operation`` is missing from the document,
+public, 403 where the matrix leaves a role out, 404 for a record named in the path, 400, 413 and 422
+for a JSON body, 422 for query parameters. A view without ``@operation`` is missing from the document,
 and tests/test_openapi.py fails.
 """
 
@@ -22,6 +22,7 @@ from pydantic import BaseModel
 from service.api.idempotency import HEADER as IDEMPOTENCY_HEADER, KEY_MAX_CHARS, METHODS as IDEMPOTENT_METHODS
 from service.api.responses import Error
 from service.operations import JSON, Operation, declared
+from service.schemas import ID_MAX
 
 __all__ = ["build_document"]
 
@@ -66,7 +67,7 @@ _PATH_ARG = re.compile(r"<(?:(\w+):)?(\w+)>")
 
 def _parameters(rule: str, op: Operation, components: _Components) -> list[dict]:
     params = [{"name": name, "in": "path", "required": True,
-               "schema": {"type": "integer", "minimum": 1} if converter == "int" else {"type": "string"}}
+               "schema": {"type": "integer", "minimum": 1, "maximum": ID_MAX} if converter == "int" else {"type": "string"}}
               for converter, name in _PATH_ARG.findall(rule)]
     if op.query is not None:
         schema = op.query.model_json_schema(ref_template=REF)
@@ -116,7 +117,7 @@ def _operation(endpoint: str, method: str, rule: str, view: Callable, op: Operat
     if _PATH_ARG.search(rule):
         codes.add(404)
     if op.body is not None:
-        codes |= {400, 422}
+        codes |= {400, 413, 422}  # not JSON or nested too deep; above MAX_CONTENT_LENGTH; does not validate
     if op.query is not None:
         codes.add(422)
     if op.paged:

@@ -115,7 +115,8 @@ def parse_formula(text: str) -> Formula:
         if not stripped:
             raise FormulaError(text, offset, "missing group")
         if not re.fullmatch(r"[A-Za-z0-9()\[\]]+", stripped):
-            bad = next(i for i, ch in enumerate(part) if not (ch.isalnum() or ch in "()[] "))
+            # the first character outside the pattern (a space inside, or a letter or digit beyond ASCII)
+            bad = part.find(stripped) + re.search(r"[^A-Za-z0-9()\[\]]", stripped).start()
             raise FormulaError(text, offset + bad, f"unexpected character {part[bad]!r}")
         try:
             parsed = periodictable.formula(stripped.replace("[", "(").replace("]", ")"))

@@ -143,7 +143,9 @@ def create_record(session: Session, model: type[T], body: BaseModel, **extra: An
 def update_record(session: Session, record: T, patch: BaseModel) -> T:
     """Apply the fields set in ``patch`` to a lab, location or substance."""
     values = patch.model_dump(exclude_unset=True)
-    _check_unique(session, type(record), values, record.id)
+    # Columns unique together are checked with the record's other values (a patch may name one of them).
+    stored = {column: getattr(record, column) for columns in _UNIQUE.get(type(record), ()) for column in columns}
+    _check_unique(session, type(record), {**stored, **values}, record.id)
     _check_refs(session, values)
     for key, value in values.items():
         setattr(record, key, value)
