@@ -81,8 +81,8 @@ RecordId = Annotated[int, Field(ge=1, le=ID_MAX)]
 
 # --- bounded field types -----------------------------------------------------------------------
 
-# Ids are SQL BIGINTs: 1 to 2^63 - 1.
-Id = Annotated[int, Field(ge=1, le=2**63 - 1)]
+# Ids in bodies and queries: the same range as RecordId (a larger id names no record on either database).
+Id = RecordId
 
 
 # Hyphen (U+2010) and non-breaking hyphen (U+2011), which NFKC keeps, read as "-" in a label.
