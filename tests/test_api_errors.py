@@ -69,7 +69,7 @@ def test_a_duplicate_location_is_a_conflict_naming_the_field(api):
 def test_a_conflict_only_the_database_sees_is_409_with_its_columns(api, monkeypatch):
     # As if two clients raced past the check: the unique constraint itself answers, on either database.
     lab_id, _ = api.lab_and_location()
-    monkeypatch.setattr(inventory, "_check_unique_together", lambda *args, **kwargs: None)
+    monkeypatch.setattr(inventory, "_check_unique", lambda *args, **kwargs: None)
     error = api.call("POST", "/locations", _location(lab_id), expect=409)["error"]
     assert error["code"] == "conflict"
     assert [d["field"] for d in error["details"]] == ["building", "room", "storage"]

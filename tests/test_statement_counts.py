@@ -69,7 +69,7 @@ def _seed(app) -> dict[str, int]:
             inventory.create_mixture(s, MixtureIn(label=f"S-M{n}", name=f"seed oleate {n}", lab_id=lab.id,
                                                   location_id=saa.id, volume="10 mL",
                                                   components=[ComponentIn(substance_id=cdo, molarity="0.1 mol/L"),
-                                                              ComponentIn(substance_id=ode, volume_fraction="0.9")]))
+                                                              ComponentIn(substance_id=ode, volume_fraction=0.9)]))
         procs = []
         for n in range(ROWS):
             body = ProcedureIn(lab_id=lab.id, title=f"Seed batch {n}",

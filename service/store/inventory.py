@@ -115,7 +115,7 @@ def _check_unique(session: Session, model, values: dict[str, Any], own_id: Optio
         if session.scalar(select(exists().where(clause))):
             shown = ", ".join(str(values[c]) for c in columns)
             raise Conflict(f"a {_ENTITY[model]} with {'/'.join(columns)} {shown!r} exists (case is not a difference)",
-                           columns[-1] if len(columns) == 1 else "/".join(columns), shown)
+                           columns[-1], shown)
 
 
 def _check_refs(session: Session, values: dict[str, Any], lab_id: Optional[int] = None) -> None:
