@@ -52,6 +52,7 @@ MATRIX: dict[str, frozenset[str]] = {
     "api.create_procedures": frozenset({"researcher", "lab_manager", "admin"}),
     "api.update_procedures": frozenset({"researcher", "lab_manager", "admin"}),
     "api.submit_procedure": frozenset({"researcher", "lab_manager", "admin"}),
+    "api.withdraw_procedure": frozenset({"researcher", "lab_manager", "admin"}),  # researchers: their own only
     "api.approve_procedure": frozenset({"safety_officer"}),
     "api.request_changes_procedure": frozenset({"safety_officer"}),
     "api.decline_procedure": frozenset({"safety_officer"}),

@@ -70,8 +70,10 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
     "stocks and mixtures (researchers in their labs prepare and draw them)": (
         frozenset({RESEARCHER, MANAGER, ADMIN}), _writes("stocks") + _writes("mixtures")),
     # Procedures: researchers register and submit; only the safety officer decides.
-    "procedure create, edit, submit": (frozenset({RESEARCHER, MANAGER, ADMIN}),
-                                       ["api.create_procedures", "api.update_procedures", "api.submit_procedure"]),
+    # (withdraw: researchers their own only, which the store checks per procedure)
+    "procedure create, edit, submit, withdraw": (frozenset({RESEARCHER, MANAGER, ADMIN}),
+                                                 ["api.create_procedures", "api.update_procedures",
+                                                  "api.submit_procedure", "api.withdraw_procedure"]),
     "approve, request changes, decline": (frozenset({OFFICER}),
                                           ["api.approve_procedure", "api.request_changes_procedure",
                                            "api.decline_procedure"]),

@@ -234,3 +234,24 @@ def test_preview_command(sqlite_url, monkeypatch):
     assert bad.exit_code == 2 and "above 0" in bad.output
     missing = runner.invoke(main, ["preview", "999"])
     assert missing.exit_code == 1 and "no procedure with id 999" in missing.output
+
+
+def test_withdraw_a_submitted_procedure(app, lab):
+    researcher, officer, admin = lab["researcher"], lab["officer"], lab["admin"]
+    proc = researcher.call("POST", "/procedures", cdse_core(lab), 201)
+    error = researcher.call("POST", f"/procedures/{proc['id']}/withdraw", {}, 409)["error"]  # a draft: nothing to withdraw
+    assert error["code"] == "conflict" and error["details"] == [{"field": "state", "value": "draft"}]
+    researcher.call("POST", f"/procedures/{proc['id']}/submit")
+    other = Api(researcher.client, make_user(app, "other@test.example", "researcher", lab_ids=[lab["id"]]))
+    error = other.call("POST", f"/procedures/{proc['id']}/withdraw", {}, 403)["error"]  # same lab, not theirs
+    assert "researcher" in error["message"]
+    officer.call("POST", f"/procedures/{proc['id']}/withdraw", {}, 403)  # the matrix: the officer decides instead
+    withdrawn = researcher.call("POST", f"/procedures/{proc['id']}/withdraw")  # no comment needed
+    assert withdrawn["state"] == "draft" and withdrawn["submitted_at"] is None
+    assert officer.call("GET", "/review_queue")["items"] == []
+    assert researcher.call("PATCH", f"/procedures/{proc['id']}", {"title": "CdSe cores, revised"})["state"] == "draft"
+    researcher.call("POST", f"/procedures/{proc['id']}/submit")
+    assert admin.call("POST", f"/procedures/{proc['id']}/withdraw")["state"] == "draft"  # an administrator may
+    decisions = officer.call("GET", f"/procedures/{proc['id']}/decisions")["items"]
+    assert [(d["from_state"], d["to_state"]) for d in decisions] == [
+        ("draft", "submitted"), ("submitted", "draft"), ("draft", "submitted"), ("submitted", "draft")]

@@ -45,6 +45,7 @@ __all__ = [
     "findings_of",
     "last_approved_scale",
     "transition",
+    "may_act",
     "review_queue",
     "decisions_of",
     "list_procedures",
@@ -59,7 +60,10 @@ TRANSITIONS: dict[str, tuple[frozenset[str], str, bool]] = {
     "request_changes": (frozenset({"submitted"}), "changes_requested", True),
     "decline": (frozenset({"submitted"}), "declined", True),
     "retire": (frozenset({"approved"}), "retired", False),
+    "withdraw": (frozenset({"submitted"}), "draft", False),  # back to the author before a decision
 }
+# Roles that may withdraw any submitted procedure they can see (others only their own).
+WITHDRAW_ANY = frozenset({"lab_manager", "admin"})
 EDITABLE = frozenset({"draft", "changes_requested"})
 _SEVERITY = {level: rank for rank, level in enumerate(vocab.FINDING_LEVELS)}  # note 0 … block 3
 
@@ -257,28 +261,44 @@ def findings_of(session: Session, proc: Procedure, rules: LayeredRules, *, scale
 # --- workflow -----------------------------------------------------------------
 
 
+def may_act(proc: Procedure, action: str, actor: User) -> Optional[str]:
+    """Why ``actor`` may not take ``action`` on ``proc`` because of who they are, or None.
+
+    The role matrix (service.permissions) decides which roles take an action at all; this is
+    the rule about the procedure's own author: nobody approves their own procedure, and a
+    researcher withdraws only their own.
+    """
+    own = proc.researcher_id == actor.id
+    if action == "approve" and own:
+        return "nobody approves their own procedure"
+    if action == "withdraw" and not own and actor.role not in WITHDRAW_ANY:
+        return "only its researcher, a lab manager or an administrator withdraws a procedure"
+    return None
+
+
 def transition(session: Session, proc: Procedure, action: str, actor: User, comment: Optional[str],
                rules: LayeredRules) -> Procedure:
     """Move ``proc`` by ``action`` (see TRANSITIONS), recording the decision.
 
     Raises Conflict for a wrong state, Blocked for block findings on submit or
-    approve, Forbidden for approving one's own procedure, InvalidInput for a missing comment.
+    approve, Forbidden for approving one's own procedure or withdrawing another researcher's
+    (``may_act``), InvalidInput for a missing comment.
     """
     starts, target, needs_comment = TRANSITIONS[action]
     if proc.state not in starts:
         raise Conflict(f"cannot {action.replace('_', ' ')} a procedure that is {proc.state.replace('_', ' ')}",
                        "state", proc.state)
+    refused = may_act(proc, action, actor)
+    if refused:
+        raise Forbidden(refused, {"procedure_id": proc.id})
     findings = findings_of(session, proc, rules)
     level = highest_level(findings)
     comment = (comment or "").strip() or None
     if action in ("submit", "approve") and level == "block":
         blocking = [f for f in findings if f.level == "block"]
         raise Blocked(f"{len(blocking)} finding(s) block this procedure; change it first", findings)
-    if action == "approve":
-        if proc.researcher_id == actor.id:
-            raise Forbidden("nobody approves their own procedure", {"procedure_id": proc.id})
-        if level == "review" and not comment:
-            needs_comment = True
+    if action == "approve" and level == "review" and not comment:
+        needs_comment = True
     if needs_comment and not comment:
         raise InvalidInput("comment", f"a comment is required to {action.replace('_', ' ')} this procedure")
     now = utcnow()
@@ -286,6 +306,8 @@ def transition(session: Session, proc: Procedure, action: str, actor: User, comm
                                   comment=comment, highest_level=level, at=now))
     if action == "submit":
         proc.submitted_at = now
+    elif action == "withdraw":
+        proc.submitted_at = None  # a draft again; the decision row keeps when it was submitted
     elif action in ("approve", "request_changes", "decline"):
         proc.decided_at, proc.decided_by_id, proc.decision_comment = now, actor.id, comment
     if action == "approve":
