@@ -28,6 +28,7 @@ def create_app(test_config: Optional[Mapping[str, Any]] = None) -> Flask:
     from service.api import bp as api_bp
     from service.api import errors
     from service.documents.routes import bp as documents_bp
+    from service.documents.routes import pages as documents_pages_bp
     from service.store import db
     from service.web import bp as web_bp
 
@@ -38,6 +39,7 @@ def create_app(test_config: Optional[Mapping[str, Any]] = None) -> Flask:
     auth.init_app(app)
     app.register_blueprint(api_bp)
     app.register_blueprint(documents_bp)  # under /api/v1 too: tokens, JSON errors, in the OpenAPI document
+    app.register_blueprint(documents_pages_bp)  # the PDFs again for the pages: the sign-in cookie, HTML errors
     app.register_blueprint(web_bp)
     if app.config["TRUSTED_PROXIES"]:
         from werkzeug.middleware.proxy_fix import ProxyFix

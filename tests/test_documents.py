@@ -237,3 +237,44 @@ def test_cli_print_writes_pdf_and_hash(demo, tmp_path):
     assert digest in _text(target.read_bytes())[1][0]
     missing = CliRunner().invoke(service.console.main, ["print", "manifest", "99999"])
     assert missing.exit_code != 0
+
+
+@pytest.mark.parametrize("title, state", [("CsPbBr3 perovskite nanocrystals", "draft"),
+                                          ("CdSe/ZnS core-shell growth", "submitted")])
+def test_an_assessment_not_approved_is_marked_draft_on_every_page(demo, title, state):
+    app, api, _ = demo
+    procs, _ = _ids(api)
+    assert api.call("GET", f"/procedures/{procs[title]}")["state"] == state  # the demo scenario's states
+    _, pages = _text(_get(api, f"/procedures/{procs[title]}/assessment.pdf").data)
+    assert f"DRAFT — not approved (state: {state})" in pages[0]
+    assert all("DRAFT" in page for page in pages)  # the running head and the mark across the page
+    assert "Approved " not in " ".join(pages)
+
+
+def test_an_approved_assessment_names_the_date_and_the_decider(demo):
+    app, api, _ = demo
+    procs, _ = _ids(api)
+    ident = procs["CdSe cores by hot injection"]
+    view = api.call("GET", f"/procedures/{ident}")
+    decider = next(u for u in api.call("GET", "/users?limit=100")["items"] if u["id"] == view["decided_by_id"])
+    _, pages = _text(_get(api, f"/procedures/{ident}/assessment.pdf").data)
+    text = " ".join(pages)
+    assert f"Approved {view['decided_at'][:10]} by {decider['display_name']}" in text
+    assert "DRAFT" not in text
+
+
+def test_steps_and_substances_are_numbered_from_one(demo):
+    app, api, _ = demo
+    procs, _ = _ids(api)
+    ident = procs["CdSe cores by hot injection"]
+    view = api.call("GET", f"/procedures/{ident}")
+    assert view["steps"][0]["position"] == 0  # stored from 0; people count from 1
+    html = _get(api, f"/procedures/{ident}/assessment.html").get_data(as_text=True)
+    steps = html.split("2. Procedure steps", 1)[1].split("3. Substances", 1)[0]
+    numbers = re.findall(r'<tr><td class="num">(\d+)</td>', steps)
+    assert numbers == [str(i) for i in range(1, len(view["steps"]) + 1)]
+    substances = html.split("3. Substances", 1)[1].split("Element masses per batch", 1)[0]
+    assert re.findall(r'<tr><td class="num">(\d+)</td>', substances)[:2] == ["1", "2"]
+    _, pages = _text(_get(api, f"/procedures/{ident}/assessment.pdf").data)
+    first_step = view["steps"][0]["operation"]
+    assert re.search(rf"Note 1 {first_step}\b", " ".join(pages)), "the first step row reads 1 <operation>"

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from service.documents.controls import ControlsFile, Facts, applicable
 
-__all__ = ["DEFERRAL", "assessment_data", "substance_row", "hazard_texts"]
+__all__ = ["DEFERRAL", "assessment_data", "approval_status", "substance_row", "hazard_texts"]
 
 DEFERRAL = ("This sheet is an aid to planning and review, generated from the records and the active rule packs. "
             "It is not a classification, an approval or a waste determination: those rest with the regulations "
@@ -57,6 +57,27 @@ def hazard_texts(rows: list[dict], text_of) -> list[dict]:
     return [{"code": c, "text": text_of(c) or "(no text in hazard-statements.yaml — check the catalogue)"} for c in seen]
 
 
+def approval_status(state: str, decided_at: str | None, decider: str | None) -> dict:
+    """Whether the sheet describes an approved procedure, and the line every page prints about it.
+
+    >>> approval_status("submitted", None, None)["text"]
+    'DRAFT — not approved (state: submitted)'
+    >>> approval_status("changes_requested", "2026-12-01T09:00:00+00:00", "S. Officer")["marker"]
+    'DRAFT'
+    >>> approval_status("approved", "2026-12-01T09:00:00+00:00", "S. Officer")
+    {'approved': True, 'marker': None, 'text': 'Approved 2026-12-01 by S. Officer'}
+    >>> approval_status("retired", "2026-12-01T09:00:00+00:00", "S. Officer")["text"]
+    'RETIRED — no longer approved (state: retired)'
+    """
+    if state == "approved":
+        return {"approved": True, "marker": None,
+                "text": f"Approved {(decided_at or '')[:10] or 'on an unrecorded date'} by {decider or 'an unrecorded user'}"}
+    if state == "retired":
+        return {"approved": False, "marker": "RETIRED", "text": "RETIRED — no longer approved (state: retired)"}
+    return {"approved": False, "marker": "DRAFT",
+            "text": f"DRAFT — not approved (state: {state.replace('_', ' ')})"}
+
+
 def _facts(view: dict, substances: list[list[dict]]) -> Facts:
     return Facts(
         measures=frozenset(f["measure"].split(":", 1)[0] for f in view.get("findings", [])),
@@ -67,12 +88,13 @@ def _facts(view: dict, substances: list[list[dict]]) -> Facts:
     )
 
 
-def assessment_data(view: dict, *, substances: list[list[dict]], lab: dict, researcher: str, site: str,
-                    page_size: str, generated_at: str, document_id: str, controls: ControlsFile, text_of,
+def assessment_data(view: dict, *, substances: list[list[dict]], lab: dict, researcher: str, decider: str | None,
+                    site: str, page_size: str, generated_at: str, document_id: str, controls: ControlsFile, text_of,
                     followed_elements: tuple[str, ...]) -> dict:
     """The dict the risk-assessment template renders (and whose canonical JSON is hashed).
 
-    ``substances[i]`` are the catalogue records behind ``view["draws"][i]``; ``text_of``
+    ``substances[i]`` are the catalogue records behind ``view["draws"][i]``; ``decider`` names who
+    took the last decision (printed with an approval; any other state prints a DRAFT marker); ``text_of``
     maps an H-code to its standard text; ``followed_elements`` are the metals the waste
     plan reports (the mass-balance elements).
     """
@@ -86,6 +108,7 @@ def assessment_data(view: dict, *, substances: list[list[dict]], lab: dict, rese
         "generated_at": generated_at, "page_size": page_size,
         "procedure": {k: view[k] for k in ("id", "family_id", "revision", "title", "summary", "scale", "state",
                                            "submitted_at", "decided_at", "decision_comment", "highest_level")},
+        "approval": approval_status(view["state"], view["decided_at"], decider),
         "steps": view["steps"],
         "substances": rows,
         "h_statements": hazard_texts(rows, text_of),

@@ -6,7 +6,9 @@ under the prefix, its requests take bearer tokens and answer JSON errors like th
 
 Lab-scoped like the JSON reads. The data is gathered in the request's session, which then
 ends; the HTML and the PDF are made after it (no transaction open while WeasyPrint works).
-Every answer carries ``X-Document-SHA256``, the hash of the document's data that is also
+The PDFs are also served to the pages by a second blueprint without the prefix (``pages``,
+``/procedures/<id>/assessment.pdf`` and ``/waste/<id>/manifest.pdf``), where the sign-in
+cookie authorises them. Every answer carries ``X-Document-SHA256``, the hash of the document's data that is also
 printed in its footer.
 """
 
@@ -22,9 +24,12 @@ from service.store import inventory
 from service.store.db import end_session, get_session
 from service.store.models import Procedure, WasteContainer
 
-__all__ = ["bp"]
+__all__ = ["bp", "pages"]
 
 bp = Blueprint("documents", __name__, url_prefix=API_PREFIX)
+# The same PDFs for the pages, outside the prefix: the sign-in cookie authorises them, errors are
+# pages, and they stay out of the OpenAPI document (which describes the routes under the prefix).
+pages = Blueprint("documents_pages", __name__)
 
 
 def _visible(model, ident: int):
@@ -43,29 +48,29 @@ def _answer(draft: Draft, fmt: str) -> Response:
     return Response(doc.html, mimetype="text/html", headers=headers)
 
 
-@bp.get("/procedures/<int:ident>/assessment.pdf", endpoint="procedure_assessment_pdf")
-@operation(media=("application/pdf",), errors=(403,))
-def assessment_pdf(ident: int):
-    """The procedure's risk-assessment sheet as PDF."""
-    return _answer(assessment_for(_visible(Procedure, ident)), "pdf")
+def _view(model, gather, fmt: str, summary: str):
+    @operation(media=(_MEDIA[fmt],), errors=(403,))
+    def view(ident: int):
+        return _answer(gather(_visible(model, ident)), fmt)
+
+    view.__doc__ = summary
+    return view
 
 
-@bp.get("/procedures/<int:ident>/assessment.html", endpoint="procedure_assessment_html")
-@operation(media=("text/html",), errors=(403,))
-def assessment_html(ident: int):
-    """The procedure's risk-assessment sheet as HTML (preview)."""
-    return _answer(assessment_for(_visible(Procedure, ident)), "html")
-
-
-@bp.get("/waste_containers/<int:ident>/manifest.pdf", endpoint="waste_container_manifest_pdf")
-@operation(media=("application/pdf",), errors=(403,))
-def manifest_pdf(ident: int):
-    """The container's waste manifest as PDF."""
-    return _answer(manifest_for(_visible(WasteContainer, ident)), "pdf")
-
-
-@bp.get("/waste_containers/<int:ident>/manifest.html", endpoint="waste_container_manifest_html")
-@operation(media=("text/html",), errors=(403,))
-def manifest_html(ident: int):
-    """The container's waste manifest as HTML (preview)."""
-    return _answer(manifest_for(_visible(WasteContainer, ident)), "html")
+_MEDIA = {"pdf": "application/pdf", "html": "text/html"}
+# (API path, page path or None, endpoint, model, gatherer, format, summary)
+_ROUTES = (
+    ("/procedures/<int:ident>/assessment.pdf", "/procedures/<int:ident>/assessment.pdf", "procedure_assessment_pdf",
+     Procedure, assessment_for, "pdf", "The procedure's risk-assessment sheet as PDF."),
+    ("/procedures/<int:ident>/assessment.html", None, "procedure_assessment_html",
+     Procedure, assessment_for, "html", "The procedure's risk-assessment sheet as HTML (preview)."),
+    ("/waste_containers/<int:ident>/manifest.pdf", "/waste/<int:ident>/manifest.pdf", "waste_container_manifest_pdf",
+     WasteContainer, manifest_for, "pdf", "The container's waste manifest as PDF."),
+    ("/waste_containers/<int:ident>/manifest.html", None, "waste_container_manifest_html",
+     WasteContainer, manifest_for, "html", "The container's waste manifest as HTML (preview)."),
+)
+for _api_path, _page_path, _endpoint, _model, _gather, _fmt, _summary in _ROUTES:
+    _document_view = _view(_model, _gather, _fmt, _summary)
+    bp.add_url_rule(_api_path, _endpoint, _document_view, methods=["GET"])
+    if _page_path is not None:
+        pages.add_url_rule(_page_path, _endpoint, _document_view, methods=["GET"])

@@ -69,9 +69,11 @@ def assessment_for(proc: Procedure) -> Draft:
     substances = [[substance_facts(d.stock.substance)] if d.stock is not None
                   else [substance_facts(c.substance) for c in d.mixture.components] for d in proc.draws]
     researcher = session.get(User, proc.researcher_id)
+    decider = session.get(User, proc.decided_by_id) if proc.decided_by_id is not None else None
     document_id = f"RA-{proc.id:05d}-R{proc.revision}"
     data = assessment_data(view, substances=substances, lab=lab_heading(session.get(Lab, proc.lab_id)),
-                           researcher=researcher.display_name if researcher else "—", document_id=document_id,
+                           researcher=researcher.display_name if researcher else "—",
+                           decider=decider.display_name if decider else None, document_id=document_id,
                            controls=_controls(), text_of=statements().text_of,
                            followed_elements=tuple(config["BALANCE_ELEMENTS"]), **_common())
     return Draft("assessment.html", data, document_id, f"assessment-{proc.id}-r{proc.revision}")
