@@ -85,6 +85,8 @@ MATRIX: dict[str, frozenset[str]] = {
     "documents.procedure_assessment_html": EVERYONE,
     "documents.waste_container_manifest_pdf": EVERYONE,
     "documents.waste_container_manifest_html": EVERYONE,
+    "documents_pages.procedure_assessment_pdf": EVERYONE,
+    "documents_pages.waste_container_manifest_pdf": EVERYONE,
     # pages
     "web.overview": EVERYONE,
     "web.stocks": EVERYONE,
@@ -92,6 +94,10 @@ MATRIX: dict[str, frozenset[str]] = {
     "web.procedures": EVERYONE,
     "web.procedure": EVERYONE,
     "web.review": frozenset({"safety_officer", "auditor", "admin"}),  # as api.review_queue
+    "web.review_procedure": frozenset({"safety_officer"}),  # the page the decisions are taken on
+    # Every role reaches the workflow form's route; the view checks the action's API endpoint
+    # (api.<action>_procedure above), so a page lets a role do exactly what the API lets it do.
+    "web.procedure_act": EVERYONE,
     "web.waste": EVERYONE,
     "web.container": EVERYONE,
     "web.run": EVERYONE,

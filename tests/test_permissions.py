@@ -56,6 +56,7 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
         "api.list_waste_containers", "api.read_waste_containers", "api.list_waste_entries",
         "documents.procedure_assessment_pdf", "documents.procedure_assessment_html",
         "documents.waste_container_manifest_pdf", "documents.waste_container_manifest_html",
+        "documents_pages.procedure_assessment_pdf", "documents_pages.waste_container_manifest_pdf",
         "web.overview", "web.stocks", "web.mixtures", "web.procedures", "web.procedure",
         "web.waste", "web.container", "web.run",
     ]),
@@ -74,9 +75,12 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
     "procedure create, edit, submit, withdraw": (frozenset({RESEARCHER, MANAGER, ADMIN}),
                                                  ["api.create_procedures", "api.update_procedures",
                                                   "api.submit_procedure", "api.withdraw_procedure"]),
-    "approve, request changes, decline": (frozenset({OFFICER}),
-                                          ["api.approve_procedure", "api.request_changes_procedure",
-                                           "api.decline_procedure"]),
+    "approve, request changes, decline (and the page they are taken on)": (
+        frozenset({OFFICER}), ["api.approve_procedure", "api.request_changes_procedure", "api.decline_procedure",
+                               "web.review_procedure"]),
+    # The pages' workflow form: every role reaches it; the view answers 403 unless the role may take the
+    # action through its API route (test_web_workflow checks that per action).
+    "workflow form of the pages": (SIGNED_IN, ["web.procedure_act"]),
     "retire an approved procedure": (frozenset({OFFICER, MANAGER, ADMIN}), ["api.retire_procedure"]),
     "runs (researchers record their batches)": (frozenset({RESEARCHER, MANAGER, ADMIN}),
                                                 ["api.create_runs", "api.add_run_output", "api.add_run_loss",
@@ -108,13 +112,14 @@ def test_policy_table_is_consistent_with_the_roles_as_described(app):
     assert not PUBLIC_ENDPOINTS & set(EXPECTED)
     # Only the safety officer decides on a procedure; only the admin manages users.
     assert {e for e, roles in EXPECTED.items() if roles == {OFFICER}} == {
-        "api.approve_procedure", "api.request_changes_procedure", "api.decline_procedure"}
+        "api.approve_procedure", "api.request_changes_procedure", "api.decline_procedure", "web.review_procedure"}
     assert {e for e, roles in EXPECTED.items() if roles == {ADMIN}} == {
         "api.list_users", "api.read_users", "api.create_users", "api.update_users", "api.retire_users"}
-    # The auditor changes nothing: apart from GETs, only their own token, signing out and a calculation.
+    # The auditor changes nothing: apart from GETs, only their own token, signing out and a calculation
+    # (and the pages' workflow form, whose view refuses the auditor every action).
     auditor_non_get = {rule.endpoint for rule, method in _routes(app)
                        if method != "GET" and AUDITOR in EXPECTED.get(rule.endpoint, ())}
-    assert auditor_non_get == {"api.revoke_token", "web.logout", "api.create_estimate"}
+    assert auditor_non_get == {"api.revoke_token", "web.logout", "api.create_estimate", "web.procedure_act"}
 
 
 def test_every_route_has_an_expectation(app):

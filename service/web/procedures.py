@@ -1,20 +1,92 @@
-"""Procedure, review-queue and run pages (read-only), rendered from the views the JSON API uses (service.present)."""
+"""Procedure, review and run pages, rendered from the views the JSON API uses (service.present).
+
+The workflow buttons post to ``web.procedure_act``, which takes the same store transition as the
+API's ``/procedures/<id>/<action>`` routes and lets a role do exactly what the API lets it do: the
+route itself is open to every role, and the view checks the role against the API endpoint of
+the action (``api.<action>_procedure`` in service.permissions).
+"""
 
 from __future__ import annotations
 
-from flask import render_template, request
+from flask import redirect, render_template, request, url_for
+from pydantic import ValidationError
 
 from service.appdata import active_rules
 from service.auth import check_lab, current_user, lab_scope
+from service.errors import Conflict, Forbidden, InvalidInput, NotFound
 from service.permissions import allowed
-from service.schemas import PageQuery
+from service.schemas import DecisionIn, PageQuery
 from service.present.procedures import dump_procedure
 from service.present.runs import dump_run
 from service.store import inventory, procedures
 from service.store.db import get_session
-from service.store.models import Mixture, Procedure, Run, Stock
+from service.store.models import Mixture, Procedure, Run, Stock, User
 from service.web import bp
 from service.web.pages import TRACKED
+
+# What each workflow action is called on a button, and the one-line notice after it.
+ACTION_LABELS = {"submit": "Submit for review", "withdraw": "Withdraw", "approve": "Approve",
+                 "request_changes": "Ask for changes", "decline": "Decline", "retire": "Retire"}
+DONE = {"submit": "Submitted for review.", "withdraw": "Withdrawn: the procedure is a draft again.",
+        "approve": "Approved.", "request_changes": "Changes requested from the researcher.",
+        "decline": "Declined.", "retire": "Retired: no new runs under this revision."}
+DECISIONS = ("approve", "request_changes", "decline")  # taken on the review page
+# The procedure page's buttons that post straight away (no comment needed).
+PAGE_ACTIONS = ("submit", "withdraw", "retire")
+
+
+def _visible(ident: int) -> Procedure:
+    proc = inventory.get(get_session(), Procedure, ident)
+    check_lab(proc.lab_id)
+    return proc
+
+
+def may_take(proc: Procedure, action: str, user: User) -> bool:
+    """Whether ``user`` may take ``action`` on ``proc`` now: its state, the API's role rule, the store's own-author rule."""
+    return (proc.state in procedures.TRANSITIONS[action][0] and allowed(f"api.{action}_procedure", user.role)
+            and procedures.may_act(proc, action, user) is None)
+
+
+def _buttons(proc: Procedure, user: User) -> dict:
+    """Which links and buttons the procedure page offers this user (the server checks each again)."""
+    edits = allowed("api.update_procedures", user.role)
+    return {
+        "edit": edits and proc.state in procedures.EDITABLE,
+        "new_revision": edits and proc.state == "approved",
+        "review": (proc.state == "submitted" and allowed("web.review_procedure", user.role)
+                   and proc.researcher_id != user.id),
+        "actions": [a for a in PAGE_ACTIONS if may_take(proc, a, user)],
+    }
+
+
+def _decision_rows(session, proc: Procedure) -> list[dict]:
+    rows = []
+    for d in procedures.decisions_of(session, proc):
+        actor = session.get(User, d.actor_id)
+        rows.append({"at": d.at.isoformat(), "from_state": d.from_state, "to_state": d.to_state, "comment": d.comment,
+                     "highest_level": d.highest_level, "name": actor.display_name if actor else "—",
+                     "email": actor.email if actor else ""})
+    return rows
+
+
+def _procedure_context(proc: Procedure) -> dict:
+    session = get_session()
+    user = current_user()
+    researcher = session.get(User, proc.researcher_id)
+    family = procedures.list_procedures(session, family_id=proc.family_id, lab_ids=lab_scope(), limit=None)
+    return {"proc": dump_procedure(proc), "tracked": TRACKED, "buttons": _buttons(proc, user),
+            "labels": ACTION_LABELS, "decisions": _decision_rows(session, proc), "revisions": list(family),
+            "researcher": researcher, "edit_url": f"/procedures/{proc.id}/edit"}
+
+
+def _review_context(proc: Procedure) -> dict:
+    user = current_user()
+    view = dump_procedure(proc)
+    return {"proc": view, "tracked": TRACKED, "labels": ACTION_LABELS,
+            "own": proc.researcher_id == user.id,
+            "decisions": [a for a in DECISIONS if may_take(proc, a, user)],
+            "needs_comment": [f for f in view["findings"] if f["level"] == "review"],
+            "researcher": get_session().get(User, proc.researcher_id)}
 
 # How a measured unit reads on a page (the rule packs use pint's names).
 _UNIT_LABELS = {"ug": "µg", "degC": "°C", "delta_degC": "°C (difference)", "day": "days", "percent": "%"}
@@ -29,9 +101,48 @@ def procedure_list():
 
 @bp.get("/procedures/<int:ident>", endpoint="procedure")
 def procedure_page(ident: int):
-    proc = inventory.get(get_session(), Procedure, ident)
-    check_lab(proc.lab_id)
-    return render_template("pages/procedure.html", proc=dump_procedure(proc), tracked=TRACKED)
+    done = DONE.get(request.args.get("done", ""))  # only the notices above, never the query's own text
+    return render_template("pages/procedure.html", notice=done, **_procedure_context(_visible(ident)))
+
+
+@bp.get("/review/<int:ident>", endpoint="review_procedure")
+def review_procedure(ident: int):
+    return render_template("pages/review_procedure.html", comment="", error=None, **_review_context(_visible(ident)))
+
+
+@bp.post("/procedures/<int:ident>/act/<action>", endpoint="procedure_act")
+def procedure_act(ident: int, action: str):
+    """Take a workflow action from a page; a refusal re-renders the page it came from, with the reason."""
+    if action not in procedures.TRANSITIONS:
+        raise NotFound("workflow action", action)
+    proc = _visible(ident)
+    user = current_user()
+    comment = request.form.get("comment", "")
+    try:
+        if not allowed(f"api.{action}_procedure", user.role):
+            raise Forbidden(f"a {user.role.replace('_', ' ')} may not {ACTION_LABELS[action].lower()} a procedure")
+        body = DecisionIn.model_validate({"comment": comment or None})
+        procedures.transition(get_session(), proc, action, user, body.comment, active_rules())
+    except (ValidationError, InvalidInput, Conflict, Forbidden) as exc:
+        status, error = _refusal(exc)
+        if request.form.get("from") == "review" and allowed("web.review_procedure", user.role):
+            return render_template("pages/review_procedure.html", comment=comment, error=error,
+                                   **_review_context(proc)), status
+        return render_template("pages/procedure.html", notice=None, error=error, **_procedure_context(proc)), status
+    return redirect(url_for("web.procedure", ident=proc.id, done=action), 303)
+
+
+def _refusal(exc: Exception) -> tuple[int, dict]:
+    """The status and the {field, message} a refused action shows on its page."""
+    if isinstance(exc, ValidationError):
+        first = exc.errors()[0]
+        field = ".".join(str(p) for p in first["loc"]) or None
+        return 422, {"field": field, "message": f"{field}: {first['msg'].removeprefix('Value error, ')}"}
+    if isinstance(exc, InvalidInput):
+        return 422, {"field": exc.field, "message": str(exc)}
+    if isinstance(exc, Forbidden):
+        return 403, {"field": None, "message": str(exc)}
+    return 409, {"field": exc.field, "message": str(exc)}  # Conflict, Blocked: the state or the findings
 
 
 @bp.get("/review", endpoint="review")
