@@ -84,7 +84,8 @@ def _review_context(proc: Procedure) -> dict:
     view = dump_procedure(proc)
     return {"proc": view, "tracked": TRACKED, "labels": ACTION_LABELS,
             "own": proc.researcher_id == user.id,
-            "decisions": [a for a in DECISIONS if may_take(proc, a, user)],
+            "decisions": [a for a in DECISIONS if may_take(proc, a, user)
+                          and not (a == "approve" and view["highest_level"] == "block")],  # the store refuses it
             "needs_comment": [f for f in view["findings"] if f["level"] == "review"],
             "researcher": get_session().get(User, proc.researcher_id)}
 
