@@ -98,7 +98,7 @@ def test_submit_withdraw_resubmit_and_approve_from_the_review_page(demo):
     assert f'href="/review/{ident}"' in queue
     review = officer.get(f"/review/{ident}")
     assert _forms(review) == {"approve", "request_changes", "decline"}
-    assert "required: " in review and " required" in review  # a review finding: the comment box says why
+    assert "required for every decision: 1" in review and " required" in review  # a review finding: the box says why
     assert "site safety officer" in review  # the cautions stay beside the findings
     refused = officer.act(ident, "approve", expect=422, comment="  ", **{"from": "review"})
     assert "a comment is required to approve this procedure" in refused and "Review: " in refused
