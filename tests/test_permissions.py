@@ -71,7 +71,9 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
         frozenset({RESEARCHER, MANAGER, ADMIN}), _writes("stocks") + _writes("mixtures")),
     # Procedures: researchers register and submit; only the safety officer decides.
     "procedure create, edit, submit": (frozenset({RESEARCHER, MANAGER, ADMIN}),
-                                       ["api.create_procedures", "api.update_procedures", "api.submit_procedure"]),
+                                       ["api.create_procedures", "api.update_procedures", "api.submit_procedure",
+                                        "web.procedure_new", "web.procedure_create", "web.procedure_edit",
+                                        "web.procedure_save", "web.procedure_check"]),
     "approve, request changes, decline": (frozenset({OFFICER}),
                                           ["api.approve_procedure", "api.request_changes_procedure",
                                            "api.decline_procedure"]),
