@@ -155,11 +155,17 @@ def _or_none(text: str) -> Optional[str]:
 
 
 def _source_index(sources: list[tuple[str, str]]) -> dict[str, str]:
-    """Typed text (case ignored) -> option value: the value itself, the record's label or the whole option text."""
-    index = {}
+    """Typed text (case ignored) -> option value: the record's label, the whole option text, or a
+    substance or solution name that only one of the records has."""
+    index: dict[str, str] = {}
+    names: dict[str, set[str]] = {}
     for value, text in sources:
-        index[text.casefold()] = value
-        index[text.split(" · ", 1)[0].casefold()] = value
+        label, name, _ = (text.split(" · ", 2) + ["", ""])[:3]
+        index[text.casefold()] = index[label.casefold()] = value
+        names.setdefault(name.casefold(), set()).add(value)
+    for name, values in names.items():
+        if len(values) == 1:
+            index.setdefault(name, values.pop())
     return index
 
 
@@ -225,13 +231,23 @@ _MESSAGES = {
 }
 
 
+_BOUNDS = {"less_than_equal": ("le", "At most {}."), "less_than": ("lt", "Below {}."),
+           "greater_than_equal": ("ge", "At least {}."), "greater_than": ("gt", "Above {}."),
+           "string_too_long": ("max_length", "At most {} characters."), "too_long": ("max_length", "At most {} rows.")}
+
+
 def _message(err: dict) -> str:
-    kind = err["type"]
-    if kind == "too_short" and isinstance(err.get("ctx", {}).get("min_length"), int):
+    """pydantic's message in a form's words ("At most 1200." rather than "Input should be less than or equal to 1200")."""
+    kind, ctx = err["type"], err.get("ctx") or {}
+    if kind == "too_short":
         return "Add at least one row with a value."
-    if kind == "string_too_short" and err.get("ctx", {}).get("min_length") == 1:
-        return "Required."
-    return _MESSAGES.get(kind) or err["msg"].removeprefix("Value error, ")
+    if kind == "string_too_short":
+        return "Required." if ctx.get("min_length") == 1 else f"At least {ctx.get('min_length')} characters."
+    if kind in _BOUNDS and _BOUNDS[kind][0] in ctx:
+        key, text = _BOUNDS[kind]
+        return text.format(f"{ctx[key]:g}" if isinstance(ctx[key], float) else ctx[key])
+    message = _MESSAGES.get(kind) or err["msg"].removeprefix("Value error, ")
+    return message[:1].upper() + message[1:]
 
 
 def _validation_errors(exc: ValidationError, kept) -> dict[str, str]:
@@ -247,7 +263,10 @@ def _store_error(exc: Exception, kept) -> dict[str, str]:
     found = _STORE_FIELD.match(field)
     loc = (found[1], int(found[2]), found[3]) if found else (field,)
     message = getattr(exc, "reason", None) or str(exc).split(": ", 1)[-1]
-    return {_field_of(loc, kept): message[:1].upper() + message[1:]}
+    target = _field_of(loc, kept)
+    if target.endswith("-source"):
+        message += " in this procedure's lab"  # the store answers another lab's record as a missing one
+    return {target: message[:1].upper() + message[1:]}
 
 
 def _validated(model, data: dict, kept, errors: dict[str, str]):
