@@ -93,6 +93,11 @@ MATRIX: dict[str, frozenset[str]] = {
     "web.mixtures": EVERYONE,
     "web.procedures": EVERYONE,
     "web.procedure": EVERYONE,
+    "web.procedure_new": frozenset({"researcher", "lab_manager", "admin"}),  # as api.create_procedures
+    "web.procedure_create": frozenset({"researcher", "lab_manager", "admin"}),
+    "web.procedure_edit": frozenset({"researcher", "lab_manager", "admin"}),  # as api.update_procedures
+    "web.procedure_save": frozenset({"researcher", "lab_manager", "admin"}),
+    "web.procedure_check": frozenset({"researcher", "lab_manager", "admin"}),
     "web.review": frozenset({"safety_officer", "auditor", "admin"}),  # as api.review_queue
     "web.review_procedure": frozenset({"safety_officer"}),  # the page the decisions are taken on
     # Every role reaches the workflow form's route; the view checks the action's API endpoint

@@ -74,7 +74,9 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
     # (withdraw: researchers their own only, which the store checks per procedure)
     "procedure create, edit, submit, withdraw": (frozenset({RESEARCHER, MANAGER, ADMIN}),
                                                  ["api.create_procedures", "api.update_procedures",
-                                                  "api.submit_procedure", "api.withdraw_procedure"]),
+                                                  "api.submit_procedure", "api.withdraw_procedure",
+                                                  "web.procedure_new", "web.procedure_create", "web.procedure_edit",
+                                                  "web.procedure_save", "web.procedure_check"]),
     "approve, request changes, decline (and the page they are taken on)": (
         frozenset({OFFICER}), ["api.approve_procedure", "api.request_changes_procedure", "api.decline_procedure",
                                "web.review_procedure"]),

@@ -14,7 +14,7 @@ from sqlalchemy.orm import Session
 
 from service import vocab
 from service.chem.content import round_ug, substance_element_masses_ug
-from service.chem.units import parse_quantity, to_decimal
+from service.chem.units import QuantityError, parse_quantity, to_decimal
 from service.errors import Blocked, Conflict, Forbidden, InvalidInput
 from service.rules import LayeredRules, evaluate, highest_level
 from service.rules.subjects import ProcedureSubject, ReagentFacts, StepFacts
@@ -38,6 +38,7 @@ from service.store.models import (
 __all__ = [
     "TRANSITIONS",
     "create_procedure",
+    "unsaved_procedure",
     "update_procedure",
     "subject_of",
     "source_element_masses",
@@ -77,7 +78,12 @@ def _draw(session: Session, lab_id: int, position: int, body: DrawIn) -> Reagent
     source = inventory.reference(session, model, body.stock_id or body.mixture_id, f"{field}.{kind}_id", lab_id=lab_id)
     draw = ReagentDraw(position=position, stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount)
     draw.stock, draw.mixture = (source, None) if kind == "stock" else (None, source)
-    _reagent(draw, 1.0, field)  # checks the amount now: unit, kind, density
+    try:
+        _reagent(draw, 1.0, field)  # checks the amount now: unit, kind, density
+    except QuantityError as exc:
+        if exc.field and exc.field.startswith(field):
+            raise
+        raise QuantityError(exc.text, exc.reason, f"{field}.amount") from exc  # name the draw, not just "amount"
     return draw
 
 
@@ -91,19 +97,37 @@ def _fill(session: Session, proc: Procedure, steps: list[StepIn] | None, draws: 
         proc.waste_plan = [WastePlanItem(position=i, **w.model_dump()) for i, w in enumerate(waste)]
 
 
-def create_procedure(session: Session, body: ProcedureIn, researcher: User) -> Procedure:
-    """Register a new procedure (revision 1, draft) for ``researcher``."""
+def _built(session: Session, body: ProcedureIn, researcher_id: Optional[int],
+           family_id: Optional[int] = None) -> Procedure:
+    """A draft built from ``body`` with every reference checked, not yet in the session."""
     lab = session.get(Lab, body.lab_id)
     if lab is None or lab.retired_at is not None:
         raise InvalidInput("lab_id", f"no active lab with id {body.lab_id}", body.lab_id)
-    proc = Procedure(lab_id=lab.id, researcher_id=researcher.id, title=body.title, summary=body.summary,
-                     scale=body.scale, state="draft", revision=1)
+    proc = Procedure(lab_id=lab.id, researcher_id=researcher_id, title=body.title, summary=body.summary,
+                     scale=body.scale, state="draft", revision=1, family_id=family_id)
     _fill(session, proc, body.steps, body.draws, body.waste_plan)
+    return proc
+
+
+def create_procedure(session: Session, body: ProcedureIn, researcher: User) -> Procedure:
+    """Register a new procedure (revision 1, draft) for ``researcher``."""
+    proc = _built(session, body, researcher.id)
     session.add(proc)
     session.flush()
     proc.family_id = proc.id
     session.flush()
     return proc
+
+
+def unsaved_procedure(session: Session, body: ProcedureIn, *, family_id: Optional[int] = None) -> Procedure:
+    """The draft ``body`` describes, checked like :func:`create_procedure` but never added to the session.
+
+    For judging input before it is saved (``preview``, ``subject_of``): nothing is flushed, so nothing
+    is stored and the audit trail records nothing. ``family_id`` names the procedure being edited, so
+    a scale-up is measured against its approved revisions.
+    """
+    with session.no_autoflush:
+        return _built(session, body, None, family_id)
 
 
 def update_procedure(session: Session, proc: Procedure, patch: ProcedurePatch) -> tuple[Procedure, bool]:

@@ -29,7 +29,10 @@ ACTION_LABELS = {"submit": "Submit for review", "withdraw": "Withdraw", "approve
                  "request_changes": "Ask for changes", "decline": "Decline", "retire": "Retire"}
 DONE = {"submit": "Submitted for review.", "withdraw": "Withdrawn: the procedure is a draft again.",
         "approve": "Approved.", "request_changes": "Changes requested from the researcher.",
-        "decline": "Declined.", "retire": "Retired: no new runs under this revision."}
+        "decline": "Declined.", "retire": "Retired: no new runs under this revision.",
+        # from the editor (service/web/editor.py)
+        "created": "Saved as a draft.", "saved": "Saved.",
+        "revision": "Saved as a new draft revision; the approved one stays in force until this one is approved."}
 DECISIONS = ("approve", "request_changes", "decline")  # taken on the review page
 # The procedure page's buttons that post straight away (no comment needed).
 PAGE_ACTIONS = ("submit", "withdraw", "retire")
@@ -76,7 +79,7 @@ def _procedure_context(proc: Procedure) -> dict:
     family = procedures.list_procedures(session, family_id=proc.family_id, lab_ids=lab_scope(), limit=None)
     return {"proc": dump_procedure(proc), "tracked": TRACKED, "buttons": _buttons(proc, user),
             "labels": ACTION_LABELS, "decisions": _decision_rows(session, proc), "revisions": list(family),
-            "researcher": researcher, "edit_url": f"/procedures/{proc.id}/edit"}
+            "researcher": researcher, "edit_url": url_for("web.procedure_edit", ident=proc.id)}
 
 
 def _review_context(proc: Procedure) -> dict:
