@@ -371,6 +371,9 @@ class ListQuery(PageQuery):
 class AuditQuery(PageQuery):
     entity: Optional[str] = Field(default=None, max_length=60)
     entity_id: Optional[str] = Field(default=None, max_length=60)
+    actor: Optional[str] = Field(default=None, max_length=254, description="the actor's label (an e-mail address or a command), any case")
+    action: Optional[str] = Field(default=None, max_length=120,
+                                  description='create, update, retire, delete, or state_change (any, or one: "state_change:draft->submitted")')
     since: Optional[dt.datetime] = None
     until: Optional[dt.datetime] = None
 
