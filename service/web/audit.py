@@ -36,10 +36,18 @@ def _page(report: audit.ChainReport | None = None, status: int = 200):
     session = get_session()
     events = audit.list_events(session, **query.model_dump())
     head = session.get(audit.AuditHead, 1)
-    return render_template("pages/audit.html", events=[dump_event(e) for e in events], page=events,
+    return render_template("pages/audit.html", events=[{**dump_event(e), "changes": changes(e)} for e in events],
+                           page=events,
                            filters={k: request.args.get(k, "") for k in ("entity", "entity_id", "actor", "action",
                                                                          "since", "until")},
                            actions=ACTIONS, report=report, head=head), status
+
+
+def changes(event) -> list[tuple[str, object, object]]:
+    """(field, before, after) for each field the event changed, in field order; every field of a create or delete."""
+    before, after = event.before or {}, event.after or {}
+    return [(k, before.get(k), after.get(k)) for k in sorted(before.keys() | after.keys())
+            if before.get(k) != after.get(k) or not (event.before and event.after)]
 
 
 @bp.get("/audit", endpoint="audit")

@@ -88,7 +88,7 @@ def _pickups_requested(session, user, scope):
 
 def _inventory_by_element(session, user, scope):
     totals = inventory.element_totals(session, lab_ids=scope)
-    rows = [{"element": symbol, "mass_ug": mass} for symbol, mass in sorted(totals.items()) if mass]
+    rows = [{"element": symbol, "mass_ug": totals[symbol]} for symbol in TRACKED if totals.get(symbol)]
     return {"total": len(rows), "rows": rows}
 
 
