@@ -87,8 +87,12 @@ def _pickups_requested(session, user, scope):
 
 
 def _inventory_by_element(session, user, scope):
+    """Each tracked element on hand (inventory.element_totals) beside what went into waste (the API's waste report)."""
     totals = inventory.element_totals(session, lab_ids=scope)
-    rows = [{"element": symbol, "mass_ug": totals[symbol]} for symbol in TRACKED if totals.get(symbol)]
+    wasted = {row["element"]: row["mass_ug"]
+              for row in ledger.run_report(session, "waste", ("element",), lab_ids=scope).to_dict("records")}
+    rows = [{"element": symbol, "mass_ug": totals.get(symbol, 0), "waste_ug": wasted.get(symbol, 0)}
+            for symbol in TRACKED if totals.get(symbol) or wasted.get(symbol)]
     return {"total": len(rows), "rows": rows}
 
 
