@@ -20,7 +20,7 @@ from service.store import identity
 from service.store.db import get_session
 from service.store.models import User
 
-__all__ = ["init_app", "client_address", "current_user", "csrf_token", "lab_scope", "check_lab", "sign_in", "sign_out", "login_limits"]
+__all__ = ["init_app", "client_address", "current_user", "identify_for_page", "csrf_token", "lab_scope", "check_lab", "sign_in", "sign_out", "login_limits"]
 
 
 def current_user() -> Optional[User]:
@@ -75,6 +75,20 @@ def _identify() -> Optional[User]:
     if user is None or user.retired_at is not None or session.get("session_version") != user.session_version:
         return None
     return user
+
+
+def identify_for_page() -> Optional[User]:
+    """The signed-in user of a page answer that the check before the view did not reach.
+
+    An unknown address (404/405) or a refused form token answers before ``_authorize``
+    identifies the caller; the error page still shows who is signed in. Identifying only
+    reads the session cookie; it grants nothing.
+    """
+    if "user" not in g and not is_api_path(request.path):
+        user = _identify()
+        if user is not None:
+            g.user = user
+    return current_user()
 
 
 def _authorize():

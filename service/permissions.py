@@ -106,6 +106,8 @@ MATRIX: dict[str, frozenset[str]] = {
     "web.waste": EVERYONE,
     "web.container": EVERYONE,
     "web.run": EVERYONE,
+    "web.audit": frozenset({"auditor", "admin"}),  # as api.list_audit_events
+    "web.audit_verify": frozenset({"auditor", "admin"}),  # reads only: recomputes the chain
 }
 for _name, _writers in _INVENTORY_WRITERS.items():
     MATRIX[f"api.list_{_name}"] = EVERYONE

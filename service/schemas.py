@@ -371,8 +371,17 @@ class ListQuery(PageQuery):
 class AuditQuery(PageQuery):
     entity: Optional[str] = Field(default=None, max_length=60)
     entity_id: Optional[str] = Field(default=None, max_length=60)
-    since: Optional[dt.datetime] = None
-    until: Optional[dt.datetime] = None
+    actor: Optional[str] = Field(default=None, max_length=254, description="the actor's label (an e-mail address or a command), any case")
+    action: Optional[str] = Field(default=None, max_length=120,
+                                  description='create, update, retire, delete, or state_change (any, or one: "state_change:draft->submitted")')
+    since: Optional[dt.datetime] = Field(default=None, description="inclusive; a date or a time without a zone is UTC")
+    until: Optional[dt.datetime] = Field(default=None, description="exclusive; a date or a time without a zone is UTC")
+
+    @field_validator("since", "until")
+    @classmethod
+    def _utc(cls, value: Optional[dt.datetime]) -> Optional[dt.datetime]:
+        # The trail keeps aware UTC times; a bare date ("2026-12-01") or a zoneless time is read as UTC.
+        return value.replace(tzinfo=dt.timezone.utc) if value is not None and value.tzinfo is None else value
 
 
 Operation = Literal["charge", "degas", "heat", "inject", "hold", "grow_shell", "cool", "ligand_exchange",

@@ -94,7 +94,7 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
     "waste containers (create, request pickup)": (frozenset({OFFICER, MANAGER, ADMIN}),
                                                   ["api.create_waste_containers", "api.request_pickup_waste_container"]),
     "collection by the contractor": (frozenset({OFFICER, ADMIN}), ["api.collect_waste_container"]),
-    "audit trail": (frozenset({AUDITOR, ADMIN}), ["api.list_audit_events"]),
+    "audit trail": (frozenset({AUDITOR, ADMIN}), ["api.list_audit_events", "web.audit", "web.audit_verify"]),
     "user management": (frozenset({ADMIN}), ["api.list_users", "api.read_users", *_writes("users")]),
 }
 EXPECTED: dict[str, frozenset[str]] = {
@@ -117,11 +117,13 @@ def test_policy_table_is_consistent_with_the_roles_as_described(app):
         "api.approve_procedure", "api.request_changes_procedure", "api.decline_procedure", "web.review_procedure"}
     assert {e for e, roles in EXPECTED.items() if roles == {ADMIN}} == {
         "api.list_users", "api.read_users", "api.create_users", "api.update_users", "api.retire_users"}
-    # The auditor changes nothing: apart from GETs, only their own token, signing out and a calculation
-    # (and the pages' workflow form, whose view refuses the auditor every action).
+    # The auditor changes nothing: apart from GETs, only their own token, signing out, a calculation,
+    # recomputing the audit chain (a check that stores nothing) and the pages' workflow form, whose view
+    # refuses the auditor every action.
     auditor_non_get = {rule.endpoint for rule, method in _routes(app)
                        if method != "GET" and AUDITOR in EXPECTED.get(rule.endpoint, ())}
-    assert auditor_non_get == {"api.revoke_token", "web.logout", "api.create_estimate", "web.procedure_act"}
+    assert auditor_non_get == {"api.revoke_token", "web.logout", "api.create_estimate", "web.audit_verify",
+                               "web.procedure_act"}
 
 
 def test_every_route_has_an_expectation(app):

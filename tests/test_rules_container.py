@@ -250,3 +250,10 @@ def test_every_shipped_waste_rule_names_its_source_status(packs):
     for active in shipped:
         assert any(word in active.rule.source for word in ("seen", "2nd", "from memory", "site policy")), active.id
         assert "safety officer" in active.disclaimer
+
+
+def test_shares_in_details_read_to_one_decimal():
+    # two parts acetone to one part 1-octadecene: 2/3 of the volume reads 66.7 % (not 66.666…)
+    mix = (ContainerComponent("acetone", "acetone", 2 / 3, -20.0, FLAMMABLE),
+           ContainerComponent("1-octadecene", "1-octadecene", 1 / 3, 149.0, FLAMMABLE))  # fmt: skip
+    assert compute("listed_solvent_fraction:acetone", container(components=mix)).detail == "acetone 66.7 %"

@@ -85,7 +85,7 @@ ODE = ReagentFacts("1-octadecene", "10 mL", "liquid", flash_point_c=149.0, flamm
 
 def heated(flash_point_c: float, temperature_c: float = 300.0) -> ProcedureSubject:
     liquid = ReagentFacts("solvent", "10 mL", "liquid", flash_point_c=flash_point_c, flammable=True)
-    return ProcedureSubject("heat", (liquid,), (StepFacts(1, "heat", temperature_c, "argon"),))
+    return ProcedureSubject("heat", (liquid,), (StepFacts(0, "heat", temperature_c, "argon"),))  # the first step
 
 
 @pytest.mark.parametrize(
@@ -112,7 +112,57 @@ def test_temperature_above_flash_point(tmp_path, threshold, flash_point_c, fired
 def test_temperature_message_shows_a_difference_not_an_absolute_temperature(tmp_path):
     rules = layered(tmp_path, ("site", [rule("site.fp", "max_temperature_minus_flash_point", ">=", "0 delta_degC")]))
     [finding] = evaluate(rules, "procedure", heated(149.0))
-    assert finding.message == "151 °C vs 0 delta_degC: step 1 (heat) at 300 °C; solvent flash point 149 °C"
+    assert finding.message == "151 °C vs 0 °C: step 1 (heat) at 300 °C; solvent flash point 149 °C"
+    assert (finding.value_text, finding.comparator, finding.threshold_shown) == ("151 °C", ">=", "0 °C")
+
+
+# Display fields: the value in the threshold's unit and the threshold with a readable symbol.
+# Unit relations: 1 % = 0.01 (ISO 80000-1), 1 mg = 1000 µg and 1 K = 1 °C as a difference (SI Brochure, 9th ed.).
+@pytest.mark.parametrize(
+    "scale, last_approved, threshold, value_text, threshold_shown",
+    [
+        (0.93, 1.0, "90 %", "93 %", "90 %"),  # a fraction measure against a percentage threshold
+        (2.0, 3.0, "50 %", "66.7 %", "50 %"),  # 2/3: percentages to one decimal
+        (2.0, 1.0, "1.5", "2", "1.5"),  # a plain number stays plain
+    ],
+)
+def test_fraction_shown_as_percent_of_the_threshold(tmp_path, scale, last_approved, threshold, value_text, threshold_shown):
+    rules = layered(tmp_path, ("site", [rule("site.scale", "scale_factor_over_last_approved", ">", threshold)]))
+    subject = ProcedureSubject("p", (), (), scale, last_approved)
+    [finding] = evaluate(rules, "procedure", subject)
+    assert (finding.value_text, finding.threshold_shown) == (value_text, threshold_shown)
+    assert finding.message.startswith(f"{value_text} vs {threshold_shown}")
+
+
+@pytest.mark.parametrize(
+    "threshold, value_text, threshold_shown",
+    [
+        ("0 delta_degC", "151 °C", "0 °C"),
+        ("-20 delta_degC", "151 °C", "-20 °C"),
+        ("0 K", "151 K", "0 K"),  # a kelvin difference stays in kelvin
+        ("270 delta_degF", "271.8 °F", "270 °F"),  # 151 K x 9/5
+    ],
+)
+def test_temperature_difference_never_reads_delta(tmp_path, threshold, value_text, threshold_shown):
+    rules = layered(tmp_path, ("site", [rule("site.fp", "max_temperature_minus_flash_point", ">=", threshold)]))
+    [finding] = evaluate(rules, "procedure", heated(149.0))
+    assert (finding.value_text, finding.threshold_shown) == (value_text, threshold_shown)
+    assert "delta" not in finding.message
+
+
+@pytest.mark.parametrize(
+    "amounts, threshold, value_text, threshold_shown",
+    [
+        (["250 mg", "262.5 mg"], "100 mg", "512.5 mg", "100 mg"),  # µg measure, mg threshold
+        (["0.002 mg"], "0.001 mg", "0.002 mg", "0.001 mg"),  # 2 µg: no rounding to whole mg
+        (["1.25 g"], "1 g", "1.25 g", "1 g"),
+    ],
+)
+def test_micrograms_shown_in_the_threshold_unit(tmp_path, amounts, threshold, value_text, threshold_shown):
+    rules = layered(tmp_path, ("site", [rule("site.cd", "element_mass:Cd", ">=", threshold)]))
+    [finding] = evaluate(rules, "procedure", cd_draws(*amounts))
+    assert finding.unit == "ug"
+    assert (finding.value_text, finding.threshold_shown) == (value_text, threshold_shown)
 
 
 @pytest.mark.parametrize("threshold", ["250 degC", "250 °C", "523.15 K", "482 degF"])

@@ -89,7 +89,8 @@ def test_temperature_minus_flash_point(reagents, steps, value):
 
 
 def test_temperature_minus_flash_point_names_liquid_and_step():
-    result = compute("max_temperature_minus_flash_point", subject([ODE, CDO], [StepFacts(3, "heat", 300.0)]))
+    # stored positions are 0-based; the detail counts steps from 1 as the pages do
+    result = compute("max_temperature_minus_flash_point", subject([ODE, CDO], [StepFacts(2, "heat", 300.0)]))
     assert result.detail == "step 3 (heat) at 300 °C; 1-octadecene flash point 149 °C"
 
 

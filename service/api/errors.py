@@ -70,14 +70,57 @@ def _wants_json() -> bool:
     return best == "application/json" and request.accept_mimetypes[best] > request.accept_mimetypes["text/html"]
 
 
+# What a page error says to a person: a heading and a sentence per status (the JSON answer keeps its codes).
+_PAGE_ERRORS = {
+    400: ("Request refused", "The request could not be used as it was sent."),
+    401: ("Please sign in", "This page needs you to be signed in."),
+    403: ("Not allowed", "Your account may not open this page or do this."),
+    404: ("Not found", "There is no such page, or the record does not exist."),
+    405: ("Not possible here", "This address does not take that kind of request; use the page's own links and buttons."),
+    409: ("Not possible now", "The change conflicts with what is stored; nothing was changed."),
+    413: ("Too large", "What was sent is larger than this service accepts."),
+    422: ("Please check the input", "Some of what was sent is not valid; nothing was stored."),
+    500: ("Something went wrong", "An unexpected error occurred; it has been logged and nothing was changed."),
+}
+_CSRF_ERROR = ("The form has expired",
+               "The form was missing its security token or it had expired. Go back, reload the page and send it again.")
+
+
+def _page_user() -> None:
+    """Let the error page's header show the signed-in user (an unknown route never ran the sign-in check)."""
+    from service.auth import identify_for_page
+
+    try:
+        identify_for_page()
+    except Exception:  # the database itself may be why this page is an error; answer without the name
+        log.warning("could not identify the user for an error page", exc_info=True)
+
+
+def _page_rows(details: object) -> list[dict]:
+    """The field-level problems worth listing on a page (never a raw dump of the details)."""
+    if not isinstance(details, list):
+        return []
+    return [d for d in details if isinstance(d, dict) and (d.get("message") or d.get("field"))]
+
+
 def error_response(status: int, code: str, message: str, details: object = None):
     if _wants_json():
         response = jsonify({"error": {"code": code, "message": message, "details": details}})
         response.status_code = status
         return response
-    rows = details if isinstance(details, list) and all(isinstance(d, dict) for d in details) else None
-    return render_template("pages/error.html", status=status, code=code, message=message, details=details,
-                           rows=rows), status
+    if status != 500:
+        _page_user()
+    title, sentence = _CSRF_ERROR if code == "csrf_failed" else _PAGE_ERRORS.get(status, (f"Error {status}", message))
+    findings = details.get("findings") if isinstance(details, dict) else None
+    return render_template("pages/error.html", status=status, code=code, title=title, sentence=sentence,
+                           message=message, rows=_page_rows(details), findings=findings,
+                           back=_back_link()), status
+
+
+def _back_link() -> str | None:
+    """Where "back" leads: the page the browser came from on this site, else None (the home page)."""
+    referrer = request.referrer or ""
+    return referrer if referrer.startswith(request.host_url) and referrer != request.url else None
 
 
 def _validation_details(exc: ValidationError) -> list[dict]:

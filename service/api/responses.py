@@ -146,6 +146,8 @@ class Finding(_Answer):
     unit: str
     comparator: str
     threshold_text: str
+    value_text: str  # the measured value in the threshold's unit, e.g. "93 %"
+    threshold_shown: str  # the threshold with a readable unit symbol, e.g. "90 %", "0 °C"
     message: str
     source: str
     suggested_code: Optional[dict[str, Any]]

@@ -20,6 +20,8 @@ from service.rules.registry import plain as _plain
 from service.rules.registry import text as _text
 from service.rules.subjects import ContainerComponent, ContainerSubject
 
+_PERCENT_STEP = Decimal("0.1")  # shares in details read to one decimal ("66.7 %")
+
 __all__ = ["TRACE_FRACTION", "TC_EXTRACT_SOLIDS_PERCENT", "is_water", "concentration_basis", "mg_per_l", "mg_per_kg"]
 
 TRACE_FRACTION = Decimal("0.01")
@@ -52,7 +54,7 @@ def _present(subject: ContainerSubject) -> list[ContainerComponent]:
 
 def _fraction(components: list[ContainerComponent]) -> MeasureResult:
     total = sum((_dec(c.volume_fraction) for c in components), Decimal(0))
-    detail = ", ".join(f"{c.name} {_text(_dec(c.volume_fraction) * 100)} %" for c in components)
+    detail = ", ".join(f"{c.name} {_text((_dec(c.volume_fraction) * 100).quantize(_PERCENT_STEP))} %" for c in components)
     return MeasureResult(_plain(total), "", detail)
 
 

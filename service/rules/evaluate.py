@@ -29,6 +29,8 @@ _COMPARE = {
     "!=": operator.ne,
 }
 _SHOWN_PLACES = Decimal("0.000001")  # values in messages: at most six decimals
+_PERCENT_PLACES = Decimal("0.1")  # measured percentages: one decimal ("66.7 %")
+_PERCENT_UNITS = frozenset({"percent", "%"})
 
 
 @dataclass(frozen=True)
@@ -45,6 +47,8 @@ class Finding:
     comparator: str
     threshold_text: str
     threshold_value: Decimal  # exact, in ``unit``
+    value_text: str  # the value in the unit the threshold was written in, e.g. "93 %", "151 °C"
+    threshold_shown: str  # the threshold with the same unit symbol, e.g. "90 %", "0 °C", "100 mg"
     message: str
     source: str
     suggested_code: Optional[SuggestedCode]
@@ -59,19 +63,31 @@ def _exact(value: float | int | Decimal) -> Decimal:
     return Decimal(value) if isinstance(value, int) else Decimal(repr(float(value)))
 
 
-def _shown(value: Decimal, active: ActiveRule) -> str:
-    """The value for a message, in the unit the threshold was written in ("512.3 mg")."""
+def _in_threshold_unit(value: Decimal, active: ActiveRule, places: Decimal) -> str:
+    """``value`` (in the measure's unit) converted to the threshold's unit, with its symbol."""
     converted = convert_exact(value, active.definition.unit, active.threshold_unit)
     if converted != converted.to_integral_value():
-        converted = converted.quantize(_SHOWN_PLACES, rounding=ROUND_HALF_EVEN)
+        converted = converted.quantize(places, rounding=ROUND_HALF_EVEN)
     number = f"{converted.normalize():f}"
     symbol = unit_symbol(active.threshold_unit)
     return f"{number} {symbol}" if symbol else number
 
 
+def _shown(value: Decimal, active: ActiveRule) -> str:
+    """A measured value in the unit the threshold was written in ("512.3 mg"); percentages to one decimal."""
+    places = _PERCENT_PLACES if active.threshold_unit in _PERCENT_UNITS else _SHOWN_PLACES
+    return _in_threshold_unit(value, active, places)
+
+
+def _threshold_shown(active: ActiveRule) -> str:
+    """The threshold as written, its unit as a symbol ("0 delta_degC" reads "0 °C"); never rounded to a coarser step."""
+    return _in_threshold_unit(active.threshold_value, active, _SHOWN_PLACES)
+
+
 def _finding(active: ActiveRule, result: MeasureResult, value: Decimal) -> Finding:
     rule = active.rule
-    message = rule.message.format(value=_shown(value, active), threshold=rule.threshold.strip(), detail=result.detail)
+    value_text, threshold_shown = _shown(value, active), _threshold_shown(active)
+    message = rule.message.format(value=value_text, threshold=threshold_shown, detail=result.detail)
     return Finding(
         rule_id=rule.id,
         pack=active.pack,
@@ -83,6 +99,8 @@ def _finding(active: ActiveRule, result: MeasureResult, value: Decimal) -> Findi
         comparator=rule.comparator,
         threshold_text=rule.threshold,
         threshold_value=active.threshold_value,
+        value_text=value_text,
+        threshold_shown=threshold_shown,
         message=message,
         source=rule.source,
         suggested_code=rule.suggested_code,

@@ -38,7 +38,7 @@ TOXIC_METALS = ("Cd", "Pb", "Se", "Te", "Hg", "Tl", "As")
 
 
 def _step_label(step: StepFacts) -> str:
-    return f"step {step.position} ({step.operation})"
+    return f"step {step.position + 1} ({step.operation})"  # positions are 0-based; people count from 1
 
 
 def _names(reagents: Iterable[ReagentFacts]) -> str:

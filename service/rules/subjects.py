@@ -35,6 +35,8 @@ class ReagentFacts:
 
 @dataclass(frozen=True)
 class StepFacts:
+    """One step; ``position`` is 0-based as stored (shown to people as step position + 1)."""
+
     position: int
     operation: str  # heat, inject, hold, cool, precipitate, centrifuge, mix, degas, …
     temperature_c: Optional[float] = None

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from decimal import Decimal
 from typing import Any, NamedTuple, Optional
 
-from sqlalchemy import JSON, CheckConstraint, Index, String, Text, event, insert, inspect, select, update
+from sqlalchemy import JSON, CheckConstraint, Index, String, Text, event, func, insert, inspect, or_, select, update
 from sqlalchemy.orm import Mapped, Session, mapped_column
 
 from service.store.models import Base, utcnow
@@ -338,9 +338,18 @@ def find_hash(session: Session, digest: str) -> Optional[int]:
 
 def list_events(session: Session, *, entity: Optional[str] = None, entity_id: Any = None,
                 since: Optional[dt.datetime] = None, until: Optional[dt.datetime] = None,
+                actor: Optional[str] = None, action: Optional[str] = None,
                 limit: Optional[int] = 100, offset: int = 0) -> Page:
-    """A page of events in chain order; ``since`` is inclusive, ``until`` exclusive."""
+    """A page of events in chain order; ``since`` is inclusive, ``until`` exclusive.
+
+    ``actor`` matches the actor label in any case; ``action`` matches the action, and a bare
+    ``state_change`` every state change.
+    """
     query = select(AuditEvent)
+    if actor:
+        query = query.where(func.lower(AuditEvent.actor_label) == actor.strip().lower())
+    if action:
+        query = query.where(or_(AuditEvent.action == action, AuditEvent.action.startswith(f"{action}:", autoescape=True)))
     if entity is not None:
         query = query.where(AuditEvent.entity == entity)
     if entity_id is not None:

@@ -7,7 +7,7 @@ procedure into a :class:`ProcedureSubject` and moves procedures between states.
 from __future__ import annotations
 
 from decimal import Decimal
-from typing import Optional
+from typing import Iterable, Optional
 
 from sqlalchemy import select
 from sqlalchemy.orm import Session
@@ -363,10 +363,16 @@ def decisions_of(session: Session, proc: Procedure, *, limit: Optional[int] = No
 
 def list_procedures(session: Session, *, state: Optional[str] = None, lab_id: Optional[int] = None,
                     lab_ids: Optional[set[int]] = None, family_id: Optional[int] = None,
+                    researcher_id: Optional[int] = None, states: Optional[Iterable[str]] = None,
                     limit: Optional[int] = 100, offset: int = 0) -> Page:
+    """A page of procedures in id order; ``researcher_id`` keeps one researcher's own, ``states`` any of several."""
     query = select(Procedure)
     if state is not None:
         query = query.where(Procedure.state == state)
+    if states is not None:
+        query = query.where(Procedure.state.in_(sorted(states)))
+    if researcher_id is not None:
+        query = query.where(Procedure.researcher_id == researcher_id)
     if lab_id is not None:
         query = query.where(Procedure.lab_id == lab_id)
     if lab_ids is not None:

@@ -191,9 +191,14 @@ class UnbalancedRun(Conflict):
 
 
 def list_runs(session: Session, *, lab_ids: set[int] | None = None, procedure_id: int | None = None,
+              researcher_id: int | None = None, state: str | None = None,
               limit: int | None = None, offset: int = 0) -> Page:
-    """A page of runs in id order, optionally for some labs or of one procedure."""
+    """A page of runs in id order, optionally for some labs, of one procedure, one researcher or in one state."""
     query = select(Run).order_by(Run.id)
+    if researcher_id is not None:
+        query = query.where(Run.researcher_id == researcher_id)
+    if state is not None:
+        query = query.where(Run.state == state)
     if lab_ids is not None:
         query = query.where(Run.lab_id.in_(sorted(lab_ids)))
     if procedure_id is not None:

@@ -92,9 +92,6 @@ def _review_context(proc: Procedure) -> dict:
             "needs_comment": [f for f in view["findings"] if f["level"] == "review"],
             "researcher": get_session().get(User, proc.researcher_id)}
 
-# How a measured unit reads on a page (the rule packs use pint's names).
-_UNIT_LABELS = {"ug": "µg", "degC": "°C", "delta_degC": "°C (difference)", "day": "days", "percent": "%"}
-
 
 @bp.get("/procedures", endpoint="procedures")
 def procedure_list():
@@ -177,18 +174,6 @@ def _source_labels(session, run: Run) -> dict[str, str]:
         if draw.mixture_id is not None:
             out[f"mixture:{draw.mixture_id}"] = session.get(Mixture, draw.mixture_id).label
     return out
-
-
-@bp.app_template_filter("measured")
-def measured(value, unit: str) -> str:
-    """A finding's measured value with its unit as a person reads it (µg shown as mg)."""
-    if value is None:
-        return "—"
-    if unit == "ug":
-        return f"{value / 1000:,.3f} mg"
-    text = f"{value:,.3f}".rstrip("0").rstrip(".") if isinstance(value, float) else f"{value:,}"
-    label = _UNIT_LABELS.get(unit, unit)
-    return f"{text} {label}".strip()
 
 
 @bp.app_context_processor
