@@ -13,11 +13,9 @@ from __future__ import annotations
 import os
 import threading
 from dataclasses import dataclass, field
-from urllib.parse import urlparse
 
 import pytest
 from click.testing import CliRunner
-from playwright.sync_api import Error as PlaywrightError
 from playwright.sync_api import sync_playwright
 from sqlalchemy import select
 from werkzeug.serving import make_server
@@ -25,7 +23,7 @@ from werkzeug.serving import make_server
 from service.cli import main as cli
 from service.store.db import session_scope
 from service.store.models import Lab, Mixture, Procedure, Run, Stock, WasteContainer
-from tests.browser.browsing import ACCOUNTS, CHROMIUM, CHROMIUM_ARGS, PASSWORD, Screens, remember
+from tests.browser.browsing import ACCOUNTS, CHROMIUM, CHROMIUM_ARGS, PASSWORD, PageNotes, Screens, remember
 from tests.conftest import make_app, make_user
 
 
@@ -39,7 +37,7 @@ def _unavailable(reason: str):
 class LiveServer:
     url: str
     app: object
-    emails: dict[str, str]
+    notes: PageNotes
     ids: dict[str, int] = field(default_factory=dict)
 
     def at(self, path: str) -> str:
@@ -69,11 +67,12 @@ def live_server(tmp_path_factory, rules_dir):
     assert all(ids.values()), ids
     for role, (email, member) in ACCOUNTS.items():
         make_user(app, email, role, [lab_id] if member else [], password=PASSWORD)
+    notes = PageNotes(app.wsgi_app)
+    app.wsgi_app = notes
     server = make_server("127.0.0.1", 0, app, threaded=True)
     thread = threading.Thread(target=server.serve_forever, name="browser-live-server", daemon=True)
     thread.start()
-    yield LiveServer(f"http://127.0.0.1:{server.server_port}", app,
-                     {role: email for role, (email, _) in ACCOUNTS.items()}, ids)
+    yield LiveServer(f"http://127.0.0.1:{server.server_port}", app, notes, ids)
     server.shutdown()
     thread.join(timeout=10)
     server.server_close()
@@ -94,45 +93,28 @@ def browser():
         playwright.stop()
 
 
-def _page_name(url: str) -> str:
-    path = urlparse(url).path.strip("/")
-    return path.replace("/", "-") or "home"
-
-
 @pytest.fixture
 def new_page(browser, live_server, request):
-    """A factory of pages, each in its own browser context (own cookies); a screenshot of every page
-    loaded is saved automatically."""
+    """A factory of pages, each in its own browser context (own cookies). Every HTML page the server
+    sends them is pictured after the test (``Screens``)."""
     screens = Screens(request.node.name)
+    live_server.notes.screens = screens
     contexts = []
 
     def factory(viewport: dict | None = None):
         context = browser.new_context(base_url=live_server.url, viewport=viewport or {"width": 1280, "height": 900},
-                                      accept_downloads=True)
+                                      extra_http_headers={PageNotes.HEADER: str(len(contexts))})
         context.set_default_timeout(10_000)
         contexts.append(context)
         page = context.new_page()
         remember(page, screens)
-
-        def on_load(loaded):
-            try:
-                screens.save(loaded, _page_name(loaded.url))
-            except PlaywrightError:  # the page navigated on or closed while the picture was taken
-                pass
-
-        page.on("load", on_load)
         return page
 
     yield factory
+    live_server.notes.screens = None
+    screens.picture_pages(contexts, live_server.url)
     for context in contexts:
         for page in context.pages:
-            # A load at the very end may not have been pictured yet (its handler runs asynchronously).
-            try:
-                page.wait_for_load_state()
-                if screens.last_url.get(page) != page.url:
-                    screens.save(page, _page_name(page.url))
-            except PlaywrightError:
-                pass
             remember(page, None)
         context.close()
 
@@ -140,5 +122,3 @@ def new_page(browser, live_server, request):
 @pytest.fixture
 def page(new_page):
     return new_page()
-
-
