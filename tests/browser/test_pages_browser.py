@@ -47,7 +47,6 @@ def test_a_wrong_password_keeps_the_form(page):
     assert "/login" in page.url
 
 
-@pytest.mark.xfail(strict=False, reason="layout branch")
 @pytest.mark.parametrize("name", list(PAGES))
 def test_no_horizontal_scroll_at_390px(new_page, live_server, name):
     page = new_page(viewport=PHONE)
@@ -58,7 +57,6 @@ def test_no_horizontal_scroll_at_390px(new_page, live_server, name):
     assert scroll_width <= inner_width, f"{name}: the page is {scroll_width} px wide in a {inner_width} px window"
 
 
-@pytest.mark.xfail(strict=False, reason="the session PDF route comes with the workflow branch")
 def test_the_risk_assessment_pdf_downloads(page, live_server):
     sign_in(page, "researcher")
     path = f"/procedures/{live_server.ids['cdse']}/assessment.pdf"

@@ -17,7 +17,7 @@ from pypdf import PdfReader
 
 from tests.browser.browsing import PHONE, horizontal_overflow, shot, sign_in
 
-pytestmark = [pytest.mark.browser, pytest.mark.xfail(strict=False, reason="needs editor+workflow branches")]
+pytestmark = pytest.mark.browser
 
 # A CdSe hot-injection batch at the demo's scale: hot injection runs around 240–320 °C in 1-octadecene
 # (common practice, /work/shared/REFERENCES.md "Flash points"); 5000 °C is past any heater and past the
