@@ -79,7 +79,8 @@ def _procedure_context(proc: Procedure) -> dict:
     family = procedures.list_procedures(session, family_id=proc.family_id, lab_ids=lab_scope(), limit=None)
     return {"proc": dump_procedure(proc), "tracked": TRACKED, "buttons": _buttons(proc, user),
             "labels": ACTION_LABELS, "decisions": _decision_rows(session, proc), "revisions": list(family),
-            "researcher": researcher, "edit_url": url_for("web.procedure_edit", ident=proc.id)}
+            "researcher": researcher, "edit_url": url_for("web.procedure_edit", ident=proc.id),
+            "decider": session.get(User, proc.decided_by_id) if proc.decided_by_id else None}
 
 
 def _review_context(proc: Procedure) -> dict:

@@ -114,6 +114,13 @@ def test_plan_submit_review_approve_print(new_page, live_server):
     expect(researcher).to_have_url(re.compile(f"#{re.escape(field_id)}$"))
     expect(temperature).to_be_in_viewport()
     temperature.fill("300")
+    # The check round trip: masses, findings and the scale-up preview, nothing stored.
+    assert press(researcher, "check").status == 200
+    panel = researcher.locator("#live")
+    expect(panel.get_by_role("table", name=re.compile("^element masses per batch", re.I))).to_contain_text("Cd")
+    expect(panel.get_by_role("table", name=re.compile("scale-up preview", re.I))).to_contain_text("× 10")
+    expect(panel).to_contain_text("site safety officer")  # the findings' caution
+    shot(researcher, "check-panel")
     response = press(researcher, "save")
     first = response.request.redirected_from
     assert first is not None and first.method == "POST" and first.response().status == 303
