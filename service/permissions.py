@@ -35,6 +35,9 @@ MATRIX: dict[str, frozenset[str]] = {
     "api.list_tokens": EVERYONE,
     "api.revoke_token": EVERYONE,
     "web.logout": EVERYONE,
+    "web.account": EVERYONE,
+    "web.account_token_create": EVERYONE,  # the password is asked again
+    "web.account_token_revoke": EVERYONE,  # one's own tokens only (the store checks)
     # users: administrators only
     "api.list_users": frozenset({"admin"}),
     "api.create_users": frozenset({"admin"}),

@@ -46,7 +46,8 @@ def _writes(resource: str) -> list[str]:
 
 # group: (roles allowed, endpoints). Every endpoint of the app appears exactly once.
 POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
-    "own account and sign-out": (SIGNED_IN, ["api.me", "api.list_tokens", "api.revoke_token", "web.logout"]),
+    "own account and sign-out": (SIGNED_IN, ["api.me", "api.list_tokens", "api.revoke_token", "web.logout",
+                                             "web.account", "web.account_token_create", "web.account_token_revoke"]),
     # Reads: everyone signed in (the auditor reads everything; researchers see their labs only).
     "reads": (SIGNED_IN, [
         *[f"api.{verb}_{resource}" for resource in _INVENTORY for verb in ("list", "read")],
@@ -117,12 +118,13 @@ def test_policy_table_is_consistent_with_the_roles_as_described(app):
         "api.approve_procedure", "api.request_changes_procedure", "api.decline_procedure", "web.review_procedure"}
     assert {e for e, roles in EXPECTED.items() if roles == {ADMIN}} == {
         "api.list_users", "api.read_users", "api.create_users", "api.update_users", "api.retire_users"}
-    # The auditor changes nothing: apart from GETs, only their own token, signing out, a calculation,
+    # The auditor changes nothing: apart from GETs, only their own tokens, signing out, a calculation,
     # recomputing the audit chain (a check that stores nothing) and the pages' workflow form, whose view
     # refuses the auditor every action.
     auditor_non_get = {rule.endpoint for rule, method in _routes(app)
                        if method != "GET" and AUDITOR in EXPECTED.get(rule.endpoint, ())}
     assert auditor_non_get == {"api.revoke_token", "web.logout", "api.create_estimate", "web.audit_verify",
+                               "web.account_token_create", "web.account_token_revoke",
                                "web.procedure_act"}
 
 
@@ -161,7 +163,7 @@ def _ident_for(endpoint: str, ids: dict[str, int]) -> int:
             return ids[name]
     if endpoint.endswith("_users"):
         return ids["user"]
-    if endpoint == "api.revoke_token":
+    if endpoint in ("api.revoke_token", "web.account_token_revoke"):
         return 10**6  # not the caller's own token: revoking that would end the walk
     return 1  # mixtures: a missing id still passes authorisation first
 
