@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import datetime as dt
 import json
 import re
 from pathlib import Path
@@ -9,10 +10,11 @@ from pathlib import Path
 import pytest
 from sqlalchemy import text
 
-from service.schemas import LabIn, UserIn
+from service.schemas import ContainerIn, EntryIn, LabIn, UserIn
 from service.store import identity, inventory, waste
 from service.store.db import session_scope
-from service.store.models import Lab, User, WasteContainer
+from service.present.waste import dump_container
+from service.store.models import Lab, Substance, User, WasteContainer
 from tests.test_cli import sign_in
 from tests.test_web_pages import _client, _ids, demo  # noqa: F401 - the demo fixture
 
@@ -154,8 +156,37 @@ def test_the_safety_officers_home(demo):
     assert "CdSe/ZnS core-shell growth" in _section(page, "h-queue")
     assert "NG-W04" in _section(page, "h-pickups") and "<caption>Containers waiting for pickup (1)" in page
     near = _section(page, "h-near")
-    assert "No container is near its limits." in near or "<caption>Containers near their limits" in near
     assert "NG-W04" not in near  # a container waiting for pickup is listed there, not here
+    assert "NG-W01" in near  # the demo's solvent container carries findings at level review
+
+
+def test_near_their_limits_means_80_percent_full_or_a_finding_that_needs_review(demo):
+    app, _ = demo
+    ids = _ids(app)
+    with session_scope(app.extensions["dotledger.sessions"]) as session:
+        session.info["actor"] = {"user_id": None, "label": "test"}
+        solvent = session.get(WasteContainer, ids["solvent"])
+        acetone = session.query(Substance.id).filter(Substance.name == "acetone").scalar()
+        for label, acetone_ml in (("T-81", "81"), ("T-79", "79")):
+            box = waste.create_container(session, ContainerIn(label=label, lab_id=solvent.lab_id,
+                                                              location_id=solvent.location_id,
+                                                              stream=solvent.stream, capacity="100 mL"))
+            waste.add_entry(session, box.id, EntryIn(description="acetone rinse", volume=f"{acetone_ml} mL",
+                                                     components=[{"substance_id": acetone,
+                                                                  "volume": f"{acetone_ml} mL"}]), None)
+        waste.create_container(session, ContainerIn(label="T-EMPTY", lab_id=solvent.lab_id,
+                                                    location_id=solvent.location_id, stream=solvent.stream,
+                                                    capacity="1 L"))
+    near = _section(_client(demo, "safety@example.org").get("/").get_data(as_text=True), "h-near")
+    assert ">T-81<" in near  # 81 % full: at or past the 80 % mark
+    assert ">T-EMPTY<" not in near  # empty and without findings
+    # 79 % full: listed only if a rule finds something that needs review (acetone alone: flammable, D001)
+    with app.test_request_context("/"):
+        from service.store.db import get_session
+
+        box = get_session().query(WasteContainer).filter(WasteContainer.label == "T-79").one()
+        levels = {f["level"] for f in dump_container(box)["findings"]}
+    assert (">T-79<" in near) == bool(levels & {"review", "block"})
 
 
 def test_the_lab_managers_home_and_the_auditors_home(demo):
@@ -191,6 +222,12 @@ def test_the_audit_page_filters_and_pages(demo):
     assert "No event matches these filters." in later
     today = client.get("/audit?until=2999-12-31&limit=1").get_data(as_text=True)
     assert "Audit events 1–1 of" in today
+    # A bare date in "until" takes in that whole day (UTC): the demo's events are today's, not yesterday's.
+    utc_today = dt.datetime.now(dt.timezone.utc).date()
+    assert "No event matches" not in client.get(f"/audit?until={utc_today}").get_data(as_text=True)
+    yesterday = client.get(f"/audit?until={utc_today - dt.timedelta(days=1)}").get_data(as_text=True)
+    assert "No event matches these filters." in yesterday
+    assert client.get("/audit?until=9999-12-31").status_code == 200  # the last day there is: no overflow
     assert client.get("/audit?limit=0").status_code == 422
     assert client.get("/audit?actor=" + "x" * 300).status_code == 422
     assert _client(demo, "researcher@example.org").get("/audit").status_code == 403

@@ -76,7 +76,11 @@ def _in_threshold_unit(value: Decimal, active: ActiveRule, places: Decimal) -> s
 def _shown(value: Decimal, active: ActiveRule) -> str:
     """A measured value in the unit the threshold was written in ("512.3 mg"); percentages to one decimal."""
     places = _PERCENT_PLACES if active.threshold_unit in _PERCENT_UNITS else _SHOWN_PLACES
-    return _in_threshold_unit(value, active, places)
+    text = _in_threshold_unit(value, active, places)
+    if value != active.threshold_value and text == _threshold_shown(active):
+        # rounded onto the threshold it crossed ("90 % > 90 %"): show the places that tell them apart
+        text = _in_threshold_unit(value, active, _SHOWN_PLACES)
+    return text
 
 
 def _threshold_shown(active: ActiveRule) -> str:

@@ -26,7 +26,7 @@ def _query() -> AuditQuery:
     """The filters from the address; a bare date in ``until`` includes that whole day."""
     args = {k: v.strip() for k, v in request.args.items() if v.strip()}
     query = AuditQuery.model_validate(args)
-    if query.until is not None and _DATE_ONLY.match(args.get("until", "")):
+    if query.until is not None and _DATE_ONLY.match(args.get("until", "")) and query.until.date() < dt.date.max:
         query = query.model_copy(update={"until": query.until + dt.timedelta(days=1)})
     return query
 

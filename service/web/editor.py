@@ -147,7 +147,8 @@ def _number(text: str):
 
 def _whole(text: str):
     text = text.strip()
-    return int(text) if text.isdigit() and len(text) <= 10 else text or None
+    # ASCII digits only: str.isdigit() also accepts "²", which int() refuses
+    return int(text) if text.isascii() and text.isdigit() and len(text) <= 10 else text or None
 
 
 def _or_none(text: str) -> Optional[str]:
