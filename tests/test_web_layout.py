@@ -5,6 +5,7 @@ from __future__ import annotations
 import datetime as dt
 import json
 import re
+from contextlib import contextmanager
 from pathlib import Path
 
 import pytest
@@ -144,12 +145,18 @@ def test_the_researchers_home_lists_their_own_procedures_by_state(demo):
     assert "No drafts." in other and "CdSe cores by hot injection" not in _section(other, "h-mine")
 
 
-def test_the_safety_officers_home(demo):
-    app, _ = demo
-    ids = _ids(app)
+@contextmanager
+def _store(app):
+    """A store session acting as the test, committed at the end."""
     with session_scope(app.extensions["dotledger.sessions"]) as session:
         session.info["actor"] = {"user_id": None, "label": "test"}
-        solids = session.get(WasteContainer, ids["solids"])
+        yield session
+
+
+def test_the_safety_officers_home(demo):
+    app, _ = demo
+    with _store(app) as session:
+        solids = session.get(WasteContainer, _ids(app)["solids"])
         waste.move(session, solids, "mark_full")
         waste.move(session, solids, "request_pickup")
     page = _client(demo, "safety@example.org").get("/").get_data(as_text=True)
@@ -162,10 +169,8 @@ def test_the_safety_officers_home(demo):
 
 def test_near_their_limits_means_80_percent_full_or_a_finding_that_needs_review(demo):
     app, _ = demo
-    ids = _ids(app)
-    with session_scope(app.extensions["dotledger.sessions"]) as session:
-        session.info["actor"] = {"user_id": None, "label": "test"}
-        solvent = session.get(WasteContainer, ids["solvent"])
+    with _store(app) as session:
+        solvent = session.get(WasteContainer, _ids(app)["solvent"])
         acetone = session.query(Substance.id).filter(Substance.name == "acetone").scalar()
         for label, acetone_ml in (("T-81", "81"), ("T-79", "79")):
             box = waste.create_container(session, ContainerIn(label=label, lab_id=solvent.lab_id,
