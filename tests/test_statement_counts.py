@@ -166,7 +166,13 @@ def test_a_list_of_100_costs_what_a_list_of_5_costs(seeded, path):
     assert many == few, (path, few, many)
 
 
+# The home page gathers the sections of the signed-in role (an administrator's: procedures, runs, review
+# queue, containers, pickups, inventory, waste by stream); each costs a fixed few statements, whatever the rows.
+HOME_HANDFUL = 30
+
+
 @pytest.mark.parametrize("path", PAGES)
 def test_list_pages_cost_a_fixed_handful_of_statements(seeded, path):
     count, _ = _count(seeded, seeded["pages"], path)
-    assert count <= HANDFUL, f"{path}: {count} statements\n{_summary(seeded['statements'])}"
+    budget = HOME_HANDFUL if path == "/" else HANDFUL
+    assert count <= budget, f"{path}: {count} statements\n{_summary(seeded['statements'])}"
