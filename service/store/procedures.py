@@ -13,8 +13,8 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from service import vocab
-from service.chem.content import round_ug, substance_element_masses_ug
-from service.chem.units import QuantityError, parse_quantity, to_decimal
+from service.chem.content import round_ug
+from service.chem.units import QuantityError
 from service.errors import Blocked, Conflict, Forbidden, InvalidInput
 from service.rules import LayeredRules, evaluate, highest_level
 from service.rules.subjects import ProcedureSubject, ReagentFacts, StepFacts
@@ -182,16 +182,8 @@ def _scaled(masses: dict[str, int], scale: float) -> dict[str, int]:
 
 def source_element_masses(stock: Optional[Stock], mixture: Optional[Mixture], amount_text: str,
                           field: str = "amount") -> dict[str, int]:
-    """Element masses (µg) in ``amount_text`` drawn from a stock (mass or volume) or a mixture (volume)."""
-    if stock is not None:
-        substance = stock.substance
-        return substance_element_masses_ug(
-            amount_text, substance.formula, purity=Decimal(repr(stock.purity_percent)) / 100,
-            density_g_per_ml=stock.density_g_per_ml or substance.density_g_per_ml, substance=substance.name,
-        )
-    volume_ul = to_decimal(parse_quantity(amount_text, expect="volume", field=field), "uL")
-    share = volume_ul / Decimal(mixture.volume_ul)
-    return {e.element: round_ug(Decimal(e.mass_ug) * share) for e in mixture.elements}
+    """Element masses (µg) in ``amount_text`` drawn from a stock or a mixture (``inventory.draw_of``)."""
+    return inventory.draw_of(stock if stock is not None else mixture, amount_text, field).element_mass_ug
 
 
 def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFacts:
