@@ -46,6 +46,7 @@ __all__ = [
     "list_records",
     "locations_by_id",
     "create_stock",
+    "create_product_stock",
     "update_stock",
     "create_mixture",
     "update_mixture",
@@ -250,6 +251,40 @@ def create_stock(session: Session, body: StockIn) -> Stock:
     stock = Stock(**values, amount_text=amount, quantity_kind=kind, quantity_micro=micro)
     stock.substance = session.get(Substance, body.substance_id)
     stock.elements = stock_elements(stock)
+    session.add(stock)
+    session.flush()
+    return stock
+
+
+def _product_substance(session: Session, substance_id: Optional[int], masses_ug: dict[str, int]) -> Substance:
+    """The catalogue entry a product is, as named; else the one active entry made of exactly the product's elements."""
+    if substance_id is not None:
+        return reference(session, Substance, substance_id, "substance_id")
+    present = {s for s, ug in masses_ug.items() if ug}
+    matches = [s for s in session.scalars(select(Substance).where(Substance.retired_at.is_(None)).order_by(Substance.id))
+               if present and set(parse_formula(s.formula).atoms) == present]
+    if len(matches) != 1:
+        made_of = ", ".join(sorted(present)) or "no recorded element"
+        found = f"{len(matches)} entries ({', '.join(m.name for m in matches)})" if matches else "no entry"
+        raise InvalidInput("substance_id", f"name the catalogue entry this product is: {found} of the catalogue "
+                                           f"is made of exactly {made_of}")
+    return matches[0]
+
+
+def create_product_stock(session: Session, *, label: str, amount: str, location_id: int, substance_id: Optional[int],
+                         lab_id: int, run_id: int, output_id: int, masses_ug: dict[str, int]) -> Stock:
+    """A run's product put into the inventory: its element rows are ``masses_ug`` as given (not from a formula)."""
+    _check_unique(session, Stock, {"label": label})
+    reference(session, Location, location_id, "location_id", lab_id=lab_id)
+    substance = _product_substance(session, substance_id, masses_ug)
+    kind, micro = _quantity_micro(amount)
+    if micro <= 0:
+        raise InvalidInput("amount", "must be above zero: the product as held", amount)
+    stock = Stock(label=label, substance_id=substance.id, lab_id=lab_id, location_id=location_id, amount_text=amount,
+                  quantity_kind=kind, quantity_micro=micro, purity_percent=100.0, origin_run_id=run_id,
+                  origin_output_id=output_id)
+    stock.substance = substance
+    stock.elements = [StockElement(element=s, mass_ug=ug) for s, ug in sorted(masses_ug.items())]
     session.add(stock)
     session.flush()
     return stock

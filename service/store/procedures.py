@@ -189,10 +189,14 @@ def source_element_masses(stock: Optional[Stock], mixture: Optional[Mixture], am
 def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFacts:
     masses = source_element_masses(draw.stock, draw.mixture, draw.amount_text, f"{field}.amount")
     if draw.stock is not None:
-        substance = draw.stock.substance
+        stock, substance = draw.stock, draw.stock.substance
         classes = (substance.hazard or {}).get("classes", [])
+        name, state = substance.name, substance.state
+        if inventory.is_product(stock):  # a run's product: named by its stock; a dispersion when kept by volume
+            name = f"{substance.name} ({stock.label}, product of run {stock.origin_run_id})"
+            state = "solution" if stock.quantity_kind == "volume" else state
         return ReagentFacts(
-            name=substance.name, amount_text=draw.amount_text, state=substance.state,
+            name=name, amount_text=draw.amount_text, state=state,
             element_mass_ug=_scaled(masses, scale), flags=frozenset(substance.flags or ()),
             carcinogen_category=next((c.split(" ", 1)[1] for c in classes if c.startswith("Carc. ")), None),
             flash_point_c=substance.flash_point_c,
