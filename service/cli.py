@@ -99,17 +99,15 @@ def init(site_name: str | None) -> None:
 @main.command()
 def demo() -> None:
     """Load the invented demonstration scenario (safe to run again)."""
-    from service.store.demo import SITE_NAME, load_demo, load_demo_procedures, load_demo_waste
+    from service.store.demo import SITE_NAME, load_scenario
     from service.store.site import set_site_name
 
     app = _app()
     _init(app)
     with _command_session(app, "demo") as session:
         set_site_name(session, SITE_NAME, only_if_unnamed=True)
-        added, passwords = load_demo(session, _catalogue(app))
-        added["procedures"] = load_demo_procedures(session, app.extensions["dotledger.rules"])
-        added["waste containers"] = load_demo_waste(session, app.extensions["dotledger.rules"],
-                                                    app.config["BALANCE_TOLERANCE"], app.config["BALANCE_ELEMENTS"])
+        added, passwords = load_scenario(session, _catalogue(app), app.extensions["dotledger.rules"],
+                                         app.config["BALANCE_TOLERANCE"], app.config["BALANCE_ELEMENTS"])
     click.echo(f"demo scenario {SITE_NAME!r}: " + ", ".join(f"{n} {k} added" for k, n in added.items()))
     if passwords:
         click.echo("demo accounts (passwords are shown only now; note them):")

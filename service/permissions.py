@@ -71,6 +71,7 @@ MATRIX: dict[str, frozenset[str]] = {
     "api.create_runs": frozenset({"researcher", "lab_manager", "admin"}),
     "api.add_run_output": frozenset({"researcher", "lab_manager", "admin"}),
     "api.add_run_loss": frozenset({"researcher", "lab_manager", "admin"}),
+    "api.stock_run_output": frozenset({"researcher", "lab_manager", "admin"}),
     "api.close_run": frozenset({"researcher", "lab_manager", "admin"}),
     "api.create_estimate": EVERYONE,  # a calculation; nothing is stored
     # waste containers: researchers add entries; the safety officer and lab manager run the containers

@@ -35,6 +35,7 @@ __all__ = [
     "SubstancePatch",
     "StockIn",
     "StockPatch",
+    "ProductStockIn",
     "ComponentIn",
     "MixtureIn",
     "MixturePatch",
@@ -244,6 +245,16 @@ class StockPatch(_Body):
     density_g_per_ml: Optional[Density] = None
     opened_on: Optional[Day] = None
     expires_on: Optional[Day] = None
+
+
+class ProductStockIn(_Body):
+    """A run's output put into the inventory: its element content is the output's, exactly."""
+
+    label: Label = Field(min_length=1, max_length=80)
+    location_id: Id
+    amount: MassOrVolume = Field(description='the product as held, e.g. "48 mg" of solid or "4.0 mL" of a dispersion')
+    substance_id: Optional[Id] = Field(default=None, description="the catalogue entry the product is; omitted: the "
+                                                                 "one entry made of exactly the output's elements")
 
 
 class ComponentIn(_Body):

@@ -20,7 +20,11 @@ CDO_STOCK_G = (Decimal("25") - Decimal("0.0257")) * Decimal("0.9999") * CD / (CD
 ACETATE_STOCK_G = Decimal("10") * Decimal("0.98") * CD / (CD + 4 * C + 10 * H + 6 * O)
 # NG-M01, cadmium oleate 0.20 mol/L × 50 mL: 0.010 mol × 112.414 g/mol = 1.1241 g Cd.
 OLEATE_MIXTURE_G = Decimal("0.20") * Decimal("0.050") * CD
-DEMO_CD_ON_HAND_G = CDO_STOCK_G + ACETATE_STOCK_G + OLEATE_MIXTURE_G  # 27.118 g
+# NG-P01, the run's product kept as a stock: the demo records 70 % of the run's Cd input as measured in it,
+# 70 % of 22 496 µg rounded down = 15 747 µg (the product stock holds the output's masses, not a formula's).
+CD_IN_UG = (Decimal("0.0257") * Decimal("0.9999") * CD / (CD + O) * 1_000_000).quantize(Decimal(1))
+PRODUCT_STOCK_G = (CD_IN_UG * 70 // 100) / 1_000_000
+DEMO_CD_ON_HAND_G = CDO_STOCK_G + ACETATE_STOCK_G + OLEATE_MIXTURE_G + PRODUCT_STOCK_G  # 27.134 g
 
 
 def test_init_then_demo_twice(sqlite_url, monkeypatch):
@@ -31,11 +35,11 @@ def test_init_then_demo_twice(sqlite_url, monkeypatch):
     assert "substance(s) added" in first.output
     demo = runner.invoke(main, ["demo"])
     assert demo.exit_code == 0, demo.output
-    assert "1 labs added, 4 locations added, 16 stocks added, 3 mixtures added, 4 accounts added, 3 procedures added, 4 waste containers added" in demo.output
+    assert "1 labs added, 4 locations added, 16 stocks added, 3 mixtures added, 4 accounts added, 3 procedures added, 4 waste containers added, 1 product stocks added" in demo.output
     passwords = dict(line.split() for line in demo.output.splitlines() if line.startswith("  ") and "@" in line)
     assert set(passwords) == {"researcher@example.org", "safety@example.org", "manager@example.org", "admin@example.org"}
     again = runner.invoke(main, ["demo"])
-    assert "0 labs added, 0 locations added, 0 stocks added, 0 mixtures added, 0 accounts added, 0 procedures added, 0 waste containers added" in again.output
+    assert "0 labs added, 0 locations added, 0 stocks added, 0 mixtures added, 0 accounts added, 0 procedures added, 0 waste containers added, 0 product stocks added" in again.output
     assert not any(p in again.output for p in passwords.values())
 
     client = create_app({"DATABASE_URL": sqlite_url}).test_client()
@@ -46,8 +50,8 @@ def test_init_then_demo_twice(sqlite_url, monkeypatch):
     assert "local regulations" in overview and "site safety officer" in overview
     cd_row = re.search(r">Cd<.*?</tr>", overview, re.S)
     assert cd_row is not None
-    assert f"{DEMO_CD_ON_HAND_G:.3f}" == "27.118"
-    assert "27.118" in cd_row.group(0)  # g of Cd on hand, to 3 decimals
+    assert (CD_IN_UG, f"{DEMO_CD_ON_HAND_G:.3f}") == (22_496, "27.134")
+    assert "27.134" in cd_row.group(0)  # g of Cd on hand, to 3 decimals
     stocks = client.get("/stocks?element=Cd").get_data(as_text=True)
     assert "NG-0001" in stocks and "NG-0003" not in stocks  # selenium has no Cd
     assert client.get("/mixtures").status_code == 200

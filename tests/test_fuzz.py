@@ -26,7 +26,7 @@ from sqlalchemy import select  # noqa: E402
 from service import appdata  # noqa: E402
 from service.store import identity  # noqa: E402
 from service.store.db import session_scope  # noqa: E402
-from service.store.demo import load_demo, load_demo_procedures, load_demo_waste  # noqa: E402
+from service.store.demo import load_scenario  # noqa: E402
 from service.store.models import User  # noqa: E402
 from tests.conftest import Api, make_app  # noqa: E402
 
@@ -40,10 +40,8 @@ NOT_ON_SELF = {("PATCH", "/api/v1/users/{ident}"), ("POST", "/api/v1/users/{iden
 def demo_app(sqlite_url, rules_dir):
     app = make_app(sqlite_url, rules_dir)
     with session_scope(app.extensions["dotledger.sessions"]) as session:
-        load_demo(session, appdata.catalogue(app))
-        load_demo_procedures(session, app.extensions["dotledger.rules"])
-        load_demo_waste(session, app.extensions["dotledger.rules"], app.config["BALANCE_TOLERANCE"],
-                        app.config["BALANCE_ELEMENTS"])
+        load_scenario(session, appdata.catalogue(app), app.extensions["dotledger.rules"],
+                      app.config["BALANCE_TOLERANCE"], app.config["BALANCE_ELEMENTS"])
     return app
 
 

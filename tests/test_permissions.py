@@ -87,7 +87,7 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
     "retire an approved procedure": (frozenset({OFFICER, MANAGER, ADMIN}), ["api.retire_procedure"]),
     "runs (researchers record their batches)": (frozenset({RESEARCHER, MANAGER, ADMIN}),
                                                 ["api.create_runs", "api.add_run_output", "api.add_run_loss",
-                                                 "api.close_run"]),
+                                                 "api.close_run", "api.stock_run_output"]),
     # Waste: researchers put each wash and solid into a container; the safety officer runs the containers.
     "waste entries (add, reverse, mark full)": (frozenset({RESEARCHER, MANAGER, OFFICER, ADMIN}),
                                                 ["api.add_waste_entry", "api.reverse_waste_entry",

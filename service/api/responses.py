@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from typing import Any, Optional
 
-from pydantic import BaseModel, ConfigDict
+from pydantic import BaseModel, ConfigDict, Field
 
 __all__ = [
     "Error", "Index", "Lab", "Location", "Substance", "Stock", "Mixture", "User", "Token", "IssuedToken",
@@ -77,6 +77,11 @@ class Substance(_Lifecycle):
     origin: str
 
 
+class StockOrigin(_Answer):
+    run_id: int
+    output_id: int
+
+
 class Stock(_Lifecycle):
     id: int
     label: str
@@ -88,6 +93,7 @@ class Stock(_Lifecycle):
     amount: str
     purity_percent: float
     elements: list[ElementRow]
+    origin: Optional[StockOrigin] = Field(default=None, description="the run and output a product stock came from")
 
 
 class Mixture(_Lifecycle):

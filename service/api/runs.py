@@ -10,11 +10,12 @@ from service import schemas
 from service.api import bp
 from service.api.errors import ApiError
 from service.api.inventory import json_body, page_answer
-from service.api.responses import Balance, Estimate, Run as RunAnswer
+from service.api.responses import Balance, Estimate, Run as RunAnswer, Stock as StockAnswer
 from service.appdata import active_rules
 from service.auth import check_lab, current_user, lab_scope
 from service.operations import operation
 from service.present.runs import balance_elements, balance_tolerance, dump_balance, dump_run
+from service.present.serialize import dump
 from service.store import inventory, runs
 from service.store.db import get_session
 from service.store.models import Run
@@ -64,6 +65,15 @@ def add_output(ident: int):
     run = _visible(ident)
     runs.add_output(get_session(), run, body)
     return jsonify(dump_run(run)), 201
+
+
+@bp.post("/runs/<int:ident>/outputs/<int:output_id>/stock", endpoint="stock_run_output")
+@operation(body=schemas.ProductStockIn, response=StockAnswer, status=201, errors=(403, 409))
+def stock_output(ident: int, output_id: int):
+    """Put a run's output into the inventory as a stock of the run's lab holding exactly its element masses."""
+    body = json_body(schemas.ProductStockIn)
+    stock = runs.stock_output(get_session(), _visible(ident), output_id, body, balance_elements())
+    return jsonify(dump(stock)), 201, {"Location": f"{bp.url_prefix}/stocks/{stock.id}"}
 
 
 @bp.post("/runs/<int:ident>/losses", endpoint="add_run_loss")

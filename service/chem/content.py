@@ -14,6 +14,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from decimal import ROUND_HALF_EVEN, Decimal
+from fractions import Fraction
 from typing import Iterable, Mapping, Optional
 
 from service.chem.formula import atomic_weight_decimal, parse_formula
@@ -26,6 +27,7 @@ __all__ = [
     "mixture_element_masses_ug",
     "mixture_element_ug_per_ml",
     "round_ug",
+    "share_ug",
     "total_ug",
 ]
 
@@ -35,6 +37,25 @@ _UG_PER_G = Decimal(1_000_000)
 def round_ug(value: Decimal) -> int:
     """Round a mass in micrograms to an integer, half to even."""
     return int(value.quantize(Decimal(1), rounding=ROUND_HALF_EVEN))
+
+
+def share_ug(masses_ug: Mapping[str, int], part: int, whole: int) -> dict[str, int]:
+    """The element masses (µg) in ``part`` of ``whole`` (both integers in one unit), exactly.
+
+    Each element's mass × part / whole is an exact fraction, rounded once, half to even; so taking
+    the result away from ``masses_ug`` leaves exactly what was not taken, and taking everything
+    (``part == whole``) takes every microgram.
+
+    >>> share_ug({"Cd": 15_000, "Se": 11_001}, 1, 3)
+    {'Cd': 5000, 'Se': 3667}
+    >>> share_ug({"Cd": 5}, 1, 2)  # 2.5 rounds to even
+    {'Cd': 2}
+    """
+    if isinstance(part, bool) or isinstance(whole, bool) or not isinstance(part, int) or not isinstance(whole, int):
+        raise TypeError("part and whole must be integers")
+    if whole <= 0 or part < 0:
+        raise ValueError(f"a share needs 0 <= part and 0 < whole, not {part} of {whole}")
+    return {s: round(Fraction(ug * part, whole)) for s, ug in masses_ug.items()}
 
 
 def element_mass_fractions(formula: str) -> dict[str, Decimal]:

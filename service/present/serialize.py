@@ -91,6 +91,8 @@ def stock(record: Stock) -> dict[str, Any]:
         "opened_on": _ts(record.opened_on),
         "expires_on": _ts(record.expires_on),
         "elements": element_rows(record.elements),
+        "origin": ({"run_id": record.origin_run_id, "output_id": record.origin_output_id}
+                   if record.origin_output_id is not None else None),
         **_lifecycle(record),
     }
 

@@ -16,7 +16,7 @@ from service.schemas import ComponentIn, LabIn, LocationIn, MixtureIn, StockIn, 
 from service.store import identity, inventory
 from service.store.models import Lab, Location, Mixture, Stock, Substance, User
 
-__all__ = ["SITE_NAME", "load_demo"]
+__all__ = ["SITE_NAME", "load_demo", "load_scenario"]
 
 SITE_NAME = "Northgate Institute of Materials"
 LAB = LabIn(code="C-214", name="Colloidal Nanocrystal Group", building="C")
@@ -114,6 +114,10 @@ def load_demo(session: Session, catalogue: SubstanceCatalogue) -> tuple[dict[str
     return added, passwords
 
 
+# The CdSe run's product kept as a stock: label, amount as held, catalogue key, location
+PRODUCT = ("NG-P01", "4.0 mL", "cadmium-selenide", "glovebox")
+PRODUCT_OUTPUT = "CdSe cores in hexane (ICP-OES of a digest)"
+
 # title, [(stock or mixture label, amount)], steps, waste plan, end state
 _INERT = "argon"
 PROCEDURES = [
@@ -131,7 +135,7 @@ PROCEDURES = [
       ("contaminated solids", "gloves, wipes, pipette tips", None)],
      "approved"),
     ("CdSe/ZnS core-shell growth",
-     [("NG-0006", "110 mg"), ("NG-0005", "16 mg"), ("NG-0009", "1.0 mL"), ("NG-0010", "8 mL"), ("NG-0012", "2 mL"),
+     [(PRODUCT[0], "2.0 mL"), ("NG-0006", "110 mg"), ("NG-0005", "16 mg"), ("NG-0009", "1.0 mL"), ("NG-0010", "8 mL"), ("NG-0012", "2 mL"),
       ("NG-0014", "10 mL"), ("NG-0013", "30 mL")],
      [("charge", None, "air", None, "purified CdSe cores in hexane, zinc acetate, oleylamine, 1-octadecene"),
       ("degas", 100, "vacuum", 30, "removes hexane"),
@@ -172,7 +176,10 @@ def load_demo_procedures(session: Session, rules) -> int:
         for label, amount in draws:
             stock = session.scalar(select(Stock.id).where(Stock.label == label))
             mixture = session.scalar(select(Mixture.id).where(Mixture.label == label))
-            draw_bodies.append(DrawIn(stock_id=stock, mixture_id=None if stock else mixture, amount=amount))
+            draw_bodies.append(DrawIn(stock_id=stock, mixture_id=None if stock else mixture, amount=amount)
+                               if stock or mixture else None)
+        if None in draw_bodies:
+            continue  # draws from a product not made yet: added once its run has made it (load_scenario)
         body = ProcedureIn(
             lab_id=lab.id, title=title,
             steps=[StepIn(operation=o, temperature_c=t, atmosphere=a, duration_min=d, note=n) for o, t, a, d, n in steps],
@@ -234,8 +241,7 @@ def load_demo_waste(session: Session, rules, tolerance, elements) -> int:
     def amounts(masses):
         return [ElementAmountIn(element=s, mass=f"{ug} ug") for s, ug in masses.items()]
 
-    runs.add_output(session, run, OutputIn(label="CdSe cores in hexane (ICP-OES of a digest)", method="measured",
-                                           elements=amounts(product)))
+    runs.add_output(session, run, OutputIn(label=PRODUCT_OUTPUT, method="measured", elements=amounts(product)))
     acetone = session.scalar(select(Substance.id).where(Substance.key == "acetone"))
     ode = session.scalar(select(Substance.id).where(Substance.key == "1-octadecene"))
     for description, masses, volume in (("first supernatant (ODE, acetone)", first, "25 mL"),
@@ -248,3 +254,41 @@ def load_demo_waste(session: Session, rules, tolerance, elements) -> int:
                                                     mass="35 g", elements=amounts(solids)), researcher.id)
     runs.close_run(session, run, tolerance, elements)
     return added
+
+
+def load_demo_product(session: Session, elements) -> int:
+    """The closed CdSe run's product kept as stock NG-P01 (its Cd and Se as measured); returns how many were added."""
+    from service.schemas import ProductStockIn
+    from service.store import runs
+    from service.store.models import Run, RunOutput
+
+    if session.scalar(select(Stock.id).where(Stock.label == PRODUCT[0])) is not None:
+        return 0
+    found = session.execute(select(Run, RunOutput.id).join(RunOutput, RunOutput.run_id == Run.id)
+                            .where(RunOutput.label == PRODUCT_OUTPUT).order_by(Run.id).limit(1)).first()
+    if found is None:
+        return 0
+    run, output_id = found
+    label, amount, key, place = PRODUCT
+    location = session.scalar(select(Location).where(Location.storage == LOCATIONS[place][2]))
+    substance = session.scalar(select(Substance.id).where(Substance.key == key))
+    researcher = session.scalar(select(User).where(User.email == "researcher@example.org"))
+    session.info["actor"] = {"user_id": researcher.id, "label": researcher.email}
+    runs.stock_output(session, run, output_id, ProductStockIn(label=label, location_id=location.id, amount=amount,
+                                                              substance_id=substance), elements)
+    return 1
+
+
+def load_scenario(session: Session, catalogue: SubstanceCatalogue, rules, tolerance,
+                  elements) -> tuple[dict[str, int], dict[str, str]]:
+    """The whole demo scenario, whatever of it is missing: inventory and accounts, the procedures, the waste
+    containers and the closed CdSe run, its product as a stock, and the core-shell procedure that draws from it.
+
+    Returns what was added (counts by kind) and the passwords of the accounts created now.
+    """
+    added, passwords = load_demo(session, catalogue)
+    added["procedures"] = load_demo_procedures(session, rules)
+    added["waste containers"] = load_demo_waste(session, rules, tolerance, elements)
+    added["product stocks"] = load_demo_product(session, elements)
+    added["procedures"] += load_demo_procedures(session, rules)
+    return added, passwords

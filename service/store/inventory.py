@@ -6,14 +6,15 @@ with the pure core and flush, so that conflicts surface here as domain errors.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from decimal import Decimal
-from typing import Any, Optional, TypeVar
+from typing import Any, Optional, TypeVar, Union
 
 from pydantic import BaseModel
 from sqlalchemy import and_, exists, func, select
 from sqlalchemy.orm import Session
 
-from service.chem.content import Component, mixture_element_masses_ug, substance_element_masses_ug
+from service.chem.content import Component, mixture_element_masses_ug, share_ug, substance_element_masses_ug
 from service.chem.formula import parse_formula
 from service.chem.substances import SubstanceCatalogue
 from service.chem.units import kind_of, parse_quantity, to_decimal
@@ -45,9 +46,13 @@ __all__ = [
     "list_records",
     "locations_by_id",
     "create_stock",
+    "create_product_stock",
     "update_stock",
     "create_mixture",
     "update_mixture",
+    "Draw",
+    "draw_of",
+    "take",
     "sync_catalogue",
     "element_totals",
 ]
@@ -219,10 +224,16 @@ def _quantity_micro(amount: str) -> tuple[str, int]:
     return kind, int(to_decimal(quantity, unit).to_integral_value())
 
 
-def stock_elements(stock: Stock) -> list[StockElement]:
+def is_product(stock: Stock) -> bool:
+    """True for a run's product kept as a stock: its element rows are given, not computed from a formula."""
+    return stock.origin_output_id is not None
+
+
+def stock_elements(stock: Stock, amount: Optional[str] = None) -> list[StockElement]:
+    """The element rows of ``amount`` (default: the amount held) of the stock's substance, from its formula."""
     substance = stock.substance
     masses = substance_element_masses_ug(
-        stock.amount_text,
+        stock.amount_text if amount is None else amount,
         substance.formula,
         purity=Decimal(repr(stock.purity_percent)) / 100,
         density_g_per_ml=stock.density_g_per_ml or substance.density_g_per_ml,
@@ -245,6 +256,40 @@ def create_stock(session: Session, body: StockIn) -> Stock:
     return stock
 
 
+def _product_substance(session: Session, substance_id: Optional[int], masses_ug: dict[str, int]) -> Substance:
+    """The catalogue entry a product is, as named; else the one active entry made of exactly the product's elements."""
+    if substance_id is not None:
+        return reference(session, Substance, substance_id, "substance_id")
+    present = {s for s, ug in masses_ug.items() if ug}
+    matches = [s for s in session.scalars(select(Substance).where(Substance.retired_at.is_(None)).order_by(Substance.id))
+               if present and set(parse_formula(s.formula).atoms) == present]
+    if len(matches) != 1:
+        made_of = ", ".join(sorted(present)) or "no recorded element"
+        found = f"{len(matches)} entries ({', '.join(m.name for m in matches)})" if matches else "no entry"
+        raise InvalidInput("substance_id", f"name the catalogue entry this product is: {found} of the catalogue "
+                                           f"is made of exactly {made_of}")
+    return matches[0]
+
+
+def create_product_stock(session: Session, *, label: str, amount: str, location_id: int, substance_id: Optional[int],
+                         lab_id: int, run_id: int, output_id: int, masses_ug: dict[str, int]) -> Stock:
+    """A run's product put into the inventory: its element rows are ``masses_ug`` as given (not from a formula)."""
+    _check_unique(session, Stock, {"label": label})
+    reference(session, Location, location_id, "location_id", lab_id=lab_id)
+    substance = _product_substance(session, substance_id, masses_ug)
+    kind, micro = _quantity_micro(amount)
+    if micro <= 0:
+        raise InvalidInput("amount", "must be above zero: the product as held", amount)
+    stock = Stock(label=label, substance_id=substance.id, lab_id=lab_id, location_id=location_id, amount_text=amount,
+                  quantity_kind=kind, quantity_micro=micro, purity_percent=100.0, origin_run_id=run_id,
+                  origin_output_id=output_id)
+    stock.substance = substance
+    stock.elements = [StockElement(element=s, mass_ug=ug) for s, ug in sorted(masses_ug.items())]
+    session.add(stock)
+    session.flush()
+    return stock
+
+
 def update_stock(session: Session, stock: Stock, patch: StockPatch) -> Stock:
     values = patch.model_dump(exclude_unset=True)
     _check_unique(session, Stock, values, stock.id)
@@ -255,7 +300,8 @@ def update_stock(session: Session, stock: Stock, patch: StockPatch) -> Stock:
         stock.amount_text = amount
     for key, value in values.items():
         setattr(stock, key, value)
-    stock.elements = stock_elements(stock)
+    if not is_product(stock):  # a product's content is what its run recorded, whatever the amount is restated as
+        stock.elements = stock_elements(stock)
     session.flush()
     return stock
 
@@ -263,7 +309,8 @@ def update_stock(session: Session, stock: Stock, patch: StockPatch) -> Stock:
 # --- mixtures -----------------------------------------------------------------
 
 
-def mixture_elements(mixture: Mixture) -> list[MixtureElement]:
+def mixture_elements(mixture: Mixture, volume: Optional[str] = None) -> list[MixtureElement]:
+    """The element rows of ``volume`` (default: the volume held) of the mixture, from its composition."""
     components = [
         Component(
             substance=c.substance.name,
@@ -276,7 +323,8 @@ def mixture_elements(mixture: Mixture) -> list[MixtureElement]:
         for c in mixture.components
     ]
     masses = mixture_element_masses_ug(
-        mixture.volume_text, components, density_g_per_ml=mixture.density_g_per_ml, name=mixture.name
+        mixture.volume_text if volume is None else volume, components, density_g_per_ml=mixture.density_g_per_ml,
+        name=mixture.name,
     )
     return [MixtureElement(element=s, mass_ug=ug) for s, ug in sorted(masses.items())]
 
@@ -322,6 +370,87 @@ def update_mixture(session: Session, mixture: Mixture, patch: MixturePatch) -> M
     mixture.elements = mixture_elements(mixture)
     session.flush()
     return mixture
+
+
+# --- draws ------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Draw:
+    """What a draw takes from a stock or mixture.
+
+    ``micro`` is the amount in the source's own unit (µg for a stock kept by mass; µL for a stock
+    kept by volume and for a mixture); ``element_mass_ug`` the element masses it takes.
+    """
+
+    micro: int
+    element_mass_ug: dict[str, int]
+
+
+def _held(source: Union[Stock, Mixture]) -> tuple[str, int]:
+    return (source.quantity_kind, source.quantity_micro) if isinstance(source, Stock) else ("volume", source.volume_ul)
+
+
+def draw_of(source: Union[Stock, Mixture], amount: str, field: str = "amount") -> Draw:
+    """THE element masses of drawing ``amount`` from a stock or mixture (run draws and planned draws alike).
+
+    The amount is put in the source's own unit (a density converts between mass and volume: the
+    stock's own, or for a catalogue stock its substance's; a product stock has only its own), and
+    the draw takes the source's stored element rows in proportion to it over the amount held,
+    exactly (``chem.content.share_ug``), so that :func:`take` leaves the source exactly what was
+    not taken. A source that holds nothing has no rows to share: a catalogue stock or a mixture
+    then gives the content its formula or composition would have; a product stock nothing.
+    """
+    stock = source if isinstance(source, Stock) else None
+    quantity = parse_quantity(amount, expect=("mass", "volume") if stock is not None else "volume", field=field)
+    kind, held = _held(source)
+    if kind_of(quantity) == kind:
+        wanted = to_decimal(quantity, "ug" if kind == "mass" else "uL")
+    else:
+        density = stock.density_g_per_ml if is_product(stock) else (stock.density_g_per_ml
+                                                                     or stock.substance.density_g_per_ml)
+        if density is None:
+            raise InvalidInput(field, f"{stock.label} is kept by {kind}; give the draw as a {kind}", amount)
+        grams = (to_decimal(quantity, "g") if kind_of(quantity) == "mass"
+                 else to_decimal(quantity, "mL") * Decimal(repr(density)))
+        wanted = grams * 1_000_000 if kind == "mass" else grams / Decimal(repr(density)) * 1000
+    micro = int(wanted.to_integral_value())
+    if held > 0:
+        masses = share_ug({e.element: e.mass_ug for e in source.elements}, micro, held)
+    elif stock is None:
+        masses = {e.element: e.mass_ug for e in mixture_elements(source, amount)}
+    elif is_product(stock):
+        masses = {}
+    else:
+        masses = {e.element: e.mass_ug for e in stock_elements(stock, amount)}
+    return Draw(micro, masses)
+
+
+def _format(micro: int, kind: str) -> str:
+    value = Decimal(micro) / 1000
+    return f"{value.normalize():f} {'mg' if kind == 'mass' else 'mL'}"
+
+
+def take(source: Union[Stock, Mixture], draw: Draw, field: str, amount: str) -> None:
+    """Take ``draw`` out of ``source`` (locked by the caller): its amount and each element row drop by
+    exactly what the draw takes. A draw beyond what the source holds is refused (Conflict naming ``field``)."""
+    kind, held = _held(source)
+    if draw.micro > held:
+        shown = "mg" if kind == "mass" else "mL"
+        raise Conflict(f"{source.label} holds {held / 1000:g} {shown}; the draw asks for {draw.micro / 1000:g} {shown}",
+                       field, amount)
+    rows = {row.element: row for row in source.elements}
+    if any(ug > (rows[element].mass_ug if element in rows else 0) for element, ug in draw.element_mass_ug.items()):
+        raise Conflict(f"{source.label} holds less of an element than the draw would take", field, amount)
+    for element, ug in draw.element_mass_ug.items():
+        if ug:
+            rows[element].mass_ug -= ug
+    if isinstance(source, Stock):
+        source.quantity_micro = held - draw.micro
+        source.amount_text = _format(source.quantity_micro, kind)
+    else:
+        source.volume_ul = held - draw.micro
+        source.volume_text = _format(source.volume_ul, kind)
 
 
 # --- catalogue ----------------------------------------------------------------

@@ -173,6 +173,10 @@ class Stock(_Lifecycle, Base):
     density_g_per_ml: Mapped[Optional[float]] = mapped_column(Float)
     opened_on: Mapped[Optional[dt.date]] = mapped_column(Date)
     expires_on: Mapped[Optional[dt.date]] = mapped_column(Date)
+    # A run's product put into the inventory: its element rows are the output's element masses as
+    # recorded (never recomputed from the formula); an output becomes at most one stock.
+    origin_run_id: Mapped[Optional[int]] = mapped_column(ForeignKey("runs.id"), index=True, default=None)
+    origin_output_id: Mapped[Optional[int]] = mapped_column(ForeignKey("run_outputs.id"), unique=True, default=None)
     substance: Mapped[Substance] = relationship(lazy="joined")
     elements: Mapped[list["StockElement"]] = relationship(
         cascade="all, delete-orphan", lazy="selectin", order_by="StockElement.element"

@@ -13,8 +13,8 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from service import vocab
-from service.chem.content import round_ug, substance_element_masses_ug
-from service.chem.units import QuantityError, parse_quantity, to_decimal
+from service.chem.content import round_ug
+from service.chem.units import QuantityError
 from service.errors import Blocked, Conflict, Forbidden, InvalidInput
 from service.rules import LayeredRules, evaluate, highest_level
 from service.rules.subjects import ProcedureSubject, ReagentFacts, StepFacts
@@ -182,25 +182,21 @@ def _scaled(masses: dict[str, int], scale: float) -> dict[str, int]:
 
 def source_element_masses(stock: Optional[Stock], mixture: Optional[Mixture], amount_text: str,
                           field: str = "amount") -> dict[str, int]:
-    """Element masses (µg) in ``amount_text`` drawn from a stock (mass or volume) or a mixture (volume)."""
-    if stock is not None:
-        substance = stock.substance
-        return substance_element_masses_ug(
-            amount_text, substance.formula, purity=Decimal(repr(stock.purity_percent)) / 100,
-            density_g_per_ml=stock.density_g_per_ml or substance.density_g_per_ml, substance=substance.name,
-        )
-    volume_ul = to_decimal(parse_quantity(amount_text, expect="volume", field=field), "uL")
-    share = volume_ul / Decimal(mixture.volume_ul)
-    return {e.element: round_ug(Decimal(e.mass_ug) * share) for e in mixture.elements}
+    """Element masses (µg) in ``amount_text`` drawn from a stock or a mixture (``inventory.draw_of``)."""
+    return inventory.draw_of(stock if stock is not None else mixture, amount_text, field).element_mass_ug
 
 
 def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFacts:
     masses = source_element_masses(draw.stock, draw.mixture, draw.amount_text, f"{field}.amount")
     if draw.stock is not None:
-        substance = draw.stock.substance
+        stock, substance = draw.stock, draw.stock.substance
         classes = (substance.hazard or {}).get("classes", [])
+        name, state = substance.name, substance.state
+        if inventory.is_product(stock):  # a run's product: named by its stock; a dispersion when kept by volume
+            name = f"{substance.name} ({stock.label}, product of run {stock.origin_run_id})"
+            state = "solution" if stock.quantity_kind == "volume" else state
         return ReagentFacts(
-            name=substance.name, amount_text=draw.amount_text, state=substance.state,
+            name=name, amount_text=draw.amount_text, state=state,
             element_mass_ug=_scaled(masses, scale), flags=frozenset(substance.flags or ()),
             carcinogen_category=next((c.split(" ", 1)[1] for c in classes if c.startswith("Carc. ")), None),
             flash_point_c=substance.flash_point_c,

@@ -8,10 +8,10 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from service.chem.content import round_ug
-from service.chem.units import kind_of, parse_quantity, to_decimal
-from service.errors import Blocked, Conflict, InvalidInput
+from service.chem.units import parse_quantity, to_decimal
+from service.errors import Blocked, Conflict, InvalidInput, NotFound
 from service.rules import LayeredRules, evaluate
-from service.schemas import DrawIn, LossIn, OutputIn, RunIn
+from service.schemas import DrawIn, LossIn, OutputIn, ProductStockIn, RunIn
 from service.store import inventory, procedures
 from service.store.paging import Page, paginate
 from service.store.models import (
@@ -29,49 +29,20 @@ from service.store.models import (
 )
 from service.store.waste import element_masses_ug
 
-__all__ = ["list_runs", "start_run", "add_output", "add_loss", "flows_of", "balance_of", "close_run"]
-
-
-def _format(value: Decimal, unit: str) -> str:
-    return f"{value.normalize():f} {unit}"
+__all__ = ["list_runs", "start_run", "add_output", "add_loss", "flows_of", "balance_of", "close_run",
+           "output_element_masses", "stock_output"]
 
 
 def _take(session: Session, body: DrawIn, lab_id: int, field: str) -> RunDraw:
-    """Decrement the stock or mixture by the draw; refuse a draw larger than it holds."""
+    """Take the draw out of the stock or mixture (locked); refuse a draw larger than it holds."""
     model, kind = (Stock, "stock") if body.stock_id else (Mixture, "mixture")
     # Lock only the stock's own row: PostgreSQL refuses FOR UPDATE on the outer-joined substance.
     source = inventory.reference(session, model, body.stock_id or body.mixture_id, f"{field}.{kind}_id",
                                  lab_id=lab_id, lock=True)
-    masses = procedures.source_element_masses(source if kind == "stock" else None,
-                                              source if kind == "mixture" else None, body.amount, f"{field}.amount")
-    quantity = parse_quantity(body.amount, expect=("mass", "volume"), field=f"{field}.amount")
-    if kind == "stock":
-        held_kind, unit = source.quantity_kind, ("ug" if source.quantity_kind == "mass" else "uL")
-        if kind_of(quantity) != held_kind:
-            density = source.density_g_per_ml or source.substance.density_g_per_ml
-            if density is None:
-                raise InvalidInput(f"{field}.amount", f"{source.label} is kept by {held_kind}; give the draw as a {held_kind}")
-            grams = to_decimal(quantity, "g") if kind_of(quantity) == "mass" else to_decimal(quantity, "mL") * Decimal(repr(density))
-            wanted = grams * 1_000_000 if held_kind == "mass" else grams / Decimal(repr(density)) * 1000
-        else:
-            wanted = to_decimal(quantity, unit)
-        wanted_micro = int(wanted.to_integral_value())
-        if wanted_micro > source.quantity_micro:
-            shown = "mg" if held_kind == "mass" else "mL"
-            raise Conflict(f"{source.label} holds {source.quantity_micro / 1000:g} {shown}; the draw asks for "
-                           f"{wanted_micro / 1000:g} {shown}", f"{field}.amount", body.amount)
-        source.quantity_micro -= wanted_micro
-        source.amount_text = _format(Decimal(source.quantity_micro) / 1000, "mg" if held_kind == "mass" else "mL")
-        source.elements = inventory.stock_elements(source)
-    else:
-        wanted_micro = int(to_decimal(quantity, "uL").to_integral_value())
-        if wanted_micro > source.volume_ul:
-            raise Conflict(f"{source.label} holds {source.volume_ul / 1000:g} mL; the draw asks for "
-                           f"{wanted_micro / 1000:g} mL", f"{field}.amount", body.amount)
-        source.volume_ul -= wanted_micro
-        source.volume_text = _format(Decimal(source.volume_ul) / 1000, "mL")
-        source.elements = inventory.mixture_elements(source)
-    return RunDraw(stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount, element_mass_ug=masses)
+    draw = inventory.draw_of(source, body.amount, f"{field}.amount")
+    inventory.take(source, draw, f"{field}.amount", body.amount)
+    return RunDraw(stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount,
+                   element_mass_ug=draw.element_mass_ug)
 
 
 def _planned(proc: Procedure, scale: float) -> list[DrawIn]:
@@ -109,6 +80,9 @@ def _open(run: Run) -> None:
 
 def add_output(session: Session, run: Run, body: OutputIn) -> RunOutput:
     _open(run)
+    if body.method == "by_difference" and any(o.method == "by_difference" for o in run.outputs):
+        raise Conflict(f"run {run.id} has a by-difference output already; only one output takes the remainder",
+                       "method", body.method)
     uncertainty = None
     if body.estimate is not None:
         from service import estimates
@@ -154,8 +128,14 @@ def flows_of(session: Session, run: Run, elements: tuple[str, ...]) -> list:
     for draw in run.draws:
         source = session.get(Stock, draw.stock_id) if draw.stock_id else session.get(Mixture, draw.mixture_id)
         flows.append(Flow(label=f"{source.label} {draw.amount_text}", kind="input", element_mass_ug=draw.element_mass_ug))
+    carried = sorted({s for draw in run.draws for s, ug in draw.element_mass_ug.items() if ug})
+    remainder_taken = False
     for out in run.outputs:
-        flows.append(Flow(label=out.label, kind="product", element_mass_ug=out.element_mass_ug, method=out.method,
+        masses = out.element_mass_ug
+        if out.method == "by_difference" and not remainder_taken:
+            # What the balance leaves of every element the run's draws carried (one such output per run).
+            masses, remainder_taken = {s: 0 for s in carried}, True
+        flows.append(Flow(label=out.label, kind="product", element_mass_ug=masses, method=out.method,
                           relative_uncertainty=out.relative_uncertainty))
     entries = session.execute(select(WasteEntry, WasteContainer.label).join(WasteContainer)
                               .where(WasteEntry.run_id == run.id).order_by(WasteEntry.id)).all()
@@ -182,6 +162,44 @@ def close_run(session: Session, run: Run, tolerance_fraction: Decimal, elements:
     run.state, run.closed_at = "closed", utcnow()
     session.flush()
     return run, balance
+
+
+def output_element_masses(session: Session, run: Run, output: RunOutput, elements: tuple[str, ...]) -> dict[str, int]:
+    """The element masses (µg) of one output: as measured, assayed or estimated; for the by-difference
+    output, what the run's balance of ``elements`` assigns it (the remainder of each, never below zero)."""
+    if output.method != "by_difference":
+        return dict(output.element_mass_ug)
+    from service.balance import run_balance
+
+    carried = tuple(sorted({s for draw in run.draws for s, ug in draw.element_mass_ug.items() if ug and s in elements}))
+    flows = flows_of(session, run, carried)
+    balance = run_balance(flows, tolerance_fraction=Decimal(0))
+    others = [f for f in flows if f.kind == "product" and not f.by_difference]
+    return {s: balance.element(s).product_ug - sum(f.element_mass_ug.get(s, 0) for f in others)
+            for s in carried if any(s == row.element for row in balance.elements)}
+
+
+def stock_output(session: Session, run: Run, output_id: int, body: ProductStockIn, elements: tuple[str, ...]) -> Stock:
+    """Put a run's output into the inventory as a stock of the run's lab, holding exactly the output's element masses
+    (``elements``: those the balance follows, for a by-difference output).
+
+    An output becomes at most one stock (Conflict); a by-difference output only once its run is closed, when
+    the remainder it takes is final.
+    """
+    output = session.scalar(select(RunOutput).where(RunOutput.id == output_id, RunOutput.run_id == run.id)
+                            .with_for_update())
+    if output is None:
+        raise NotFound(f"output of run {run.id}", output_id)
+    existing = session.scalar(select(Stock).where(Stock.origin_output_id == output.id))
+    if existing is not None:
+        raise Conflict(f"output {output.id} is stock {existing.label} already; an output becomes one stock",
+                       "output_id", output.id)
+    if output.method == "by_difference" and run.state != "closed":
+        raise Conflict(f"run {run.id} is open; a by-difference output's content is final once the run is closed",
+                       "output_id", output.id)
+    return inventory.create_product_stock(
+        session, label=body.label, amount=body.amount, location_id=body.location_id, substance_id=body.substance_id,
+        lab_id=run.lab_id, run_id=run.id, output_id=output.id, masses_ug=output_element_masses(session, run, output, elements))
 
 
 class UnbalancedRun(Conflict):
