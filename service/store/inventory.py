@@ -231,7 +231,9 @@ def stock_elements(stock: Stock) -> list[StockElement]:
     return [StockElement(element=s, mass_ug=ug) for s, ug in sorted(masses.items())]
 
 
-def create_stock(session: Session, body: StockIn) -> Stock:
+def create_stock(session: Session, body: StockIn, *, elements: Optional[dict[str, int]] = None) -> Stock:
+    """A new stock; its element rows computed from the formula, or ``elements`` ({symbol: µg}) as given
+    (what left another stock, so that a transfer neither creates nor destroys metal by rounding)."""
     values = body.model_dump()
     _check_unique(session, Stock, values)
     _check_refs(session, values)
@@ -239,7 +241,8 @@ def create_stock(session: Session, body: StockIn) -> Stock:
     kind, micro = _quantity_micro(amount)
     stock = Stock(**values, amount_text=amount, quantity_kind=kind, quantity_micro=micro)
     stock.substance = session.get(Substance, body.substance_id)
-    stock.elements = stock_elements(stock)
+    stock.elements = (stock_elements(stock) if elements is None
+                      else [StockElement(element=e, mass_ug=ug) for e, ug in sorted(elements.items())])
     session.add(stock)
     session.flush()
     return stock

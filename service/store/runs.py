@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from decimal import Decimal
+from typing import Optional
 
 from sqlalchemy import select
 from sqlalchemy.orm import Session
@@ -29,11 +31,77 @@ from service.store.models import (
 )
 from service.store.waste import element_masses_ug
 
-__all__ = ["list_runs", "start_run", "add_output", "add_loss", "flows_of", "balance_of", "close_run"]
+__all__ = ["Taken", "BeyondHeld", "take", "list_runs", "start_run", "add_output", "add_loss", "flows_of", "balance_of", "close_run"]
 
 
 def _format(value: Decimal, unit: str) -> str:
     return f"{value.normalize():f} {unit}"
+
+
+@dataclass(frozen=True)
+class Taken:
+    """What one draw took: the amount in the source's own unit (µg of a stock kept by mass, µL of a
+    stock kept by volume or of a mixture), exactly and as text in mg or mL, and the element masses (µg)."""
+
+    amount_text: str
+    quantity_micro: int
+    element_mass_ug: dict[str, int]
+
+
+class BeyondHeld(Conflict):
+    """A draw asks for more than the source holds (``field`` names the amount)."""
+
+
+def take(source: Stock | Mixture, amount: Optional[str], field: str) -> Taken:
+    """Take ``amount`` (None: all it holds) from a stock or mixture the caller has locked.
+
+    The one draw of the service: runs, disposals, transfers and shipments all take through it.
+    The element masses taken are those of the amount (a stock's from its formula, purity and
+    density; a mixture's its share of the mixture's rows), never more than a row holds; taking
+    everything takes the rows exactly. The source's amount and element rows drop by exactly what
+    is returned, so what leaves a source is what arrives elsewhere, to the microgram.
+    """
+    stock = source if isinstance(source, Stock) else None
+    held_kind = stock.quantity_kind if stock is not None else "volume"
+    unit, shown = ("ug", "mg") if held_kind == "mass" else ("uL", "mL")
+    held = stock.quantity_micro if stock is not None else source.volume_ul
+    if amount is None:
+        if held <= 0:
+            raise BeyondHeld(f"{source.label} is empty", field)
+        wanted_micro = held
+    else:
+        quantity = parse_quantity(amount, expect=("mass", "volume") if stock is not None else "volume", field=field)
+        if kind_of(quantity) != held_kind:
+            density = source.density_g_per_ml or source.substance.density_g_per_ml
+            if density is None:
+                raise InvalidInput(field, f"{source.label} is kept by {held_kind}; give the amount as a {held_kind}")
+            grams = to_decimal(quantity, "g") if kind_of(quantity) == "mass" else to_decimal(quantity, "mL") * Decimal(repr(density))
+            wanted = grams * 1_000_000 if held_kind == "mass" else grams / Decimal(repr(density)) * 1000
+        else:
+            wanted = to_decimal(quantity, unit)
+        wanted_micro = int(wanted.to_integral_value())
+        if wanted_micro <= 0:
+            raise InvalidInput(field, "must be above zero", amount)
+        if wanted_micro > held:
+            raise BeyondHeld(f"{source.label} holds {held / 1000:g} {shown}; the draw asks for "
+                             f"{wanted_micro / 1000:g} {shown}", field, amount)
+    rows = {row.element: row for row in source.elements}
+    if wanted_micro == held:
+        masses = {element: row.mass_ug for element, row in rows.items()}
+    else:
+        computed = procedures.source_element_masses(stock, None if stock is not None else source, amount, field)
+        masses = {element: min(ug, rows[element].mass_ug if element in rows else 0) for element, ug in computed.items()}
+    for element, ug in masses.items():
+        if element in rows:
+            rows[element].mass_ug -= ug
+    remaining = held - wanted_micro
+    if stock is not None:
+        stock.quantity_micro = remaining
+        stock.amount_text = _format(Decimal(remaining) / 1000, shown)
+    else:
+        source.volume_ul = remaining
+        source.volume_text = _format(Decimal(remaining) / 1000, shown)
+    return Taken(_format(Decimal(wanted_micro) / 1000, shown), wanted_micro, masses)
 
 
 def _take(session: Session, body: DrawIn, lab_id: int, field: str) -> RunDraw:
@@ -42,36 +110,9 @@ def _take(session: Session, body: DrawIn, lab_id: int, field: str) -> RunDraw:
     # Lock only the stock's own row: PostgreSQL refuses FOR UPDATE on the outer-joined substance.
     source = inventory.reference(session, model, body.stock_id or body.mixture_id, f"{field}.{kind}_id",
                                  lab_id=lab_id, lock=True)
-    masses = procedures.source_element_masses(source if kind == "stock" else None,
-                                              source if kind == "mixture" else None, body.amount, f"{field}.amount")
-    quantity = parse_quantity(body.amount, expect=("mass", "volume"), field=f"{field}.amount")
-    if kind == "stock":
-        held_kind, unit = source.quantity_kind, ("ug" if source.quantity_kind == "mass" else "uL")
-        if kind_of(quantity) != held_kind:
-            density = source.density_g_per_ml or source.substance.density_g_per_ml
-            if density is None:
-                raise InvalidInput(f"{field}.amount", f"{source.label} is kept by {held_kind}; give the draw as a {held_kind}")
-            grams = to_decimal(quantity, "g") if kind_of(quantity) == "mass" else to_decimal(quantity, "mL") * Decimal(repr(density))
-            wanted = grams * 1_000_000 if held_kind == "mass" else grams / Decimal(repr(density)) * 1000
-        else:
-            wanted = to_decimal(quantity, unit)
-        wanted_micro = int(wanted.to_integral_value())
-        if wanted_micro > source.quantity_micro:
-            shown = "mg" if held_kind == "mass" else "mL"
-            raise Conflict(f"{source.label} holds {source.quantity_micro / 1000:g} {shown}; the draw asks for "
-                           f"{wanted_micro / 1000:g} {shown}", f"{field}.amount", body.amount)
-        source.quantity_micro -= wanted_micro
-        source.amount_text = _format(Decimal(source.quantity_micro) / 1000, "mg" if held_kind == "mass" else "mL")
-        source.elements = inventory.stock_elements(source)
-    else:
-        wanted_micro = int(to_decimal(quantity, "uL").to_integral_value())
-        if wanted_micro > source.volume_ul:
-            raise Conflict(f"{source.label} holds {source.volume_ul / 1000:g} mL; the draw asks for "
-                           f"{wanted_micro / 1000:g} mL", f"{field}.amount", body.amount)
-        source.volume_ul -= wanted_micro
-        source.volume_text = _format(Decimal(source.volume_ul) / 1000, "mL")
-        source.elements = inventory.mixture_elements(source)
-    return RunDraw(stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount, element_mass_ug=masses)
+    taken = take(source, body.amount, f"{field}.amount")
+    return RunDraw(stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount,
+                   element_mass_ug=taken.element_mass_ug)
 
 
 def _planned(proc: Procedure, scale: float) -> list[DrawIn]:
