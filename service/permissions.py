@@ -74,6 +74,13 @@ MATRIX: dict[str, frozenset[str]] = {
     "api.stock_run_output": frozenset({"researcher", "lab_manager", "admin"}),
     "api.close_run": frozenset({"researcher", "lab_manager", "admin"}),
     "api.create_estimate": EVERYONE,  # a calculation; nothing is stored
+    # stocks leaving the inventory: who keeps the stocks moves them (researchers: their labs' stocks, into
+    # their labs); everyone reads the movements (researchers: of their labs)
+    "api.dispose_stock": frozenset({"researcher", "lab_manager", "admin"}),
+    "api.transfer_stock": frozenset({"researcher", "lab_manager", "admin"}),
+    "api.ship_stock": frozenset({"researcher", "lab_manager", "admin"}),
+    "api.list_stock_movements_of_stock": EVERYONE,
+    "api.list_stock_movements": EVERYONE,
     # waste containers: researchers add entries; the safety officer and lab manager run the containers
     "api.list_waste_containers": EVERYONE,
     "api.read_waste_containers": EVERYONE,

@@ -43,7 +43,12 @@ __all__ = [
     "check_password",
     "UserPatch",
     "TokenRequest",
+    "WindowQuery",
     "AuditQuery",
+    "MovementQuery",
+    "DisposeIn",
+    "TransferIn",
+    "ShipIn",
     "PageQuery",
     "ListQuery",
     "PAGE_LIMIT_DEFAULT",
@@ -379,12 +384,9 @@ class ListQuery(PageQuery):
     element: Optional[ElementSymbol] = None
 
 
-class AuditQuery(PageQuery):
-    entity: Optional[str] = Field(default=None, max_length=60)
-    entity_id: Optional[str] = Field(default=None, max_length=60)
-    actor: Optional[str] = Field(default=None, max_length=254, description="the actor's label (an e-mail address or a command), any case")
-    action: Optional[str] = Field(default=None, max_length=120,
-                                  description='create, update, retire, delete, or state_change (any, or one: "state_change:draft->submitted")')
+class WindowQuery(PageQuery):
+    """A page of records made within a time window."""
+
     since: Optional[dt.datetime] = Field(default=None, description="inclusive; a date or a time without a zone is UTC")
     until: Optional[dt.datetime] = Field(default=None, description="exclusive; a date or a time without a zone is UTC")
 
@@ -393,6 +395,43 @@ class AuditQuery(PageQuery):
     def _utc(cls, value: Optional[dt.datetime]) -> Optional[dt.datetime]:
         # The trail keeps aware UTC times; a bare date ("2026-12-01") or a zoneless time is read as UTC.
         return value.replace(tzinfo=dt.timezone.utc) if value is not None and value.tzinfo is None else value
+
+
+class AuditQuery(WindowQuery):
+    entity: Optional[str] = Field(default=None, max_length=60)
+    entity_id: Optional[str] = Field(default=None, max_length=60)
+    actor: Optional[str] = Field(default=None, max_length=254, description="the actor's label (an e-mail address or a command), any case")
+    action: Optional[str] = Field(default=None, max_length=120,
+                                  description='create, update, retire, delete, or state_change (any, or one: "state_change:draft->submitted")')
+
+
+MovementKind = Literal[vocab.MOVEMENT_KINDS]
+
+
+class MovementQuery(WindowQuery):
+    """Filters of the stock movements: kind, a lab (the stock's, or a transfer's receiving lab), a time window."""
+
+    kind: Optional[MovementKind] = None
+    lab_id: Optional[Id] = None
+
+
+class DisposeIn(_Body):
+    container_id: Id
+    amount: Optional[MassOrVolume] = Field(default=None, description="omitted: all the stock holds")
+    description: Text = Field(min_length=1, max_length=2000)
+
+
+class TransferIn(_Body):
+    lab_id: Id
+    location_id: Id
+    amount: Optional[MassOrVolume] = Field(default=None, description="omitted: all the stock holds")
+    label: Label = Field(min_length=1, max_length=80, description="the new stock's label in the receiving lab")
+
+
+class ShipIn(_Body):
+    destination: Label = Field(min_length=1, max_length=300, description="who and where it goes, e.g. a collaborator's lab")
+    amount: Optional[MassOrVolume] = Field(default=None, description="omitted: all the stock holds")
+    note: Optional[Text] = Field(default=None, max_length=2000)
 
 
 Operation = Literal["charge", "degas", "heat", "inject", "hold", "grow_shell", "cool", "ligand_exchange",

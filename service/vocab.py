@@ -26,6 +26,7 @@ __all__ = [
     "PROCEDURE_STATES",
     "RUN_STATES",
     "CONTAINER_STATES",
+    "MOVEMENT_KINDS",
     "FINDING_LEVELS",
     "ELEMENT_SYMBOLS",
     "TRACKED_ELEMENTS",
@@ -55,6 +56,10 @@ SOLID_STREAMS = ("contaminated_solids", "sharps")
 PROCEDURE_STATES = ("draft", "submitted", "approved", "changes_requested", "declined", "retired")
 RUN_STATES = ("open", "closed")
 CONTAINER_STATES = ("open", "full", "pickup_requested", "collected")
+
+# How a stock leaves the inventory other than by a run's draw: into a waste container, to another
+# lab of the site (a new stock there), or out of the site (sent to a collaborator, returned).
+MOVEMENT_KINDS = ("dispose", "transfer", "ship")
 
 # Levels of a rule finding, in rising severity (rule packs and review decisions).
 FINDING_LEVELS = ("note", "caution", "review", "block")

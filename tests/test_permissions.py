@@ -55,6 +55,7 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
         "api.list_procedure_decisions", "api.preview_procedure",
         "api.list_runs", "api.read_runs", "api.read_run_balance",
         "api.list_waste_containers", "api.read_waste_containers", "api.list_waste_entries",
+        "api.list_stock_movements_of_stock", "api.list_stock_movements",
         "documents.procedure_assessment_pdf", "documents.procedure_assessment_html",
         "documents.waste_container_manifest_pdf", "documents.waste_container_manifest_html",
         "documents_pages.procedure_assessment_pdf", "documents_pages.waste_container_manifest_pdf",
@@ -71,6 +72,8 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
         frozenset({MANAGER, OFFICER, ADMIN}), _writes("locations") + _writes("substances")),
     "stocks and mixtures (researchers in their labs prepare and draw them)": (
         frozenset({RESEARCHER, MANAGER, ADMIN}), _writes("stocks") + _writes("mixtures")),
+    "stocks leaving the inventory (dispose, transfer, ship): as the stocks' writers": (
+        frozenset({RESEARCHER, MANAGER, ADMIN}), ["api.dispose_stock", "api.transfer_stock", "api.ship_stock"]),
     # Procedures: researchers register and submit; only the safety officer decides.
     # (withdraw: researchers their own only, which the store checks per procedure)
     "procedure create, edit, submit, withdraw": (frozenset({RESEARCHER, MANAGER, ADMIN}),

@@ -27,12 +27,13 @@ from service.schemas import (
     MixtureIn,
     ProcedureIn,
     RunIn,
+    ShipIn,
     StepIn,
     StockIn,
     UserIn,
     WastePlanIn,
 )
-from service.store import identity, inventory, procedures, runs, waste
+from service.store import identity, inventory, movements, procedures, runs, waste
 from service.store.db import session_scope
 from service.store.models import Lab, Location, Substance, User, WasteContainer
 from tests.test_cli import sign_in
@@ -99,7 +100,9 @@ def _seed(app) -> dict[str, int]:
                 components=[EntryComponentIn(substance_id=acetone if n % 2 else ode, volume="5 mL")],
                 elements=[ElementAmountIn(element="Cd", mass="1 mg"), ElementAmountIn(element="Se", mass="1 mg")]),
                 researcher.id)
-        return {"container": containers[0].id, "procedure": procs[0].id}
+        for n in range(ROWS):  # ROWS shipments out of one stock
+            movements.ship(s, stocks[1].id, ShipIn(destination=f"collaborator {n}", amount="1 mg"), researcher.id)
+        return {"container": containers[0].id, "procedure": procs[0].id, "stock": stocks[1].id}
 
 
 @pytest.fixture(scope="module")
@@ -143,6 +146,7 @@ API_LISTS = [
     ("/procedures", ROWS), ("/review_queue", ROWS // 2), ("/runs", ROWS), ("/waste_containers", ROWS),
     ("/waste_containers/{container}/entries", ROWS), ("/tokens", ROWS), ("/users", ROWS),
     ("/audit_events", ROWS), ("/procedures/{procedure}/revisions", 1), ("/procedures/{procedure}/decisions", 2),
+    ("/stock_movements", ROWS), ("/stocks/{stock}/movements", ROWS),
 ]
 PAGES = ["/", "/stocks", "/mixtures", "/procedures", "/review", "/waste", "/waste/{container}"]
 

@@ -189,6 +189,7 @@ CHECKED = {
     "mixture_elements": [("element", vocab.ELEMENT_SYMBOLS)],
     "waste_entry_elements": [("element", vocab.ELEMENT_SYMBOLS)],
     "waste_container_elements": [("element", vocab.ELEMENT_SYMBOLS)],  # created with it by 0008
+    "stock_movements": [("kind", vocab.MOVEMENT_KINDS)],  # created with it by 0014
 }
 BAD_WORDS = ["chemist", "Researcher", "open ", ""]  # not a word of any vocabulary; wrong case; a space; nothing
 
@@ -214,6 +215,8 @@ INSERTS = {  # (table, column) -> one row whose checked column is :value (other 
                                          "VALUES (:entry, :value, 1)",
     ("waste_container_elements", "element"): "INSERT INTO waste_container_elements (container_id, element, mass_ug) "
                                              "VALUES (:container, :value, 1)",
+    ("stock_movements", "kind"): "INSERT INTO stock_movements (stock_id, kind, amount_text, quantity_micro, "
+                                 "element_mass_ug, at) VALUES (:stock, :value, '1 mg', 1000, '{}', :now)",
 }
 
 
@@ -294,7 +297,8 @@ def test_the_demo_data_passes_the_checks_when_they_are_added(database_url, monke
         result = runner.invoke(main, args)
         assert result.exit_code == 0, result.output
     engine = make_engine(database_url)
-    tables = [t for t in CHECKED if t != "waste_container_elements"]  # that table comes after 0006 with its check
+    # waste_container_elements and stock_movements come after 0006 with their checks
+    tables = [t for t in CHECKED if t not in ("waste_container_elements", "stock_movements")]
     try:
         with engine.connect() as connection:
             before = {t: connection.execute(text(f"SELECT COUNT(*) FROM {t}")).scalar_one() for t in tables}

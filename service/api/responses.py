@@ -14,7 +14,7 @@ from pydantic import BaseModel, ConfigDict, Field
 __all__ = [
     "Error", "Index", "Lab", "Location", "Substance", "Stock", "Mixture", "User", "Token", "IssuedToken",
     "AuditEvent", "Procedure", "ReviewItem", "Decision", "Preview", "Run", "Balance", "WasteContainer",
-    "WasteEntry", "Estimate", "Report",
+    "WasteEntry", "StockMovement", "Estimate", "Report",
 ]
 
 
@@ -241,6 +241,21 @@ class WasteEntry(_Answer):
     reverses_entry_id: Optional[int]
     components: list[dict[str, Any]]
     elements: list[ElementRow]
+
+
+class StockMovement(_Answer):
+    id: int
+    stock_id: int
+    kind: str
+    amount: str
+    quantity_micro: int
+    elements: list[ElementRow]
+    waste_entry_id: Optional[int]
+    to_stock_id: Optional[int]
+    destination: Optional[str]
+    note: Optional[str]
+    actor_id: Optional[int]
+    at: str
 
 
 class Estimate(_Answer):

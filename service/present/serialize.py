@@ -6,9 +6,9 @@ import dataclasses
 import datetime as dt
 from typing import Any, Iterable
 
-from service.store.models import Lab, Location, Mixture, Stock, Substance
+from service.store.models import Lab, Location, Mixture, Stock, StockMovement, Substance
 
-__all__ = ["dump"]
+__all__ = ["dump", "movement"]
 
 
 def _ts(value: dt.datetime | dt.date | None) -> str | None:
@@ -126,6 +126,24 @@ def mixture(record: Mixture) -> dict[str, Any]:
             for row in element_rows(record.elements)
         ],
         **_lifecycle(record),
+    }
+
+
+def movement(record: StockMovement) -> dict[str, Any]:
+    """A stock movement: the amount in the stock's unit and the exact element masses (µg) that left it."""
+    return {
+        "id": record.id,
+        "stock_id": record.stock_id,
+        "kind": record.kind,
+        "amount": record.amount_text,
+        "quantity_micro": record.quantity_micro,
+        "elements": element_rows_from(dict(sorted(record.element_mass_ug.items()))),
+        "waste_entry_id": record.waste_entry_id,
+        "to_stock_id": record.to_stock_id,
+        "destination": record.destination,
+        "note": record.note,
+        "actor_id": record.actor_id,
+        "at": _ts(record.at),
     }
 
 

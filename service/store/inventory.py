@@ -242,7 +242,9 @@ def stock_elements(stock: Stock, amount: Optional[str] = None) -> list[StockElem
     return [StockElement(element=s, mass_ug=ug) for s, ug in sorted(masses.items())]
 
 
-def create_stock(session: Session, body: StockIn) -> Stock:
+def create_stock(session: Session, body: StockIn, *, elements: Optional[dict[str, int]] = None) -> Stock:
+    """A new stock; its element rows computed from the formula, or ``elements`` ({symbol: µg}) as given
+    (what left another stock, so that a transfer neither creates nor destroys metal by rounding)."""
     values = body.model_dump()
     _check_unique(session, Stock, values)
     _check_refs(session, values)
@@ -250,7 +252,8 @@ def create_stock(session: Session, body: StockIn) -> Stock:
     kind, micro = _quantity_micro(amount)
     stock = Stock(**values, amount_text=amount, quantity_kind=kind, quantity_micro=micro)
     stock.substance = session.get(Substance, body.substance_id)
-    stock.elements = stock_elements(stock)
+    stock.elements = (stock_elements(stock) if elements is None
+                      else [StockElement(element=e, mass_ug=ug) for e, ug in sorted(elements.items())])
     session.add(stock)
     session.flush()
     return stock
@@ -387,7 +390,8 @@ class Draw:
     element_mass_ug: dict[str, int]
 
 
-def _held(source: Union[Stock, Mixture]) -> tuple[str, int]:
+def held_of(source: Union[Stock, Mixture]) -> tuple[str, int]:
+    """How a source is kept and how much it holds: ("mass", µg) or ("volume", µL)."""
     return (source.quantity_kind, source.quantity_micro) if isinstance(source, Stock) else ("volume", source.volume_ul)
 
 
@@ -403,7 +407,7 @@ def draw_of(source: Union[Stock, Mixture], amount: str, field: str = "amount") -
     """
     stock = source if isinstance(source, Stock) else None
     quantity = parse_quantity(amount, expect=("mass", "volume") if stock is not None else "volume", field=field)
-    kind, held = _held(source)
+    kind, held = held_of(source)
     if kind_of(quantity) == kind:
         wanted = to_decimal(quantity, "ug" if kind == "mass" else "uL")
     else:
@@ -434,7 +438,7 @@ def _format(micro: int, kind: str) -> str:
 def take(source: Union[Stock, Mixture], draw: Draw, field: str, amount: str) -> None:
     """Take ``draw`` out of ``source`` (locked by the caller): its amount and each element row drop by
     exactly what the draw takes. A draw beyond what the source holds is refused (Conflict naming ``field``)."""
-    kind, held = _held(source)
+    kind, held = held_of(source)
     if draw.micro > held:
         shown = "mg" if kind == "mass" else "mL"
         raise Conflict(f"{source.label} holds {held / 1000:g} {shown}; the draw asks for {draw.micro / 1000:g} {shown}",

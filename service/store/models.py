@@ -55,6 +55,7 @@ __all__ = [
     "WasteContainerTotals",
     "WasteContainerElement",
     "WasteContainerComponent",
+    "StockMovement",
     "IdempotencyKey",
     "utcnow",
 ]
@@ -505,6 +506,31 @@ class WasteContainerComponent(Base):
     substance_id: Mapped[int] = mapped_column(ForeignKey("substances.id"), primary_key=True)
     volume_ul: Mapped[int] = mapped_column(BigInteger)
     substance: Mapped[Substance] = relationship(lazy="joined")
+
+
+# --- stocks leaving the inventory -------------------------------------------------
+
+class StockMovement(Base):
+    """An amount that left a stock other than by a run: disposed of, transferred to another lab, shipped out.
+
+    ``element_mass_ug`` is exactly what the stock's element rows dropped by; a disposal names the
+    waste entry it became, a transfer the new stock in the other lab. Append-only.
+    """
+
+    __tablename__ = "stock_movements"
+    __table_args__ = (_one_of("kind", vocab.MOVEMENT_KINDS),)
+    id: Mapped[int] = mapped_column(primary_key=True)
+    stock_id: Mapped[int] = mapped_column(ForeignKey("stocks.id"), index=True)
+    kind: Mapped[str] = mapped_column(String(10), index=True)  # vocab.MOVEMENT_KINDS
+    amount_text: Mapped[str] = mapped_column(String(60))
+    quantity_micro: Mapped[int] = mapped_column(BigInteger)  # µg or µL moved, in the stock's own kind
+    element_mass_ug: Mapped[dict[str, Any]] = mapped_column(default=dict)
+    waste_entry_id: Mapped[Optional[int]] = mapped_column(ForeignKey("waste_entries.id"))
+    to_stock_id: Mapped[Optional[int]] = mapped_column(ForeignKey("stocks.id"))
+    destination: Mapped[Optional[str]] = mapped_column(String(300))
+    note: Mapped[Optional[str]] = mapped_column(Text)
+    actor_id: Mapped[Optional[int]] = mapped_column(ForeignKey("users.id"))
+    at: Mapped[dt.datetime] = mapped_column(default=utcnow, index=True)
 
 
 # --- retried requests -------------------------------------------------------------

@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from decimal import Decimal
+from typing import Optional
 
 from sqlalchemy import select
 from sqlalchemy.orm import Session
@@ -29,8 +31,51 @@ from service.store.models import (
 )
 from service.store.waste import element_masses_ug
 
-__all__ = ["list_runs", "start_run", "add_output", "add_loss", "flows_of", "balance_of", "close_run",
-           "output_element_masses", "stock_output"]
+__all__ = ["Taken", "BeyondHeld", "take", "list_runs", "start_run", "add_output", "add_loss", "flows_of", "balance_of",
+           "close_run", "output_element_masses", "stock_output"]
+
+
+def _format(value: Decimal, unit: str) -> str:
+    return f"{value.normalize():f} {unit}"
+
+
+@dataclass(frozen=True)
+class Taken:
+    """What one draw took: the amount in the source's own unit (µg of a stock kept by mass, µL of a
+    stock kept by volume or of a mixture), exactly and as text in mg or mL, and the element masses (µg)."""
+
+    amount_text: str
+    quantity_micro: int
+    element_mass_ug: dict[str, int]
+
+
+class BeyondHeld(Conflict):
+    """A draw asks for more than the source holds (``field`` names the amount)."""
+
+
+def take(source: Stock | Mixture, amount: Optional[str], field: str) -> Taken:
+    """Take ``amount`` (None: all it holds) from a stock or mixture the caller has locked.
+
+    The one draw of the service: runs, disposals, transfers and shipments all take through it, and
+    it takes through :func:`inventory.draw_of` and :func:`inventory.take`: the element masses are the
+    source's stored rows in proportion to the amount (taking everything takes the rows exactly), and
+    the source's amount and rows drop by exactly what is returned, so what leaves a source is what
+    arrives elsewhere, to the microgram.
+    """
+    kind, held = inventory.held_of(source)
+    shown = "mg" if kind == "mass" else "mL"
+    if amount is None:
+        if held <= 0:
+            raise BeyondHeld(f"{source.label} is empty", field)
+        amount = _format(Decimal(held) / 1000, shown)
+    draw = inventory.draw_of(source, amount, field)
+    if draw.micro <= 0:
+        raise InvalidInput(field, "must be above zero", amount)
+    if draw.micro > held:
+        raise BeyondHeld(f"{source.label} holds {held / 1000:g} {shown}; the draw asks for "
+                         f"{draw.micro / 1000:g} {shown}", field, amount)
+    inventory.take(source, draw, field, amount)
+    return Taken(_format(Decimal(draw.micro) / 1000, shown), draw.micro, draw.element_mass_ug)
 
 
 def _take(session: Session, body: DrawIn, lab_id: int, field: str) -> RunDraw:
@@ -39,10 +84,9 @@ def _take(session: Session, body: DrawIn, lab_id: int, field: str) -> RunDraw:
     # Lock only the stock's own row: PostgreSQL refuses FOR UPDATE on the outer-joined substance.
     source = inventory.reference(session, model, body.stock_id or body.mixture_id, f"{field}.{kind}_id",
                                  lab_id=lab_id, lock=True)
-    draw = inventory.draw_of(source, body.amount, f"{field}.amount")
-    inventory.take(source, draw, f"{field}.amount", body.amount)
+    taken = take(source, body.amount, f"{field}.amount")
     return RunDraw(stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount,
-                   element_mass_ug=draw.element_mass_ug)
+                   element_mass_ug=taken.element_mass_ug)
 
 
 def _planned(proc: Procedure, scale: float) -> list[DrawIn]:
