@@ -75,12 +75,8 @@ def _take(session: Session, body: DrawIn, lab_id: int, field: str) -> RunDraw:
 
 
 def _planned(proc: Procedure, scale: float) -> list[DrawIn]:
-    out = []
-    for draw in proc.draws:
-        quantity = parse_quantity(draw.amount_text)
-        amount = f"{Decimal(repr(float(quantity.magnitude))) * Decimal(repr(scale))} {quantity.units:~}"
-        out.append(DrawIn(stock_id=draw.stock_id, mixture_id=draw.mixture_id, amount=amount))
-    return out
+    return [DrawIn(stock_id=draw.stock_id, mixture_id=draw.mixture_id,
+                   amount=procedures.scaled_amount(draw.amount_text, scale)) for draw in proc.draws]
 
 
 def start_run(session: Session, body: RunIn, actor: User, rules: LayeredRules) -> Run:
