@@ -7,12 +7,12 @@ from decimal import Decimal
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
-from service.chem.content import round_ug
 from service.chem.units import kind_of, parse_quantity, to_decimal
 from service.errors import Blocked, Conflict, InvalidInput
 from service.rules import LayeredRules, evaluate
 from service.schemas import DrawIn, LossIn, OutputIn, RunIn
 from service.store import inventory, procedures
+from service.store.amounts import assay_masses_ug, element_masses_ug
 from service.store.paging import Page, paginate
 from service.store.models import (
     Mixture,
@@ -27,9 +27,8 @@ from service.store.models import (
     WasteEntry,
     utcnow,
 )
-from service.store.waste import element_masses_ug
 
-__all__ = ["list_runs", "start_run", "add_output", "add_loss", "flows_of", "balance_of", "close_run"]
+__all__ = ["list_runs", "start_run", "add_output", "add_loss", "flows_of", "balance_of", "remaining_ug", "close_run"]
 
 
 def _format(value: Decimal, unit: str) -> str:
@@ -116,12 +115,7 @@ def add_output(session: Session, run: Run, body: OutputIn) -> RunOutput:
                  "outer_diameter_nm": result.outer_diameter_nm,
                  "relative_uncertainty_by_element": dict(result.relative_uncertainty_by_element)}
     elif body.assays:
-        masses = {}
-        for i, assay in enumerate(body.assays):
-            c = to_decimal(parse_quantity(assay.concentration, field=f"assays[{i}].concentration"), "ug/mL")
-            v = to_decimal(parse_quantity(assay.volume, expect="volume", field=f"assays[{i}].volume"), "mL")
-            masses[assay.element] = masses.get(assay.element, 0) + round_ug(c * v)
-        basis = {"assays": [a.model_dump() for a in body.assays]}
+        masses, basis = assay_masses_ug(body.assays), {"assays": [a.model_dump() for a in body.assays]}
     else:
         masses, basis = element_masses_ug(body.elements), {}
     output = RunOutput(label=body.label, method=body.method, description=body.description, element_mass_ug=masses,
@@ -167,6 +161,16 @@ def balance_of(session: Session, run: Run, tolerance_fraction: Decimal, elements
     from service.balance import run_balance
 
     return run_balance(flows_of(session, run, elements), tolerance_fraction=tolerance_fraction)
+
+
+def remaining_ug(session: Session, run: Run, elements: tuple[str, ...]) -> dict[str, int]:
+    """Per followed element, what the run's balance leaves for further waste entries, in µg.
+
+    From :func:`balance_of` (``remaining_ug`` of each element row; the tolerance does not enter
+    it); an element in no flow of the run has 0 left.
+    """
+    balance = balance_of(session, run, Decimal(0), elements)
+    return {symbol: 0 for symbol in elements} | {row.element: row.remaining_ug for row in balance.elements}
 
 
 def close_run(session: Session, run: Run, tolerance_fraction: Decimal, elements: tuple[str, ...]) -> tuple[Run, object]:
