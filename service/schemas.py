@@ -465,6 +465,11 @@ class EntryElementIn(_Body):
     share_percent: Optional[float] = Field(default=None, gt=0, le=100,
                                            description="percent of what the run leaves unaccounted, e.g. 80")
 
+    @model_validator(mode="before")
+    @classmethod
+    def _from_amount_or_assay(cls, value):  # callers in Python may pass the rows run outputs take
+        return value.model_dump() if isinstance(value, (ElementAmountIn, AssayIn)) else value
+
     @model_validator(mode="after")
     def _one_basis(self) -> "EntryElementIn":
         assay = (self.concentration is not None, self.volume is not None)
