@@ -61,6 +61,7 @@ __all__ = [
     "DecisionIn",
     "ElementAmountIn",
     "AssayIn",
+    "EntryElementIn",
     "ContainerIn",
     "ContainerPatch",
     "EntryComponentIn",
@@ -502,6 +503,43 @@ class AssayIn(_Body):
     volume: Volume = Field(description='volume the concentration applies to, e.g. "4.0 mL"')
 
 
+class EntryElementIn(_Body):
+    """One element of a waste entry, given on one basis: a mass; an assay (concentration × volume, as
+    run outputs take them: :class:`AssayIn`); or a share in percent of what the entry's run still
+    leaves unaccounted of the element (needs the entry's run_id)."""
+
+    element: ElementSymbol
+    mass: Optional[Mass] = None
+    concentration: Optional[MassConcentration] = Field(default=None, description='assay: e.g. "12.5 mg/L"')
+    volume: Optional[Volume] = Field(default=None, description='assay: the volume it applies to, e.g. "4.0 mL"')
+    share_percent: Optional[float] = Field(default=None, gt=0, le=100,
+                                           description="percent of what the run leaves unaccounted, e.g. 80")
+
+    @model_validator(mode="before")
+    @classmethod
+    def _from_amount_or_assay(cls, value):  # callers in Python may pass the rows run outputs take
+        return value.model_dump() if isinstance(value, (ElementAmountIn, AssayIn)) else value
+
+    @model_validator(mode="after")
+    def _one_basis(self) -> "EntryElementIn":
+        assay = (self.concentration is not None, self.volume is not None)
+        if any(assay) and not all(assay):
+            raise ValueError("an assay gives both concentration and volume")
+        if (self.mass is not None) + all(assay) + (self.share_percent is not None) != 1:
+            raise ValueError("give exactly one of: mass; concentration and volume; share_percent")
+        return self
+
+    @property
+    def basis(self) -> Literal["mass", "assay", "share"]:
+        if self.mass is not None:
+            return "mass"
+        return "assay" if self.concentration is not None else "share"
+
+    def assay(self) -> AssayIn:
+        """The assay this row gives, as run outputs take it."""
+        return AssayIn(element=self.element, concentration=self.concentration, volume=self.volume)
+
+
 class ContainerIn(_Body):
     label: Label = Field(min_length=1, max_length=80)
     lab_id: Id
@@ -527,8 +565,19 @@ class EntryIn(_Body):
     volume: Optional[Volume] = Field(default=None, description="liquid containers")
     mass: Optional[Mass] = Field(default=None, description="solid containers")
     components: list[EntryComponentIn] = Field(default_factory=list, max_length=50)
-    elements: list[ElementAmountIn] = Field(default_factory=list, max_length=30)
+    elements: list[EntryElementIn] = Field(
+        default_factory=list, max_length=30,
+        description='per element one of: {"element", "mass"}; an assay {"element", "concentration", "volume"}; '
+                    'or {"element", "share_percent"} of what the run leaves unaccounted (needs run_id)')
     filterable_solids_percent: Optional[float] = Field(default=None, ge=0, le=100)
+
+    @field_validator("elements")
+    @classmethod
+    def _share_needs_run(cls, rows: list, info):  # run_id is declared above, so it is validated first
+        shares = [i for i, row in enumerate(rows) if row.basis == "share"]
+        if shares and info.data.get("run_id") is None:
+            raise ValueError(f"elements[{shares[0]}]: a share of what a run leaves unaccounted needs run_id")
+        return rows
 
 
 class ReverseIn(_Body):

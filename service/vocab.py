@@ -77,12 +77,13 @@ ELEMENT_SYMBOLS = (
 )  # fmt: skip
 _KNOWN = frozenset(ELEMENT_SYMBOLS)
 
-# The metals and metalloids a run's mass balance follows by default (DOTLEDGER_BALANCE_ELEMENTS):
-# carbon, hydrogen, sulfur and the like also come from solvents and ligands and are not balanced.
-BALANCE_ELEMENTS = ("Cd", "Se", "Te", "Pb", "Zn", "In", "Cs", "Hg", "As", "Ag", "Cu")
+# The elements a run's mass balance follows by default (DOTLEDGER_BALANCE_ELEMENTS): the metals and
+# metalloids, and the chalcogens S, Se and Te of cores, shells (ZnS, CdS) and their precursors.
+# Carbon, hydrogen, oxygen and nitrogen come mostly from solvents and ligands and are not balanced.
+BALANCE_ELEMENTS = ("Cd", "Se", "Te", "S", "Pb", "Zn", "In", "Cs", "Hg", "As", "Ag", "Cu")
 
-# The elements the inventory pages total and give columns to, in this order: the balance's, with
-# sulfur (ZnS and CdS shells), the group's core chemistry first.
+# The elements the inventory pages total and give columns to, in this order: the balance's, the
+# group's core chemistry first.
 TRACKED_ELEMENTS = ("Cd", "Se", "Te", "Pb", "Zn", "S", "In", "Cs", "Hg", "As", "Ag", "Cu")
 
 

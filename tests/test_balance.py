@@ -112,6 +112,8 @@ def test_by_difference_product_takes_the_remainder_and_says_so():
     assert (cd.product_ug, se.product_ug) == (22_483 - 4_200 - 2_283, 31_588 - 14_000 - 5_000)
     assert (cd.unaccounted_ug, cd.by_difference, cd.closes) == (0, True, True)
     assert any("closes by construction" in note for note in cd.notes)
+    # what a further waste entry may still take: the remainder the by-difference product holds
+    assert (cd.remaining_ug, se.remaining_ug) == (22_483 - 4_200 - 2_283, 31_588 - 14_000 - 5_000)
 
 
 def test_by_difference_cannot_go_negative():
@@ -122,6 +124,7 @@ def test_by_difference_cannot_go_negative():
     ]
     row = run_balance(flows, tolerance_fraction=FIVE_PERCENT).element("Cd")
     assert (row.product_ug, row.unaccounted_ug, row.closes) == (0, -200, False)
+    assert row.remaining_ug == -200  # nothing left for another entry
     assert any("set to 0" in note for note in row.notes)
 
 

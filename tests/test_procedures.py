@@ -7,6 +7,8 @@ Physical values behind the findings come from rules/substances.yaml (sources nam
 
 from __future__ import annotations
 
+from decimal import ROUND_HALF_EVEN, Decimal
+
 import pytest
 
 from service.store import audit
@@ -157,6 +159,25 @@ def test_scale_up_preview_lists_thresholds_crossed(lab, app):
     assert crossed_at_1 < crossed_at_1000 <= {r.id for r in cd_rules}
     lab["researcher"].call("GET", f"/procedures/{proc['id']}/preview?scales=0", expect=422)
     lab["researcher"].call("GET", f"/procedures/{proc['id']}/preview?scales=abc", expect=422)
+
+
+def test_scale_up_preview_rounds_the_scaled_mass_once(lab):
+    # 22.2 mg SeO2 at scale 1 holds 15 798.6 µg Se; rounding that first and multiplying by 5 would give
+    # 78 995 µg. The exact value, from CIAAW 2021 standard atomic weights (Se 78.971, O 15.999;
+    # Prohaska et al., Pure Appl. Chem. 94, 2022): 111 000 µg × 78.971 / 110.969 = 78 993.06 → 78 993 µg.
+    admin = lab["admin"]
+    place = admin.call("GET", f"/locations?lab_id={lab['id']}")["items"][0]["id"]
+    seo2 = admin.call("POST", "/stocks", {"label": "SeO2", "substance_id": admin.substance_id("selenium dioxide"),
+                                          "lab_id": lab["id"], "location_id": place, "amount": "5 g"}, 201)["id"]
+    body = cdse_core(lab)
+    body["draws"] = [{"stock_id": seo2, "amount": "22.2 mg"}]
+    proc = lab["researcher"].call("POST", "/procedures", body, 201)
+    preview = lab["researcher"].call("GET", f"/procedures/{proc['id']}/preview?scales=1,5")
+    se = {row["scale"]: next(e["mass_ug"] for e in row["element_masses_per_batch"] if e["element"] == "Se")
+          for row in preview["scales"]}
+    exact = Decimal("22200") * 5 * Decimal("78.971") / (Decimal("78.971") + 2 * Decimal("15.999"))
+    assert se[5.0] == int(exact.quantize(Decimal(1), rounding=ROUND_HALF_EVEN)) == 78_993
+    assert se[1.0] == 15_799  # 15 798.61 µg, rounded once
 
 
 def test_review_queue_is_oldest_first(lab):

@@ -98,7 +98,8 @@ def _seed(app) -> dict[str, int]:
             waste.add_entry(s, containers[0].id, EntryIn(
                 description=f"supernatant {n}", volume="10 mL", run_id=runs_made[n].id,
                 components=[EntryComponentIn(substance_id=acetone if n % 2 else ode, volume="5 mL")],
-                elements=[ElementAmountIn(element="Cd", mass="1 mg"), ElementAmountIn(element="Se", mass="1 mg")]),
+                # each run draws 1 mg CdO (0.875 mg Cd, no Se): an entry takes at most what its run has left
+                elements=[ElementAmountIn(element="Cd", mass="0.5 mg"), ElementAmountIn(element="O", mass="0.1 mg")]),
                 researcher.id)
         for n in range(ROWS):  # ROWS shipments out of one stock
             movements.ship(s, stocks[1].id, ShipIn(destination=f"collaborator {n}", amount="1 mg"), researcher.id)

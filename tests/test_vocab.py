@@ -83,6 +83,8 @@ def test_tracked_elements_hold_the_balance_elements():
     assert set(vocab.BALANCE_ELEMENTS) <= set(vocab.TRACKED_ELEMENTS)
     # cadmium, selenium and lead: the core of a CdSe / PbSe group (RCRA D006, D010, D008)
     assert {"Cd", "Se", "Pb"} <= set(vocab.BALANCE_ELEMENTS)
+    # and the chalcogens of cores, shells (ZnS, CdS) and their precursors: sulfur, selenium, tellurium
+    assert {"S", "Se", "Te"} <= set(vocab.BALANCE_ELEMENTS)
 
 
 def test_vocab_is_pure():

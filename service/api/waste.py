@@ -13,6 +13,7 @@ from service.api.inventory import json_body, page_answer
 from service.api.responses import WasteContainer as ContainerAnswer, WasteEntry as EntryAnswer
 from service.auth import check_lab, current_user, lab_scope
 from service.operations import operation
+from service.present.runs import balance_elements
 from service.present.waste import dump_container, dump_entry
 from service.store import inventory, waste
 from service.store.db import get_session
@@ -69,10 +70,12 @@ def list_entries(ident: int):
 @bp.post("/waste_containers/<int:ident>/entries", endpoint="add_waste_entry")
 @operation(body=schemas.EntryIn, response=EntryAnswer, status=201, errors=(403, 409))
 def add_entry(ident: int):
-    """Add an entry to a container (refused when it would overfill it)."""
+    """Add an entry to a container (refused when it would overfill it, or when an element of its run
+    goes beyond what the run's balance leaves unaccounted). An element is given as a mass, an assay
+    (concentration × volume) or a share in percent of what the run leaves unaccounted."""
     body = json_body(schemas.EntryIn)
     _visible(ident)
-    entry = waste.add_entry(get_session(), ident, body, current_user().id)
+    entry = waste.add_entry(get_session(), ident, body, current_user().id, balance_elements=balance_elements())
     return jsonify(dump_entry(entry)), 201
 
 

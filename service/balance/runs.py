@@ -40,7 +40,9 @@ class ElementBalance:
 
     ``closure_percent`` is 100 × (input − |unaccounted|) / input, to 0.01 %; None without
     input, and below 0 when |unaccounted| exceeds the input. ``tolerance_ug`` is
-    tolerance × input, exact.
+    tolerance × input, exact. ``remaining_ug`` is input − the recorded products (a by-difference
+    one left out), waste and losses: what a further waste entry may still take (equal to
+    ``unaccounted_ug`` unless a product takes the remainder by difference).
     """
 
     element: str
@@ -57,6 +59,7 @@ class ElementBalance:
     within_uncertainty: bool
     hints: tuple[str, ...]
     notes: tuple[str, ...]
+    remaining_ug: int
 
     @property
     def waste_ug(self) -> int:
@@ -94,6 +97,7 @@ class RunBalance:
                 "waste": [{"label": share.label, "ug": share.ug} for share in row.waste],
                 "losses_ug": row.losses_ug,
                 "unaccounted_ug": row.unaccounted_ug,
+                "remaining_ug": row.remaining_ug,
                 "closure_percent": None if row.closure_percent is None else float(row.closure_percent),
                 "tolerance_ug": float(row.tolerance_ug),
                 "closes": row.closes,
@@ -167,6 +171,7 @@ def _element(flows: list[Flow], element: str, tolerance: Decimal) -> ElementBala
         within_uncertainty=within,
         hints=hints,
         notes=notes_for(by_difference=by_difference, clamped=clamped, within_uncertainty=within, band_ug=band_ug),
+        remaining_ug=remainder,
     )
 
 

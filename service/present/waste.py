@@ -26,11 +26,12 @@ from service.rules.container_measures import (
 from service.rules.registry import dec, plain
 from service.rules.subjects import ContainerSubject
 from service.store import waste
+from service.store.amounts import mg_text
 from service.store.db import get_session
 from service.store.findings import evaluate_once
 from service.store.models import Substance, WasteContainer, WasteEntry
 
-__all__ = ["CAUTION", "dump_container", "dump_entry", "amounts", "concentrations"]
+__all__ = ["CAUTION", "dump_container", "dump_entry", "basis_note", "amounts", "concentrations"]
 
 CAUTION = ("Waste codes and transport descriptions are suggestions for review. The waste determination "
            "rests with the site safety officer and local regulations; shipping papers with the licensed shipper.")
@@ -93,5 +94,29 @@ def dump_entry(entry: WasteEntry) -> dict:
         "reverses_entry_id": entry.reverses_entry_id,
         "components": [{"substance_id": c.substance_id, "substance": session.get(Substance, c.substance_id).name,
                         "volume_ml": c.volume_ul / 1000} for c in entry.components],
-        "elements": element_rows_from({e.element: e.mass_ug for e in sorted(entry.elements, key=lambda e: e.element)}),
+        "elements": [{**row, "basis": e.basis, "basis_note": basis_note(e.basis)}
+                     for e in sorted(entry.elements, key=lambda e: e.element)
+                     for row in element_rows_from({e.element: e.mass_ug})],
     }
+
+
+def basis_note(basis) -> str:
+    """How an entry's element mass was given, in a few words (empty when it was not recorded).
+
+    >>> basis_note({"kind": "share", "percent": 80.0, "of_ug": 17500, "remaining_ug": 3500})
+    '80 % of the 17.5 mg the run left unaccounted (3.5 mg left)'
+    >>> basis_note({"kind": "assay", "concentration": "12.5 mg/L", "volume": "4.0 mL"})
+    '12.5 mg/L × 4.0 mL'
+    """
+    kind = (basis or {}).get("kind")
+    if kind == "share":
+        percent = f"{Decimal(repr(float(basis['percent']))).normalize():f}"
+        return (f"{percent} % of the {mg_text(basis['of_ug'])} the run left unaccounted "
+                f"({mg_text(basis['remaining_ug'])} left)")
+    if kind == "assay":
+        return f"{basis['concentration']} × {basis['volume']}"
+    if kind == "mass":
+        return f"given as {basis['mass']}"
+    if kind == "reversal":
+        return f"reverses entry {basis['entry_id']}"
+    return ""

@@ -477,6 +477,10 @@ class WasteEntryElement(Base):
     entry_id: Mapped[int] = mapped_column(ForeignKey("waste_entries.id"), primary_key=True)
     element: Mapped[str] = mapped_column(String(3), primary_key=True, index=True)
     mass_ug: Mapped[int] = mapped_column(BigInteger)  # signed
+    # how the mass was given: {"kind": "mass", "mass"}, {"kind": "assay", "concentration", "volume"},
+    # {"kind": "share", "percent", "of_ug", "remaining_ug"} or {"kind": "reversal", "entry_id"};
+    # None for entries made before it was recorded
+    basis: Mapped[Optional[dict[str, Any]]] = mapped_column(default=None)
 
 
 class WasteContainerTotals(Base):

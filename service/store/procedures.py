@@ -13,8 +13,7 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from service import vocab
-from service.chem.content import round_ug
-from service.chem.units import QuantityError
+from service.chem.units import QuantityError, parse_quantity
 from service.errors import Blocked, Conflict, Forbidden, InvalidInput
 from service.rules import LayeredRules, evaluate, highest_level
 from service.rules.subjects import ProcedureSubject, ReagentFacts, StepFacts
@@ -42,6 +41,7 @@ __all__ = [
     "update_procedure",
     "subject_of",
     "source_element_masses",
+    "scaled_amount",
     "element_totals_ug",
     "findings_of",
     "last_approved_scale",
@@ -175,9 +175,17 @@ def _new_revision(session: Session, old: Procedure) -> Procedure:
 # --- what the rules see -------------------------------------------------------
 
 
-def _scaled(masses: dict[str, int], scale: float) -> dict[str, int]:
-    factor = Decimal(repr(float(scale)))
-    return {s: round_ug(Decimal(ug) * factor) for s, ug in masses.items()}
+def scaled_amount(amount_text: str, scale: float) -> str:
+    """The amount text × ``scale``, exact (Decimal), in the amount's own unit.
+
+    Element masses are computed from the scaled amount, so they are rounded to µg once: a
+    preview at a scale shows what a run at that scale draws.
+
+    >>> scaled_amount("15.8 mg", 5)
+    '79.00 mg'
+    """
+    quantity = parse_quantity(amount_text)
+    return f"{Decimal(repr(float(quantity.magnitude))) * Decimal(repr(float(scale)))} {quantity.units:~}"
 
 
 def source_element_masses(stock: Optional[Stock], mixture: Optional[Mixture], amount_text: str,
@@ -187,7 +195,8 @@ def source_element_masses(stock: Optional[Stock], mixture: Optional[Mixture], am
 
 
 def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFacts:
-    masses = source_element_masses(draw.stock, draw.mixture, draw.amount_text, f"{field}.amount")
+    amount = draw.amount_text if scale == 1 else scaled_amount(draw.amount_text, scale)
+    masses = source_element_masses(draw.stock, draw.mixture, amount, f"{field}.amount")
     if draw.stock is not None:
         stock, substance = draw.stock, draw.stock.substance
         classes = (substance.hazard or {}).get("classes", [])
@@ -197,7 +206,7 @@ def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFa
             state = "solution" if stock.quantity_kind == "volume" else state
         return ReagentFacts(
             name=name, amount_text=draw.amount_text, state=state,
-            element_mass_ug=_scaled(masses, scale), flags=frozenset(substance.flags or ()),
+            element_mass_ug=masses, flags=frozenset(substance.flags or ()),
             carcinogen_category=next((c.split(" ", 1)[1] for c in classes if c.startswith("Carc. ")), None),
             flash_point_c=substance.flash_point_c,
             flammable="flammable" in (substance.flags or ()) and substance.state == "liquid",
@@ -209,7 +218,7 @@ def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFa
     categories = sorted(c.split(" ", 1)[1] for p in parts for c in (p.hazard or {}).get("classes", [])
                         if c.startswith("Carc. "))
     return ReagentFacts(
-        name=mixture.name, amount_text=draw.amount_text, state="solution", element_mass_ug=_scaled(masses, scale),
+        name=mixture.name, amount_text=draw.amount_text, state="solution", element_mass_ug=masses,
         flags=frozenset(f for p in parts for f in (p.flags or ())),
         carcinogen_category=categories[0] if categories else None,
         flash_point_c=min(flash) if flash else None,

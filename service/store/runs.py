@@ -9,12 +9,11 @@ from typing import Optional
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
-from service.chem.content import round_ug
-from service.chem.units import parse_quantity, to_decimal
 from service.errors import Blocked, Conflict, InvalidInput, NotFound
 from service.rules import LayeredRules, evaluate
 from service.schemas import DrawIn, LossIn, OutputIn, ProductStockIn, RunIn
 from service.store import inventory, procedures
+from service.store.amounts import assay_masses_ug, element_masses_ug
 from service.store.paging import Page, paginate
 from service.store.models import (
     Mixture,
@@ -29,10 +28,9 @@ from service.store.models import (
     WasteEntry,
     utcnow,
 )
-from service.store.waste import element_masses_ug
 
 __all__ = ["Taken", "BeyondHeld", "take", "list_runs", "start_run", "add_output", "add_loss", "flows_of", "balance_of",
-           "close_run", "output_element_masses", "stock_output"]
+           "remaining_ug", "close_run", "output_element_masses", "stock_output"]
 
 
 def _format(value: Decimal, unit: str) -> str:
@@ -90,12 +88,8 @@ def _take(session: Session, body: DrawIn, lab_id: int, field: str) -> RunDraw:
 
 
 def _planned(proc: Procedure, scale: float) -> list[DrawIn]:
-    out = []
-    for draw in proc.draws:
-        quantity = parse_quantity(draw.amount_text)
-        amount = f"{Decimal(repr(float(quantity.magnitude))) * Decimal(repr(scale))} {quantity.units:~}"
-        out.append(DrawIn(stock_id=draw.stock_id, mixture_id=draw.mixture_id, amount=amount))
-    return out
+    return [DrawIn(stock_id=draw.stock_id, mixture_id=draw.mixture_id,
+                   amount=procedures.scaled_amount(draw.amount_text, scale)) for draw in proc.draws]
 
 
 def start_run(session: Session, body: RunIn, actor: User, rules: LayeredRules) -> Run:
@@ -138,12 +132,7 @@ def add_output(session: Session, run: Run, body: OutputIn) -> RunOutput:
                  "outer_diameter_nm": result.outer_diameter_nm,
                  "relative_uncertainty_by_element": dict(result.relative_uncertainty_by_element)}
     elif body.assays:
-        masses = {}
-        for i, assay in enumerate(body.assays):
-            c = to_decimal(parse_quantity(assay.concentration, field=f"assays[{i}].concentration"), "ug/mL")
-            v = to_decimal(parse_quantity(assay.volume, expect="volume", field=f"assays[{i}].volume"), "mL")
-            masses[assay.element] = masses.get(assay.element, 0) + round_ug(c * v)
-        basis = {"assays": [a.model_dump() for a in body.assays]}
+        masses, basis = assay_masses_ug(body.assays), {"assays": [a.model_dump() for a in body.assays]}
     else:
         masses, basis = element_masses_ug(body.elements), {}
     output = RunOutput(label=body.label, method=body.method, description=body.description, element_mass_ug=masses,
@@ -195,6 +184,16 @@ def balance_of(session: Session, run: Run, tolerance_fraction: Decimal, elements
     from service.balance import run_balance
 
     return run_balance(flows_of(session, run, elements), tolerance_fraction=tolerance_fraction)
+
+
+def remaining_ug(session: Session, run: Run, elements: tuple[str, ...]) -> dict[str, int]:
+    """Per followed element, what the run's balance leaves for further waste entries, in µg.
+
+    From :func:`balance_of` (``remaining_ug`` of each element row; the tolerance does not enter
+    it); an element in no flow of the run has 0 left.
+    """
+    balance = balance_of(session, run, Decimal(0), elements)
+    return {symbol: 0 for symbol in elements} | {row.element: row.remaining_ug for row in balance.elements}
 
 
 def close_run(session: Session, run: Run, tolerance_fraction: Decimal, elements: tuple[str, ...]) -> tuple[Run, object]:

@@ -15,14 +15,17 @@ from decimal import ROUND_HALF_EVEN, Decimal
 from typing import Optional
 
 from sqlalchemy import func, select
-from sqlalchemy.orm import Session, selectinload
+from sqlalchemy.orm import Session
 
 from service import vocab
 from service.chem.formula import parse_formula
 from service.chem.units import QuantityError, parse_quantity, to_decimal
 from service.errors import Conflict, InvalidInput
 from service.rules.subjects import ContainerComponent, ContainerSubject
-from service.schemas import ContainerIn, ElementAmountIn, EntryIn
+from service.chem.content import round_ug
+from service.schemas import ContainerIn, EntryIn
+from service.store import runs
+from service.store.amounts import assay_ug, element_masses_ug, mass_ug, mg_text
 from service.store.inventory import get, reference
 from service.store.paging import Page, paginate
 from service.store.models import (
@@ -52,15 +55,41 @@ MOVES = {
 }
 
 
-def element_masses_ug(rows: list[ElementAmountIn], field: str = "elements") -> dict[str, int]:
-    """Element amounts as {symbol: µg}; a repeated element is an error, not a silent sum."""
-    out: dict[str, int] = {}
-    for i, row in enumerate(rows):  # symbols are checked by the schema (ElementSymbol)
-        if row.element in out:
-            raise InvalidInput(f"{field}[{i}].element", f"{row.element} is given twice")
-        quantity = parse_quantity(row.mass, expect="mass", field=f"{field}[{i}].mass")
-        out[row.element] = int(to_decimal(quantity, "ug").to_integral_value())
-    return out
+def _entry_elements(session: Session, body: EntryIn, run: Optional[Run],
+                    balance_elements: tuple[str, ...]) -> list[WasteEntryElement]:
+    """The entry's element rows in exact µg, each with the basis it was given on.
+
+    With a run, an element the run balance follows may take at most what that balance (the one
+    the run page shows, :func:`service.store.runs.remaining_ug`) still leaves: more is refused
+    naming ``elements[i]``. A share is that remainder × percent, rounded to µg once.
+    """
+    left = runs.remaining_ug(session, run, balance_elements) if run is not None else {}
+    rows: list[WasteEntryElement] = []
+    for i, row in enumerate(body.elements):
+        field = f"elements[{i}]"
+        if any(r.element == row.element for r in rows):
+            raise InvalidInput(f"{field}.element", f"{row.element} is given twice")
+        if row.basis == "share":
+            if row.element not in left:
+                raise InvalidInput(f"{field}.element", f"the run balance does not follow {row.element} "
+                                   f"(it follows {', '.join(balance_elements)}); give a mass or an assay")
+            of = left[row.element]
+            if of <= 0:
+                raise InvalidInput(field, f"the run has no {row.element} left unaccounted ({mg_text(of)}); "
+                                   "nothing to take a share of")
+            ug = round_ug(Decimal(repr(row.share_percent)) * of / 100)
+            basis = {"kind": "share", "percent": row.share_percent, "of_ug": of, "remaining_ug": of - ug}
+        elif row.basis == "assay":
+            ug = assay_ug(row.assay(), field)
+            basis = {"kind": "assay", "concentration": row.concentration, "volume": row.volume}
+        else:
+            ug = mass_ug(row, field)
+            basis = {"kind": "mass", "mass": row.mass}
+        if row.element in left and ug > left[row.element]:
+            raise InvalidInput(field, f"the run has {mg_text(max(left[row.element], 0))} {row.element} left "
+                               f"unaccounted; this entry gives {mg_text(ug)}")
+        rows.append(WasteEntryElement(element=row.element, mass_ug=ug, basis=basis))
+    return rows
 
 
 def create_container(session: Session, body: ContainerIn) -> WasteContainer:
@@ -150,8 +179,15 @@ def _lock(session: Session, container_id: int) -> WasteContainer:
     return container
 
 
-def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Optional[int]) -> WasteEntry:
-    """Append an entry, refusing one that would overfill the container or does not fit its form."""
+def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Optional[int], *,
+              balance_elements: tuple[str, ...] = vocab.BALANCE_ELEMENTS) -> WasteEntry:
+    """Append an entry, refusing one that would overfill the container, does not fit its form, or
+    puts more of a followed element into waste than its run leaves unaccounted.
+
+    ``balance_elements`` are the elements the run balance follows (the site's setting).
+    The container's row and then the run's are locked, so concurrent entries of one run
+    are judged one after the other against the same balance.
+    """
     container = _lock(session, container_id)
     if container.state != "open":
         raise Conflict(f"container {container.label} is {container.state.replace('_', ' ')}; entries go to open containers")
@@ -160,8 +196,9 @@ def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Opti
         raise InvalidInput("volume", f"{container.label} holds liquids: give the entry's volume (and no mass)")
     if not liquid and (body.mass is None or body.volume is not None or body.components):
         raise InvalidInput("mass", f"{container.label} holds solids: give the entry's mass (and no volume)")
+    run = None
     if body.run_id is not None:
-        run = reference(session, Run, body.run_id, "run_id", lab_id=container.lab_id)
+        run = reference(session, Run, body.run_id, "run_id", lab_id=container.lab_id, lock=True)
         if run.state != "open":
             raise Conflict(f"run {run.id} is closed; record a clean-up entry without run_id instead", "run_id")
     amount = parse_quantity(body.volume if liquid else body.mass, expect="volume" if liquid else "mass",
@@ -184,7 +221,7 @@ def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Opti
         raise Conflict(f"would overfill {container.label}: it holds {already / scale:g} {unit} of "
                        f"{container.capacity_micro / scale:g} {unit}; this entry adds {micro / scale:g} {unit}",
                        "volume" if liquid else "mass", body.volume or body.mass)
-    elements = [WasteEntryElement(element=s, mass_ug=ug) for s, ug in element_masses_ug(body.elements).items()]
+    elements = _entry_elements(session, body, run, balance_elements)
     entry = WasteEntry(container_id=container.id, run_id=body.run_id, actor_id=actor_id, description=body.description,
                        volume_ul=micro if liquid else 0, mass_ug=0 if liquid else micro,
                        filterable_solids_percent=body.filterable_solids_percent, components=components,
@@ -217,7 +254,9 @@ def reverse_entry(session: Session, container_id: int, entry_id: int, reason: st
                        reverses_entry_id=entry_id, at=utcnow(),
                        components=[WasteEntryComponent(substance_id=c.substance_id, volume_ul=-c.volume_ul)
                                    for c in original.components],
-                       elements=[WasteEntryElement(element=e.element, mass_ug=-e.mass_ug) for e in original.elements])
+                       elements=[WasteEntryElement(element=e.element, mass_ug=-e.mass_ug,
+                                                   basis={"kind": "reversal", "entry_id": entry_id})
+                                 for e in original.elements])
     session.add(entry)
     _count(container, entry)
     session.flush()

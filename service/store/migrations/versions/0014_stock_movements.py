@@ -10,7 +10,7 @@ import sqlalchemy as sa
 
 
 revision = '0014_stock_movements'
-down_revision = '0012_product_stocks'
+down_revision = '0013_entry_basis'
 branch_labels = None
 depends_on = None
 
