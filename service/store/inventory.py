@@ -13,7 +13,13 @@ from pydantic import BaseModel
 from sqlalchemy import and_, exists, func, select
 from sqlalchemy.orm import Session
 
-from service.chem.content import Component, mixture_element_masses_ug, substance_element_masses_ug
+from service.chem.content import (
+    Component,
+    mixture_element_masses_ug,
+    round_ug,
+    substance_element_masses_ug,
+    total_ug,
+)
 from service.chem.formula import parse_formula
 from service.chem.substances import SubstanceCatalogue
 from service.chem.units import kind_of, parse_quantity, to_decimal
@@ -44,8 +50,11 @@ __all__ = [
     "retire",
     "list_records",
     "locations_by_id",
+    "source_labels",
     "create_stock",
     "update_stock",
+    "source_element_masses",
+    "draw_from",
     "create_mixture",
     "update_mixture",
     "sync_catalogue",
@@ -203,6 +212,18 @@ def list_records(
     return paginate(session, query.order_by(model.id), limit, offset)
 
 
+def source_labels(session: Session, mixtures) -> dict[str, str]:
+    """Labels of the stocks and mixtures the components of ``mixtures`` drew from, keyed ``stock:<id>`` /
+    ``mixture:<id>`` (retired ones too), in at most two queries."""
+    out: dict[str, str] = {}
+    for model, column, kind in ((Stock, "source_stock_id", "stock"), (Mixture, "source_mixture_id", "mixture")):
+        wanted = sorted({getattr(c, column) for m in mixtures for c in m.components} - {None})
+        if wanted:
+            rows = session.execute(select(model.id, model.label).where(model.id.in_(wanted)))
+            out.update({f"{kind}:{ident}": label for ident, label in rows})
+    return out
+
+
 def locations_by_id(session: Session, ids) -> dict[int, Location]:
     """The locations with these ids (retired ones too), in one query."""
     wanted = sorted({i for i in ids if i is not None})
@@ -249,15 +270,94 @@ def update_stock(session: Session, stock: Stock, patch: StockPatch) -> Stock:
     values = patch.model_dump(exclude_unset=True)
     _check_unique(session, Stock, values, stock.id)
     _check_refs(session, values, stock.lab_id)
+    # Only a corrected amount, purity or density recomputes the content; a draw left it exact to the µg.
+    recompute = bool(values.keys() & {"amount", "purity_percent", "density_g_per_ml"})
     if "amount" in values:
         amount = values.pop("amount")
         stock.quantity_kind, stock.quantity_micro = _quantity_micro(amount or "")
         stock.amount_text = amount
     for key, value in values.items():
         setattr(stock, key, value)
-    stock.elements = stock_elements(stock)
+    if recompute:
+        stock.elements = stock_elements(stock)
     session.flush()
     return stock
+
+
+# --- draws --------------------------------------------------------------------
+
+
+def _format(value: Decimal, unit: str) -> str:
+    return f"{value.normalize():f} {unit}"
+
+
+def source_element_masses(stock: Optional[Stock], mixture: Optional[Mixture], amount_text: str,
+                          field: str = "amount") -> dict[str, int]:
+    """Element masses (µg) in ``amount_text`` of a stock (mass or volume) or a mixture (volume).
+
+    What a planned draw would carry; :func:`draw_from` takes it out of the source.
+    """
+    if stock is not None:
+        substance = stock.substance
+        return substance_element_masses_ug(
+            amount_text, substance.formula, purity=Decimal(repr(stock.purity_percent)) / 100,
+            density_g_per_ml=stock.density_g_per_ml or substance.density_g_per_ml, substance=substance.name,
+        )
+    volume_ul = to_decimal(parse_quantity(amount_text, expect="volume", field=field), "uL")
+    if not mixture.volume_ul:
+        return {e.element: 0 for e in mixture.elements}
+    share = volume_ul / Decimal(mixture.volume_ul)
+    return {e.element: round_ug(Decimal(e.mass_ug) * share) for e in mixture.elements}
+
+
+def _micro_wanted(stock: Stock, amount: str, field: str) -> int:
+    """The draw in the stock's own measure (µg or µL), converting by density when the kinds differ."""
+    quantity = parse_quantity(amount, expect=("mass", "volume"), field=field)
+    held_kind = stock.quantity_kind
+    if kind_of(quantity) == held_kind:
+        wanted = to_decimal(quantity, "ug" if held_kind == "mass" else "uL")
+    else:
+        density = stock.density_g_per_ml or stock.substance.density_g_per_ml
+        if density is None:
+            raise InvalidInput(field, f"{stock.label} is kept by {held_kind}; give the draw as a {held_kind}")
+        grams = to_decimal(quantity, "g") if kind_of(quantity) == "mass" else to_decimal(quantity, "mL") * Decimal(repr(density))
+        wanted = grams * 1_000_000 if held_kind == "mass" else grams / Decimal(repr(density)) * 1000
+    return int(wanted.to_integral_value())
+
+
+def draw_from(source: Stock | Mixture, amount: str, field: str) -> dict[str, int]:
+    """Take ``amount`` out of a stock or mixture (loaded with its row lock); the element masses (µg) taken.
+
+    The one way anything leaves a stock or mixture for a run or a prepared mixture. The amount is
+    refused (Conflict naming ``field``) beyond what the source holds. The source's amount drops by
+    the amount and its element content by exactly the masses returned, so the element sum over
+    source and destination does not change: what :func:`source_element_masses` computes, never
+    more than is held, and everything that is held when the draw empties the source.
+    """
+    if isinstance(source, Stock):
+        wanted, held = _micro_wanted(source, amount, field), source.quantity_micro
+        unit = "mg" if source.quantity_kind == "mass" else "mL"
+    else:
+        wanted = int(to_decimal(parse_quantity(amount, expect="volume", field=field), "uL").to_integral_value())
+        held, unit = source.volume_ul, "mL"
+    if wanted > held:
+        raise Conflict(f"{field}: {source.label} holds {held / 1000:g} {unit}; the draw asks for {wanted / 1000:g} {unit}",
+                       field, amount)
+    computed = (source_element_masses(source, None, amount, field) if isinstance(source, Stock)
+                else source_element_masses(None, source, amount, field))
+    remaining = held - wanted
+    if isinstance(source, Stock):
+        source.quantity_micro = remaining
+        source.amount_text = _format(Decimal(remaining) / 1000, unit)
+    else:
+        source.volume_ul = remaining
+        source.volume_text = _format(Decimal(remaining) / 1000, unit)
+    taken: dict[str, int] = {}
+    for row in source.elements:
+        ug = row.mass_ug if remaining == 0 else max(0, min(computed.get(row.element, 0), row.mass_ug))
+        row.mass_ug -= ug
+        taken[row.element] = ug
+    return taken
 
 
 # --- mixtures -----------------------------------------------------------------
@@ -286,14 +386,53 @@ def _volume_ul(volume: str) -> int:
     return int(to_decimal(quantity, "uL").to_integral_value())
 
 
+def _drawn_component(session: Session, comp, field: str, lab_id: int, substance: Substance) -> tuple[dict, dict[str, int]]:
+    """Take a prepared mixture's component out of its source; (the component's provenance columns, µg taken).
+
+    The source is a stock or mixture of the mixture's own lab (another lab's answers as a missing id)
+    and must hold the component's substance.
+    """
+    if comp.source_stock_id is not None:
+        source = reference(session, Stock, comp.source_stock_id, f"{field}.source_stock_id", lab_id=lab_id, lock=True)
+        if source.substance_id != substance.id:
+            raise InvalidInput(f"{field}.substance_id", f"stock {source.label} holds {source.substance.name}, "
+                               f"not {substance.name}", substance.id)
+    else:
+        source = reference(session, Mixture, comp.source_mixture_id, f"{field}.source_mixture_id", lab_id=lab_id,
+                           lock=True)
+        if substance.id not in {c.substance_id for c in source.components}:
+            raise InvalidInput(f"{field}.substance_id", f"mixture {source.label} has no component {substance.name}",
+                               substance.id)
+    taken = draw_from(source, comp.amount, f"{field}.amount")
+    return {"source_stock_id": comp.source_stock_id, "source_mixture_id": comp.source_mixture_id,
+            "amount_text": comp.amount, "element_mass_ug": taken}, taken
+
+
 def create_mixture(session: Session, body: MixtureIn) -> Mixture:
+    """Record a mixture. A prepared one draws each component from its source in this transaction and holds
+    exactly the element masses drawn; one received as a solution draws nothing and holds what its stated
+    concentrations give."""
     values = body.model_dump(exclude={"components"})
     _check_unique(session, Mixture, values)
     _check_refs(session, values)
     volume = values.pop("volume")
     mixture = Mixture(**values, volume_text=volume, volume_ul=_volume_ul(volume))
+    drawn: list[dict[str, int]] = []
     for position, comp in enumerate(body.components):
-        substance = reference(session, Substance, comp.substance_id, f"components[{position}].substance_id")
+        field = f"components[{position}]"
+        substance = reference(session, Substance, comp.substance_id, f"{field}.substance_id")
+        named = "source_stock_id" if comp.source_stock_id is not None else "source_mixture_id"
+        has_source = comp.amount is not None
+        if body.received_as_solution and has_source:
+            raise InvalidInput(f"{field}.{named}", "a mixture received as a solution draws from no stock or mixture")
+        if not body.received_as_solution and not has_source:
+            raise InvalidInput(f"{field}.source_stock_id", "name the stock (source_stock_id) or mixture "
+                               "(source_mixture_id) this component is drawn from and the amount drawn; "
+                               "a mixture received ready-made is marked received_as_solution")
+        provenance = {}
+        if has_source:
+            provenance, taken = _drawn_component(session, comp, field, body.lab_id, substance)
+            drawn.append(taken)
         mixture.components.append(
             MixtureComponent(
                 position=position,
@@ -302,24 +441,32 @@ def create_mixture(session: Session, body: MixtureIn) -> Mixture:
                 molarity_text=comp.molarity,
                 mass_fraction=None if comp.mass_fraction is None else str(comp.mass_fraction),
                 volume_fraction=None if comp.volume_fraction is None else str(comp.volume_fraction),
+                **provenance,
             )
         )
-    mixture.elements = mixture_elements(mixture)
+    if body.received_as_solution:
+        mixture.elements = mixture_elements(mixture)
+    else:
+        mixture.elements = [MixtureElement(element=s, mass_ug=ug) for s, ug in sorted(total_ug(drawn).items())]
     session.add(mixture)
     session.flush()
     return mixture
 
 
 def update_mixture(session: Session, mixture: Mixture, patch: MixturePatch) -> Mixture:
+    """Apply a patch. A received solution's content follows a corrected volume or density; a prepared
+    mixture's content is what it drew (less what was drawn from it), whatever its volume reads."""
     values = patch.model_dump(exclude_unset=True)
     _check_refs(session, values, mixture.lab_id)
+    recompute = mixture.received_as_solution and bool(values.keys() & {"volume", "density_g_per_ml"})
     if "volume" in values:
         volume = values.pop("volume") or ""
         mixture.volume_ul = _volume_ul(volume)
         mixture.volume_text = volume
     for key, value in values.items():
         setattr(mixture, key, value)
-    mixture.elements = mixture_elements(mixture)
+    if recompute:
+        mixture.elements = mixture_elements(mixture)
     session.flush()
     return mixture
 

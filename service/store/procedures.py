@@ -13,8 +13,8 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from service import vocab
-from service.chem.content import round_ug, substance_element_masses_ug
-from service.chem.units import QuantityError, parse_quantity, to_decimal
+from service.chem.content import round_ug
+from service.chem.units import QuantityError
 from service.errors import Blocked, Conflict, Forbidden, InvalidInput
 from service.rules import LayeredRules, evaluate, highest_level
 from service.rules.subjects import ProcedureSubject, ReagentFacts, StepFacts
@@ -41,7 +41,6 @@ __all__ = [
     "unsaved_procedure",
     "update_procedure",
     "subject_of",
-    "source_element_masses",
     "element_totals_ug",
     "findings_of",
     "last_approved_scale",
@@ -180,22 +179,8 @@ def _scaled(masses: dict[str, int], scale: float) -> dict[str, int]:
     return {s: round_ug(Decimal(ug) * factor) for s, ug in masses.items()}
 
 
-def source_element_masses(stock: Optional[Stock], mixture: Optional[Mixture], amount_text: str,
-                          field: str = "amount") -> dict[str, int]:
-    """Element masses (µg) in ``amount_text`` drawn from a stock (mass or volume) or a mixture (volume)."""
-    if stock is not None:
-        substance = stock.substance
-        return substance_element_masses_ug(
-            amount_text, substance.formula, purity=Decimal(repr(stock.purity_percent)) / 100,
-            density_g_per_ml=stock.density_g_per_ml or substance.density_g_per_ml, substance=substance.name,
-        )
-    volume_ul = to_decimal(parse_quantity(amount_text, expect="volume", field=field), "uL")
-    share = volume_ul / Decimal(mixture.volume_ul)
-    return {e.element: round_ug(Decimal(e.mass_ug) * share) for e in mixture.elements}
-
-
 def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFacts:
-    masses = source_element_masses(draw.stock, draw.mixture, draw.amount_text, f"{field}.amount")
+    masses = inventory.source_element_masses(draw.stock, draw.mixture, draw.amount_text, f"{field}.amount")
     if draw.stock is not None:
         substance = draw.stock.substance
         classes = (substance.hazard or {}).get("classes", [])

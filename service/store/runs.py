@@ -8,8 +8,8 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from service.chem.content import round_ug
-from service.chem.units import kind_of, parse_quantity, to_decimal
-from service.errors import Blocked, Conflict, InvalidInput
+from service.chem.units import parse_quantity, to_decimal
+from service.errors import Blocked, Conflict
 from service.rules import LayeredRules, evaluate
 from service.schemas import DrawIn, LossIn, OutputIn, RunIn
 from service.store import inventory, procedures
@@ -32,45 +32,13 @@ from service.store.waste import element_masses_ug
 __all__ = ["list_runs", "start_run", "add_output", "add_loss", "flows_of", "balance_of", "close_run"]
 
 
-def _format(value: Decimal, unit: str) -> str:
-    return f"{value.normalize():f} {unit}"
-
-
 def _take(session: Session, body: DrawIn, lab_id: int, field: str) -> RunDraw:
-    """Decrement the stock or mixture by the draw; refuse a draw larger than it holds."""
+    """Draw from the run lab's stock or mixture (row-locked); refused beyond what it holds."""
     model, kind = (Stock, "stock") if body.stock_id else (Mixture, "mixture")
     # Lock only the stock's own row: PostgreSQL refuses FOR UPDATE on the outer-joined substance.
     source = inventory.reference(session, model, body.stock_id or body.mixture_id, f"{field}.{kind}_id",
                                  lab_id=lab_id, lock=True)
-    masses = procedures.source_element_masses(source if kind == "stock" else None,
-                                              source if kind == "mixture" else None, body.amount, f"{field}.amount")
-    quantity = parse_quantity(body.amount, expect=("mass", "volume"), field=f"{field}.amount")
-    if kind == "stock":
-        held_kind, unit = source.quantity_kind, ("ug" if source.quantity_kind == "mass" else "uL")
-        if kind_of(quantity) != held_kind:
-            density = source.density_g_per_ml or source.substance.density_g_per_ml
-            if density is None:
-                raise InvalidInput(f"{field}.amount", f"{source.label} is kept by {held_kind}; give the draw as a {held_kind}")
-            grams = to_decimal(quantity, "g") if kind_of(quantity) == "mass" else to_decimal(quantity, "mL") * Decimal(repr(density))
-            wanted = grams * 1_000_000 if held_kind == "mass" else grams / Decimal(repr(density)) * 1000
-        else:
-            wanted = to_decimal(quantity, unit)
-        wanted_micro = int(wanted.to_integral_value())
-        if wanted_micro > source.quantity_micro:
-            shown = "mg" if held_kind == "mass" else "mL"
-            raise Conflict(f"{source.label} holds {source.quantity_micro / 1000:g} {shown}; the draw asks for "
-                           f"{wanted_micro / 1000:g} {shown}", f"{field}.amount", body.amount)
-        source.quantity_micro -= wanted_micro
-        source.amount_text = _format(Decimal(source.quantity_micro) / 1000, "mg" if held_kind == "mass" else "mL")
-        source.elements = inventory.stock_elements(source)
-    else:
-        wanted_micro = int(to_decimal(quantity, "uL").to_integral_value())
-        if wanted_micro > source.volume_ul:
-            raise Conflict(f"{source.label} holds {source.volume_ul / 1000:g} mL; the draw asks for "
-                           f"{wanted_micro / 1000:g} mL", f"{field}.amount", body.amount)
-        source.volume_ul -= wanted_micro
-        source.volume_text = _format(Decimal(source.volume_ul) / 1000, "mL")
-        source.elements = inventory.mixture_elements(source)
+    masses = inventory.draw_from(source, body.amount, f"{field}.amount")
     return RunDraw(stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount, element_mass_ug=masses)
 
 
