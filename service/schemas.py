@@ -268,11 +268,23 @@ class ComponentIn(_Body):
     molarity: Optional[Molarity] = None
     mass_fraction: Optional[Fraction] = None
     volume_fraction: Optional[Fraction] = None
+    source_stock_id: Optional[Id] = Field(default=None, description="the stock this component is drawn from")
+    source_mixture_id: Optional[Id] = Field(default=None, description="the mixture this component is drawn from")
+    amount: Optional[MassOrVolume] = Field(default=None, description='amount drawn from the source, e.g. "789.71 mg" '
+                                                                     'or "9 mL" (a mixture gives a volume)')
 
     @model_validator(mode="after")
     def _exactly_one(self) -> "ComponentIn":
-        if sum(v is not None for v in (self.molarity, self.mass_fraction, self.volume_fraction)) != 1:
-            raise ValueError("give exactly one of molarity, mass_fraction or volume_fraction")
+        stated = sum(v is not None for v in (self.molarity, self.mass_fraction, self.volume_fraction))
+        drawn = self.source_stock_id is not None or self.source_mixture_id is not None
+        if self.source_stock_id is not None and self.source_mixture_id is not None:
+            raise ValueError("give at most one of source_stock_id or source_mixture_id")
+        if drawn != (self.amount is not None):
+            raise ValueError("a source needs the amount drawn from it, and an amount needs its source")
+        # A drawn component's content is what it drew; a stated concentration then only describes it.
+        if stated > 1 or (stated == 0 and not drawn):
+            raise ValueError("give exactly one of molarity, mass_fraction or volume_fraction"
+                             + ("" if drawn else ", or the source and amount drawn"))
         return self
 
 
@@ -284,6 +296,9 @@ class MixtureIn(_Body):
     volume: Volume
     density_g_per_ml: Optional[Density] = None
     components: list[ComponentIn] = Field(min_length=1, max_length=50)
+    received_as_solution: bool = Field(
+        default=False, description="true: received ready-made, its element content computed from the stated "
+        "concentrations and nothing drawn; false: prepared here, every component names its source and amount")
     prepared_on: Optional[Day] = None
     expires_on: Optional[Day] = None
 

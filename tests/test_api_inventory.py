@@ -56,6 +56,7 @@ def test_substance_filter_parses_formulas(api):
 def test_mixture_content_worked_example(api):
     lab_id, place_id = api.lab_and_location()
     body = {"label": "M-1", "name": "Cd oleate 0.20 M", "lab_id": lab_id, "location_id": place_id, "volume": "10.0 mL",
+            "received_as_solution": True,
             "components": [{"substance_id": api.substance_id("cadmium oxide"), "molarity": "0.20 mol/L"}]}
     mixture = api.call("POST", "/mixtures", body, 201)
     cd = next(e for e in mixture["elements"] if e["element"] == "Cd")

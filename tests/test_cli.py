@@ -18,13 +18,12 @@ CD, O, C, H = Decimal("112.414"), Decimal("15.999"), Decimal("12.011"), Decimal(
 CDO_STOCK_G = (Decimal("25") - Decimal("0.0257")) * Decimal("0.9999") * CD / (CD + O)
 # NG-0002, 10 g Cd(CH3COO)2·2H2O = CdC4H10O6 (266.532 g/mol) at 98 %: × 0.42177 = 4.1333 g Cd.
 ACETATE_STOCK_G = Decimal("10") * Decimal("0.98") * CD / (CD + 4 * C + 10 * H + 6 * O)
-# NG-M01, cadmium oleate 0.20 mol/L × 50 mL: 0.010 mol × 112.414 g/mol = 1.1241 g Cd.
-OLEATE_MIXTURE_G = Decimal("0.20") * Decimal("0.050") * CD
+# NG-M01, cadmium oleate, is prepared from 1.2841 g of NG-0001: its Cd moved out of the stock, so it adds nothing.
 # NG-P01, the run's product kept as a stock: the demo records 70 % of the run's Cd input as measured in it,
 # 70 % of 22 496 µg rounded down = 15 747 µg (the product stock holds the output's masses, not a formula's).
 CD_IN_UG = (Decimal("0.0257") * Decimal("0.9999") * CD / (CD + O) * 1_000_000).quantize(Decimal(1))
 PRODUCT_STOCK_G = (CD_IN_UG * 70 // 100) / 1_000_000
-DEMO_CD_ON_HAND_G = CDO_STOCK_G + ACETATE_STOCK_G + OLEATE_MIXTURE_G + PRODUCT_STOCK_G  # 27.134 g
+DEMO_CD_ON_HAND_G = CDO_STOCK_G + ACETATE_STOCK_G + PRODUCT_STOCK_G  # 26.010 g
 
 
 def test_init_then_demo_twice(sqlite_url, monkeypatch):
@@ -50,8 +49,8 @@ def test_init_then_demo_twice(sqlite_url, monkeypatch):
     assert "local regulations" in overview and "site safety officer" in overview
     cd_row = re.search(r">Cd<.*?</tr>", overview, re.S)
     assert cd_row is not None
-    assert (CD_IN_UG, f"{DEMO_CD_ON_HAND_G:.3f}") == (22_496, "27.134")
-    assert "27.134" in cd_row.group(0)  # g of Cd on hand, to 3 decimals
+    assert (CD_IN_UG, f"{DEMO_CD_ON_HAND_G:.3f}") == (22_496, "26.010")
+    assert "26.010" in cd_row.group(0)  # g of Cd on hand, to 3 decimals
     stocks = client.get("/stocks?element=Cd").get_data(as_text=True)
     assert "NG-0001" in stocks and "NG-0003" not in stocks  # selenium has no Cd
     assert client.get("/mixtures").status_code == 200

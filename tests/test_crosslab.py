@@ -30,6 +30,7 @@ def _lab(admin: Api, code: str) -> dict:
                                            "lab_id": lab, "location_id": place, "amount": "1 g"}, 201)["id"]
     mixture = admin.call("POST", "/mixtures", {
         "label": f"{code}-M", "name": "Cd oleate 0.20 M", "lab_id": lab, "location_id": place, "volume": "10 mL",
+        "received_as_solution": True,
         "components": [{"substance_id": admin.substance_id("cadmium oxide"), "molarity": "0.20 mol/L"}]}, 201)["id"]
     container = admin.call("POST", "/waste_containers", {"label": f"{code}-W", "lab_id": lab, "location_id": saa,
                                                          "stream": "non_halogenated_solvent_heavy_metals",
@@ -101,7 +102,7 @@ def test_create_in_another_labs_location(site, kind):
     else:
         def body(place):
             return {"label": "B-new", "name": "Cd oleate", "lab_id": b["lab"], "location_id": place, "volume": "5 mL",
-                    "components": [{"substance_id": cdo, "molarity": "0.1 mol/L"}]}
+                    "received_as_solution": True, "components": [{"substance_id": cdo, "molarity": "0.1 mol/L"}]}
     error = _same_as_missing(site, site["res_b"], "POST", f"/{kind}", body, a["place"])
     assert error["details"][0]["field"] == "location_id"
     _same_as_missing(site, admin, "POST", f"/{kind}", body, a["place"])  # the record's lab, whoever asks

@@ -85,8 +85,9 @@ def test_assessment_pdf_prints_masses_hazards_and_deferral(demo):
     for row in view["element_masses_per_batch"]:  # the JSON view's numbers, printed as mg
         assert f"{row['mass_ug'] / 1000:,.3f}" in text, row
     # By hand (CIAAW 2021: Cd 112.414, O 15.999, Se 78.971 g/mol): the demo draws 25.7 mg CdO at 99.99 %,
-    # × 112.414 / 128.413 = 22.496 mg Cd, and 1.0 mL of 1.0 mol/L TOP-Se = 1.0 mmol × 78.971 = 78.971 mg Se.
-    assert "22.496" in text and "78.971" in text
+    # × 112.414 / 128.413 = 22.496 mg Cd, and 1.0 mL of the 20 mL TOP-Se, prepared from 1.5794 g Se at 99.99 %
+    # (1 579.242 mg Se): 78.962 mg Se.
+    assert "22.496" in text and "78.962" in text
     for code, wording in H_TEXTS.items():  # cadmium oxide, 1-octadecene, acetone use these codes
         assert f"{code} {wording}" in text, code
     for pack in view["rule_packs"]:

@@ -68,7 +68,7 @@ def _seed(app) -> dict[str, int]:
                   for n in range(ROWS)]
         for n in range(ROWS):
             inventory.create_mixture(s, MixtureIn(label=f"S-M{n}", name=f"seed oleate {n}", lab_id=lab.id,
-                                                  location_id=saa.id, volume="10 mL",
+                                                  location_id=saa.id, volume="10 mL", received_as_solution=True,
                                                   components=[ComponentIn(substance_id=cdo, molarity="0.1 mol/L"),
                                                               ComponentIn(substance_id=ode, volume_fraction=0.9)]))
         procs = []

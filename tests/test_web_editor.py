@@ -38,6 +38,7 @@ def lab(app, client):
                                                        "lab_id": lab_id, "location_id": place, "amount": amount}, 201)["id"]
     mixture = admin.call("POST", "/mixtures", {
         "label": "CdOl", "name": "Cd oleate 0.20 M", "lab_id": lab_id, "location_id": place, "volume": "10.0 mL",
+        "received_as_solution": True,
         "components": [{"substance_id": admin.substance_id("cadmium oxide"), "molarity": "0.20 mol/L"}]}, 201)["id"]
     other = admin.call("POST", "/stocks", {"label": "CdO-other", "substance_id": admin.substance_id("cadmium oxide"),
                                            "lab_id": ids["O-2"][0], "location_id": ids["O-2"][1], "amount": "5 g"},

@@ -96,6 +96,22 @@ class Stock(_Lifecycle):
     origin: Optional[StockOrigin] = Field(default=None, description="the run and output a product stock came from")
 
 
+class ComponentSource(_Answer):
+    stock_id: Optional[int]
+    mixture_id: Optional[int]
+    amount: str
+    element_mass_ug: dict[str, int]
+
+
+class MixtureComponent(_Answer):
+    substance_id: int
+    substance: str
+    molarity: Optional[str]
+    mass_fraction: Optional[str]
+    volume_fraction: Optional[str]
+    source: Optional[ComponentSource]
+
+
 class Mixture(_Lifecycle):
     id: int
     label: str
@@ -104,6 +120,8 @@ class Mixture(_Lifecycle):
     location_id: int
     volume: str
     volume_ml: float
+    received_as_solution: bool
+    components: list[MixtureComponent]
     elements: list[ElementRow]
 
 

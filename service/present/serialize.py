@@ -97,6 +97,15 @@ def stock(record: Stock) -> dict[str, Any]:
     }
 
 
+def component_source(component) -> dict[str, Any] | None:
+    """Where a prepared mixture's component came from: the stock or mixture, the amount drawn and the
+    element masses (µg) it carried; None for a component of a solution received ready-made."""
+    if component.amount_text is None:
+        return None
+    return {"stock_id": component.source_stock_id, "mixture_id": component.source_mixture_id,
+            "amount": component.amount_text, "element_mass_ug": dict(sorted((component.element_mass_ug or {}).items()))}
+
+
 def mixture(record: Mixture) -> dict[str, Any]:
     volume_ml = record.volume_ul / 1000
     return {
@@ -110,6 +119,7 @@ def mixture(record: Mixture) -> dict[str, Any]:
         "density_g_per_ml": record.density_g_per_ml,
         "prepared_on": _ts(record.prepared_on),
         "expires_on": _ts(record.expires_on),
+        "received_as_solution": record.received_as_solution,
         "components": [
             {
                 "substance_id": c.substance_id,
@@ -118,6 +128,7 @@ def mixture(record: Mixture) -> dict[str, Any]:
                 "molarity": c.molarity_text,
                 "mass_fraction": c.mass_fraction,
                 "volume_fraction": c.volume_fraction,
+                "source": component_source(c),
             }
             for c in record.components
         ],

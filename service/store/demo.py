@@ -45,14 +45,20 @@ STOCKS = [
     ("NG-0015", "hexane", "1 L", 95.0, "flammables"),
     ("NG-0016", "methanol", "1 L", 99.8, "flammables"),
 ]
-# label, name, volume, [(catalogue name, molarity | None, volume fraction | None)], location
+# Prepared in the lab from the demo stocks: label, name, volume,
+# [(catalogue name, molarity | None, volume fraction | None, stock drawn from, amount drawn)], location.
+# Amounts: 50 mL × 0.20 mol/L × 128.41 g/mol CdO = 1.2841 g; 20 mL × 1.0 mol/L × 78.971 g/mol Se = 1.5794 g;
+# 40 mL × 0.0625 mol/L × 325.82 g/mol Cs2CO3 = 0.8146 g (invented recipes).
 MIXTURES = [
     ("NG-M01", "cadmium oleate 0.20 M in 1-octadecene", "50 mL",
-     [("cadmium oxide", "0.20 mol/L", None), ("1-octadecene", None, "0.85")], "glovebox"),
+     [("cadmium oxide", "0.20 mol/L", None, "NG-0001", "1.2841 g"),
+      ("1-octadecene", None, "0.85", "NG-0010", "42.5 mL")], "glovebox"),
     ("NG-M02", "TOP-Se 1.0 M", "20 mL",
-     [("selenium", "1.0 mol/L", None), ("trioctylphosphine", None, "0.9")], "glovebox"),
+     [("selenium", "1.0 mol/L", None, "NG-0003", "1.5794 g"),
+      ("trioctylphosphine", None, "0.9", "NG-0009", "18 mL")], "glovebox"),
     ("NG-M03", "cesium oleate 0.125 M in 1-octadecene", "40 mL",
-     [("cesium carbonate", "0.0625 mol/L", None), ("1-octadecene", None, "0.9")], "glovebox"),
+     [("cesium carbonate", "0.0625 mol/L", None, "NG-0008", "0.8146 g"),
+      ("1-octadecene", None, "0.9", "NG-0010", "36 mL")], "glovebox"),
 ]
 
 
@@ -106,8 +112,10 @@ def load_demo(session: Session, catalogue: SubstanceCatalogue) -> tuple[dict[str
             added["stocks"] += 1
     for label, name, volume, parts, place in MIXTURES:
         if session.scalar(select(Mixture.id).where(Mixture.label == label)) is None:
-            components = [ComponentIn(substance_id=substance_id(n), molarity=m, volume_fraction=Decimal(v) if v else None)
-                          for n, m, v in parts]
+            components = [ComponentIn(substance_id=substance_id(n), molarity=m, volume_fraction=Decimal(v) if v else None,
+                                      source_stock_id=session.scalar(select(Stock.id).where(Stock.label == stock)),
+                                      amount=amount)
+                          for n, m, v, stock, amount in parts]
             inventory.create_mixture(session, MixtureIn(label=label, name=name, lab_id=lab.id, location_id=places[place].id,
                                                         volume=volume, components=components))
             added["mixtures"] += 1

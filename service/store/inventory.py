@@ -14,7 +14,13 @@ from pydantic import BaseModel
 from sqlalchemy import and_, exists, func, select
 from sqlalchemy.orm import Session
 
-from service.chem.content import Component, mixture_element_masses_ug, share_ug, substance_element_masses_ug
+from service.chem.content import (
+    Component,
+    mixture_element_masses_ug,
+    share_ug,
+    substance_element_masses_ug,
+    total_ug,
+)
 from service.chem.formula import parse_formula
 from service.chem.substances import SubstanceCatalogue
 from service.chem.units import kind_of, parse_quantity, to_decimal
@@ -45,9 +51,12 @@ __all__ = [
     "retire",
     "list_records",
     "locations_by_id",
+    "source_labels",
     "create_stock",
     "create_product_stock",
     "update_stock",
+    "source_element_masses",
+    "draw_from",
     "create_mixture",
     "update_mixture",
     "Draw",
@@ -208,6 +217,18 @@ def list_records(
     return paginate(session, query.order_by(model.id), limit, offset)
 
 
+def source_labels(session: Session, mixtures) -> dict[str, str]:
+    """Labels of the stocks and mixtures the components of ``mixtures`` drew from, keyed ``stock:<id>`` /
+    ``mixture:<id>`` (retired ones too), in at most two queries."""
+    out: dict[str, str] = {}
+    for model, column, kind in ((Stock, "source_stock_id", "stock"), (Mixture, "source_mixture_id", "mixture")):
+        wanted = sorted({getattr(c, column) for m in mixtures for c in m.components} - {None})
+        if wanted:
+            rows = session.execute(select(model.id, model.label).where(model.id.in_(wanted)))
+            out.update({f"{kind}:{ident}": label for ident, label in rows})
+    return out
+
+
 def locations_by_id(session: Session, ids) -> dict[int, Location]:
     """The locations with these ids (retired ones too), in one query."""
     wanted = sorted({i for i in ids if i is not None})
@@ -297,16 +318,42 @@ def update_stock(session: Session, stock: Stock, patch: StockPatch) -> Stock:
     values = patch.model_dump(exclude_unset=True)
     _check_unique(session, Stock, values, stock.id)
     _check_refs(session, values, stock.lab_id)
+    # Only a corrected amount, purity or density recomputes the content; a draw left it exact to the µg.
+    recompute = bool(values.keys() & {"amount", "purity_percent", "density_g_per_ml"})
     if "amount" in values:
         amount = values.pop("amount")
         stock.quantity_kind, stock.quantity_micro = _quantity_micro(amount or "")
         stock.amount_text = amount
     for key, value in values.items():
         setattr(stock, key, value)
-    if not is_product(stock):  # a product's content is what its run recorded, whatever the amount is restated as
+    if recompute and not is_product(stock):  # a product's content is what its run recorded
         stock.elements = stock_elements(stock)
     session.flush()
     return stock
+
+
+# --- draws --------------------------------------------------------------------
+
+
+def source_element_masses(stock: Optional[Stock], mixture: Optional[Mixture], amount_text: str,
+                          field: str = "amount") -> dict[str, int]:
+    """Element masses (µg) in ``amount_text`` of a stock or a mixture (:func:`draw_of`): what a planned
+    draw would carry; :func:`draw_from` takes it out of the source."""
+    return draw_of(stock if stock is not None else mixture, amount_text, field).element_mass_ug
+
+
+def draw_from(source: Stock | Mixture, amount: str, field: str) -> dict[str, int]:
+    """Take ``amount`` out of a stock or mixture (loaded with its row lock); the element masses (µg) taken.
+
+    :func:`draw_of` then :func:`take`: refused (Conflict naming ``field``) beyond what the source holds;
+    the source drops by exactly the masses returned, so the element sum over source and destination
+    does not change.
+    """
+    draw = draw_of(source, amount, field)
+    if draw.micro <= 0:
+        raise InvalidInput(field, "must be above zero", amount)
+    take(source, draw, field, amount)
+    return dict(draw.element_mass_ug)
 
 
 # --- mixtures -----------------------------------------------------------------
@@ -337,14 +384,53 @@ def _volume_ul(volume: str) -> int:
     return int(to_decimal(quantity, "uL").to_integral_value())
 
 
+def _drawn_component(session: Session, comp, field: str, lab_id: int, substance: Substance) -> tuple[dict, dict[str, int]]:
+    """Take a prepared mixture's component out of its source; (the component's provenance columns, µg taken).
+
+    The source is a stock or mixture of the mixture's own lab (another lab's answers as a missing id)
+    and must hold the component's substance.
+    """
+    if comp.source_stock_id is not None:
+        source = reference(session, Stock, comp.source_stock_id, f"{field}.source_stock_id", lab_id=lab_id, lock=True)
+        if source.substance_id != substance.id:
+            raise InvalidInput(f"{field}.substance_id", f"stock {source.label} holds {source.substance.name}, "
+                               f"not {substance.name}", substance.id)
+    else:
+        source = reference(session, Mixture, comp.source_mixture_id, f"{field}.source_mixture_id", lab_id=lab_id,
+                           lock=True)
+        if substance.id not in {c.substance_id for c in source.components}:
+            raise InvalidInput(f"{field}.substance_id", f"mixture {source.label} has no component {substance.name}",
+                               substance.id)
+    taken = draw_from(source, comp.amount, f"{field}.amount")
+    return {"source_stock_id": comp.source_stock_id, "source_mixture_id": comp.source_mixture_id,
+            "amount_text": comp.amount, "element_mass_ug": taken}, taken
+
+
 def create_mixture(session: Session, body: MixtureIn) -> Mixture:
+    """Record a mixture. A prepared one draws each component from its source in this transaction and holds
+    exactly the element masses drawn; one received as a solution draws nothing and holds what its stated
+    concentrations give."""
     values = body.model_dump(exclude={"components"})
     _check_unique(session, Mixture, values)
     _check_refs(session, values)
     volume = values.pop("volume")
     mixture = Mixture(**values, volume_text=volume, volume_ul=_volume_ul(volume))
+    drawn: list[dict[str, int]] = []
     for position, comp in enumerate(body.components):
-        substance = reference(session, Substance, comp.substance_id, f"components[{position}].substance_id")
+        field = f"components[{position}]"
+        substance = reference(session, Substance, comp.substance_id, f"{field}.substance_id")
+        named = "source_stock_id" if comp.source_stock_id is not None else "source_mixture_id"
+        has_source = comp.amount is not None
+        if body.received_as_solution and has_source:
+            raise InvalidInput(f"{field}.{named}", "a mixture received as a solution draws from no stock or mixture")
+        if not body.received_as_solution and not has_source:
+            raise InvalidInput(f"{field}.source_stock_id", "name the stock (source_stock_id) or mixture "
+                               "(source_mixture_id) this component is drawn from and the amount drawn; "
+                               "a mixture received ready-made is marked received_as_solution")
+        provenance = {}
+        if has_source:
+            provenance, taken = _drawn_component(session, comp, field, body.lab_id, substance)
+            drawn.append(taken)
         mixture.components.append(
             MixtureComponent(
                 position=position,
@@ -353,24 +439,32 @@ def create_mixture(session: Session, body: MixtureIn) -> Mixture:
                 molarity_text=comp.molarity,
                 mass_fraction=None if comp.mass_fraction is None else str(comp.mass_fraction),
                 volume_fraction=None if comp.volume_fraction is None else str(comp.volume_fraction),
+                **provenance,
             )
         )
-    mixture.elements = mixture_elements(mixture)
+    if body.received_as_solution:
+        mixture.elements = mixture_elements(mixture)
+    else:
+        mixture.elements = [MixtureElement(element=s, mass_ug=ug) for s, ug in sorted(total_ug(drawn).items())]
     session.add(mixture)
     session.flush()
     return mixture
 
 
 def update_mixture(session: Session, mixture: Mixture, patch: MixturePatch) -> Mixture:
+    """Apply a patch. A received solution's content follows a corrected volume or density; a prepared
+    mixture's content is what it drew (less what was drawn from it), whatever its volume reads."""
     values = patch.model_dump(exclude_unset=True)
     _check_refs(session, values, mixture.lab_id)
+    recompute = mixture.received_as_solution and bool(values.keys() & {"volume", "density_g_per_ml"})
     if "volume" in values:
         volume = values.pop("volume") or ""
         mixture.volume_ul = _volume_ul(volume)
         mixture.volume_text = volume
     for key, value in values.items():
         setattr(mixture, key, value)
-    mixture.elements = mixture_elements(mixture)
+    if recompute:
+        mixture.elements = mixture_elements(mixture)
     session.flush()
     return mixture
 

@@ -8,6 +8,7 @@ from typing import Any, Optional
 from sqlalchemy import (
     JSON,
     BigInteger,
+    Boolean,
     CheckConstraint,
     Date,
     DateTime,
@@ -19,6 +20,7 @@ from sqlalchemy import (
     Text,
     TypeDecorator,
     UniqueConstraint,
+    false,
 )
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
 
@@ -204,8 +206,12 @@ class Mixture(_Lifecycle, Base):
     density_g_per_ml: Mapped[Optional[float]] = mapped_column(Float)
     prepared_on: Mapped[Optional[dt.date]] = mapped_column(Date)
     expires_on: Mapped[Optional[dt.date]] = mapped_column(Date)
+    # True: bought or received ready-made, its element content computed from the stated concentrations;
+    # False: prepared here, its element content the sum of what its components drew from stocks and mixtures.
+    received_as_solution: Mapped[bool] = mapped_column(Boolean, default=False, server_default=false())
     components: Mapped[list["MixtureComponent"]] = relationship(
-        cascade="all, delete-orphan", lazy="selectin", order_by="MixtureComponent.position"
+        cascade="all, delete-orphan", lazy="selectin", order_by="MixtureComponent.position",
+        foreign_keys="MixtureComponent.mixture_id",
     )
     elements: Mapped[list["MixtureElement"]] = relationship(
         cascade="all, delete-orphan", lazy="selectin", order_by="MixtureElement.element"
@@ -221,6 +227,12 @@ class MixtureComponent(Base):
     molarity_text: Mapped[Optional[str]] = mapped_column(String(60))
     mass_fraction: Mapped[Optional[str]] = mapped_column(String(30))  # decimal text, exact
     volume_fraction: Mapped[Optional[str]] = mapped_column(String(30))
+    # Provenance of a prepared mixture: the stock or mixture drawn from, the amount as entered and the
+    # element masses (µg) it carried, which left the source in the same transaction.
+    source_stock_id: Mapped[Optional[int]] = mapped_column(ForeignKey("stocks.id"), index=True)
+    source_mixture_id: Mapped[Optional[int]] = mapped_column(ForeignKey("mixtures.id"), index=True)
+    amount_text: Mapped[Optional[str]] = mapped_column(String(60))
+    element_mass_ug: Mapped[Optional[dict[str, Any]]] = mapped_column(JSON)
     substance: Mapped[Substance] = relationship(lazy="joined")
 
 

@@ -40,7 +40,6 @@ __all__ = [
     "unsaved_procedure",
     "update_procedure",
     "subject_of",
-    "source_element_masses",
     "scaled_amount",
     "element_totals_ug",
     "findings_of",
@@ -188,15 +187,9 @@ def scaled_amount(amount_text: str, scale: float) -> str:
     return f"{Decimal(repr(float(quantity.magnitude))) * Decimal(repr(float(scale)))} {quantity.units:~}"
 
 
-def source_element_masses(stock: Optional[Stock], mixture: Optional[Mixture], amount_text: str,
-                          field: str = "amount") -> dict[str, int]:
-    """Element masses (µg) in ``amount_text`` drawn from a stock or a mixture (``inventory.draw_of``)."""
-    return inventory.draw_of(stock if stock is not None else mixture, amount_text, field).element_mass_ug
-
-
 def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFacts:
     amount = draw.amount_text if scale == 1 else scaled_amount(draw.amount_text, scale)
-    masses = source_element_masses(draw.stock, draw.mixture, amount, f"{field}.amount")
+    masses = inventory.source_element_masses(draw.stock, draw.mixture, amount, f"{field}.amount")
     if draw.stock is not None:
         stock, substance = draw.stock, draw.stock.substance
         classes = (substance.hazard or {}).get("classes", [])

@@ -138,11 +138,12 @@ def stocks():
 @bp.get("/mixtures")
 def mixtures():
     query = PageQuery.model_validate(request.args.to_dict())
-    records = inventory.list_records(get_session(), Mixture, limit=query.limit, offset=query.offset,
-                                     lab_ids=lab_scope())
+    session = get_session()
+    records = inventory.list_records(session, Mixture, limit=query.limit, offset=query.offset, lab_ids=lab_scope())
     return render_template(
         "pages/mixtures.html",
         mixtures=records,
+        sources=inventory.source_labels(session, records),
         tracked=_present(records),
     )
 

@@ -10,7 +10,7 @@ import sqlalchemy as sa
 
 
 revision = '0012_product_stocks'
-down_revision = '0010_idempotency'
+down_revision = '0011_mixture_sources'
 branch_labels = None
 depends_on = None
 
