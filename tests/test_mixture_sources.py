@@ -98,7 +98,7 @@ def test_a_draw_beyond_the_stock_is_refused_and_changes_nothing(site):
     before = _state(site)
     error = site["researcher"].call("POST", "/mixtures", _top_se(site, se="5.5 g"), 409)["error"]
     assert error["details"][0]["field"] == "components[0].amount"
-    assert error["message"].startswith("components[0].amount: SE-1 holds 5000 mg")
+    assert error["message"].startswith("SE-1 holds 5000 mg")
     # The first component fits; the second does not: the first draw is undone with the rest.
     error = site["researcher"].call("POST", "/mixtures", _top_se(site, top="60 mL"), 409)["error"]
     assert error["details"][0]["field"] == "components[1].amount"
