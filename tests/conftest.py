@@ -8,6 +8,7 @@ is skipped, except under CI (``CI=true``), where a missing server is an error.
 from __future__ import annotations
 
 import os
+import threading
 import uuid
 from pathlib import Path
 
@@ -162,3 +163,20 @@ class Api:
 def api(app, client) -> Api:
     """The API as a site administrator."""
     return Api(client, make_user(app, "admin@test.example", "admin"))
+
+
+def threads_against_server(app, worker, count: int, *, timeout: float = 300) -> None:
+    """Serve ``app`` over real HTTP (waitress, 8 threads) and run ``worker(port, n)`` for n < count in
+    as many threads at once; returns when every thread is done (or ``timeout`` seconds passed)."""
+    from waitress.server import create_server
+
+    server = create_server(app, host="127.0.0.1", port=0, threads=8)
+    threading.Thread(target=server.run, daemon=True).start()
+    try:
+        workers = [threading.Thread(target=worker, args=(server.effective_port, n)) for n in range(count)]
+        for w in workers:
+            w.start()
+        for w in workers:
+            w.join(timeout=timeout)
+    finally:
+        server.close()

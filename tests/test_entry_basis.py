@@ -8,6 +8,9 @@ the run of ``tests.test_runs`` draws 0.2 mmol CdO, holding 0.2 mmol × 112.414 g
 
 from __future__ import annotations
 
+import json
+import urllib.error
+import urllib.request
 from decimal import ROUND_HALF_EVEN, Decimal
 
 import pytest
@@ -15,6 +18,7 @@ from sqlalchemy import func, select
 
 from service.store.audit import AuditEvent
 from service.store.db import session_scope
+from tests.conftest import threads_against_server
 from tests.test_cli import sign_in
 from tests.test_runs import approved  # noqa: F401 - the fixture: an approved CdSe procedure, stocks, two containers
 
@@ -161,3 +165,31 @@ def test_the_container_page_shows_the_basis(app, client, approved):  # noqa: F81
     page = client.get(f"/waste/{approved['liquid']}").get_data(as_text=True)
     assert "80 % of the 7.483 mg the run left unaccounted" in page
     assert "12.5 mg/L × 4.0 mL" in page
+
+
+def test_concurrent_shares_of_one_run_in_two_containers_take_the_remainder_once(app, approved):  # noqa: F811
+    """Eight threads each ask for 100 % of the run's Cd remainder, into two containers, over real HTTP."""
+    run = _run_with_product(approved)
+    first = approved["admin"].call("GET", f"/waste_containers/{approved['liquid']}")
+    containers = [first["id"], approved["admin"].call("POST", "/waste_containers", {
+        "label": "R-L2", "lab_id": first["lab_id"], "location_id": first["location_id"],
+        "stream": "non_halogenated_solvent_heavy_metals", "capacity": "10 L"}, 201)["id"]]
+    answers: list[int] = []
+
+    def worker(port: int, n: int) -> None:
+        body = json.dumps({"description": f"supernatant {n}", "volume": "10 mL", "run_id": run["id"],
+                           "elements": [{"element": "Cd", "share_percent": 100}]}).encode()
+        request = urllib.request.Request(
+            f"http://127.0.0.1:{port}/api/v1/waste_containers/{containers[n % 2]}/entries",
+            data=body, method="POST", headers={"Content-Type": "application/json",
+                                               "Authorization": f"Bearer {approved['researcher'].token}"})
+        try:
+            with urllib.request.urlopen(request, timeout=60) as response:
+                answers.append(response.status)
+        except urllib.error.HTTPError as exc:
+            answers.append(exc.code)
+
+    threads_against_server(app, worker, 8, timeout=120)
+    assert sorted(answers) == [201] + [422] * 7
+    row = _balance_row(approved, run, "Cd")
+    assert row["waste_ug"] == CD_IN - CD_PRODUCT and row["unaccounted_ug"] == 0

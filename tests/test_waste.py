@@ -8,18 +8,16 @@ Regulatory values: 40 CFR 261.24 Table 1 (D006 cadmium 1.0 mg/L, seen), 261.21(a
 from __future__ import annotations
 
 import json
-import threading
 import urllib.error
 import urllib.request
 from decimal import Decimal
 
 import pytest
 from sqlalchemy import insert, text
-from waitress.server import create_server
 
 from service.store.db import make_engine, upgrade
 from service.store.models import Lab, Location, Substance, WasteContainer, WasteEntry, WasteEntryComponent, WasteEntryElement
-from tests.conftest import Api, make_user
+from tests.conftest import Api, make_user, threads_against_server
 
 
 @pytest.fixture
@@ -126,13 +124,9 @@ def test_concurrent_additions_over_http_are_never_lost(app, site):
     """16 threads × 50 entries of 10 mL into a 5 L container, through a real HTTP server."""
     container = _container(site, capacity="5 L")
     token = site["researcher"].token
-    server = create_server(app, host="127.0.0.1", port=0, threads=8)
-    port = server.effective_port
-    thread = threading.Thread(target=server.run, daemon=True)
-    thread.start()
     acknowledged, refused, other = [], [], []
 
-    def worker(n: int) -> None:
+    def worker(port: int, n: int) -> None:
         for i in range(50):
             body = json.dumps({"description": f"thread {n} wash {i}", "volume": "10 mL",
                                "elements": [{"element": "Cd", "mass": "0.1 mg"}]}).encode()
@@ -145,14 +139,7 @@ def test_concurrent_additions_over_http_are_never_lost(app, site):
             except urllib.error.HTTPError as exc:
                 (refused if exc.code == 409 else other).append(exc.code)
 
-    try:
-        workers = [threading.Thread(target=worker, args=(n,)) for n in range(16)]
-        for w in workers:
-            w.start()
-        for w in workers:
-            w.join(timeout=300)
-    finally:
-        server.close()
+    threads_against_server(app, worker, 16)
     assert other == []
     assert len(acknowledged) + len(refused) == 800
     assert len(acknowledged) == 500  # exactly the capacity: 5 L / 10 mL
