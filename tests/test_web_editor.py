@@ -158,7 +158,7 @@ def test_store_errors_name_the_row(app, lab):
     # A volume of a solid whose density the catalogue does not give: the store names the draw's amount.
     volume = client.post("/procedures/new", data={**_form(lab, **{"draws-1-source": "CdAc", "draws-1-amount": "4 mL"}),
                                                   "action": "save", "csrf_token": _csrf(client)})
-    assert volume.status_code == 422 and re.search(r'id="draws-1-amount-error">[^<]*has no density',
+    assert volume.status_code == 422 and re.search(r'id="draws-1-amount-error">CdAc is kept by mass; give the draw as a mass',
                                                    volume.get_data(as_text=True))
     body = _body(lab)
     body["draws"][1] = {"stock_id": lab["stocks"]["CdAc"], "amount": "4 mL"}
@@ -180,7 +180,8 @@ def test_check_computes_and_stores_nothing(app, lab):
     assert _counts(app) == before
     # Cd: 25.7 mg CdO × 112.414/128.413 = 22.498 mg, plus 1 mL of 0.20 mol/L × 112.414 g/mol = 22.483 mg.
     assert '<th scope="row">Cd</th><td class="num">44.981</td>' in page
-    assert "<caption>Scale-up preview" in page and "× 10" in page and "449.81" in page
+    # × 10 scales the amounts, then rounds once: 257 mg CdO → 224.980 mg Cd, 10 mL of the oleate → 224.828 mg.
+    assert "<caption>Scale-up preview" in page and "× 10" in page and "449.808" in page
     assert "site safety officer" in page and 'class="findings"' in page
     fragment = client.post("/procedures/check", data={**_form(lab), "csrf_token": _csrf(client)})
     text = fragment.get_data(as_text=True)
