@@ -70,12 +70,15 @@ def test_every_list_endpoint_answers_a_capped_page(api, app):
     lists = [rule for rule in app.url_map.iter_rules() if rule.rule.startswith("/api/v1/") and "GET" in rule.methods
              and (rule.endpoint.startswith("api.list_") or rule.endpoint == "api.review_queue")]
     assert len(lists) >= 14  # 5 inventory resources, tokens, users, audit, procedures and revisions, decisions,
-    # runs, containers, entries, review queue
+    # runs, containers, entries, review queue, stock movements (all and one stock's)
     lab_id, place_id = api.lab_and_location()
     container = api.call("POST", "/waste_containers", {"label": "W-1", "lab_id": lab_id, "location_id": place_id,
                                                        "stream": "aqueous_heavy_metals", "capacity": "10 L"}, 201)
+    stock = api.call("POST", "/stocks", {"label": "S-1", "substance_id": api.substance_id("selenium"), "lab_id": lab_id,
+                                         "location_id": place_id, "amount": "5 g"}, 201)
     for rule in lists:
-        path = rule.rule.removeprefix("/api/v1").replace("<int:ident>", str(container["id"]))
+        ident = stock["id"] if rule.rule.startswith("/api/v1/stocks/") else container["id"]
+        path = rule.rule.removeprefix("/api/v1").replace("<int:ident>", str(ident))
         if "<" in path:
             pytest.fail(f"unexpected path argument in {rule.rule}")
         if "procedures/" in path:
