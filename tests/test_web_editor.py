@@ -263,3 +263,32 @@ def test_lab_scoping_and_roles(app, lab):
 def test_a_form_without_its_token_is_refused(app, lab):
     client = _signed_in(app, "res@test.example")
     assert client.post("/procedures/new", data={**_form(lab), "action": "save"}).status_code == 400
+
+
+def test_a_label_two_records_share_resolves_to_neither():
+    """Typing a label a stock and a mixture share (or that differs only in case) never picks one silently."""
+    from service.web.editor import _source_index
+
+    index = _source_index([("stock:1", "NG-1 · cadmium oxide · 25 g"), ("mixture:2", "ng-1 · TOP-Se 1.0 M · 10 mL"),
+                           ("stock:3", "NG-3 · selenium · 5 g")])
+    assert index["ng-1"] == ""  # shared label: the person chooses from the list
+    assert index["ng-3"] == "stock:3" and index["cadmium oxide"] == "stock:1"  # unique ones still resolve
+    assert index["ng-1 · top-se 1.0 m · 10 ml"] == "mixture:2"  # the whole option text is unique
+
+
+def test_a_check_drops_blank_rows_above_filled_ones_so_step_numbers_agree(app, lab):
+    """The findings count filled steps; after a check the page numbers the same rows (no blank row above)."""
+    client = _signed_in(app, "res@test.example")
+    shifted = {}
+    for key, value in _form(lab).items():
+        if key.startswith("steps-"):
+            _, row, field = key.split("-", 2)
+            shifted[f"steps-{int(row) + 1}-{field}"] = value
+    blank = {f"steps-0-{f}": "" for f in ("operation", "temperature_c", "atmosphere", "duration_min", "note")}
+    form = {**{k: v for k, v in _form(lab).items() if not k.startswith("steps-")}, **blank, **shifted}
+    page = client.post("/procedures/new", data={**form, "action": "check", "csrf_token": _csrf(client)})
+    text = page.get_data(as_text=True)
+    assert page.status_code == 200, text
+    first = re.search(r'<select\s+id="steps-0-operation".*?</select>', text, re.S).group(0)
+    assert re.search(r'<option value="degas"[^>]*selected', first), first
+    assert 'id="steps-3-operation"' not in text  # three filled rows, numbered 1 to 3

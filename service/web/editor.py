@@ -162,7 +162,10 @@ def _source_index(sources: list[tuple[str, str]]) -> dict[str, str]:
     names: dict[str, set[str]] = {}
     for value, text in sources:
         label, name, _ = (text.split(" · ", 2) + ["", ""])[:3]
-        index[text.casefold()] = index[label.casefold()] = value
+        for key in (text.casefold(), label.casefold()):
+            # a label two records share (a stock and a mixture, or labels differing only in case) picks
+            # neither: the person chooses from the list
+            index[key] = value if index.get(key, value) == value else ""
         names.setdefault(name.casefold(), set()).add(value)
     for name, values in names.items():
         if len(values) == 1:
@@ -369,6 +372,17 @@ def _editable(ident: int) -> Procedure:
     return proc
 
 
+def _without_inner_blanks(state: dict) -> dict:
+    """The form without wholly blank rows that stand before a filled one (trailing blank rows stay)."""
+    out = dict(state)
+    for name, (fields, _, _, _) in ROWS.items():
+        rows = state[name]
+        filled = [i for i, row in enumerate(rows) if any(row[f].strip() for f in fields)]
+        if filled:
+            out[name] = [row for i, row in enumerate(rows) if i in filled or i > filled[-1]]
+    return out
+
+
 def _submit(proc: Optional[Procedure]):
     state = _state_from_form(request.form)
     action = request.form.get("action", "save")
@@ -376,6 +390,7 @@ def _submit(proc: Optional[Procedure]):
     if row:
         return _render(state, proc, focus=_row_action(state, *row.groups()))
     if action == "check":
+        state = _without_inner_blanks(state)  # so the findings' "step N" is the row the page numbers N
         live, errors = _judge(state, proc)
         return _render(state, proc, errors=errors, live=live, status=422 if errors else 200)
     if action != "save":
