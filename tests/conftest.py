@@ -171,7 +171,18 @@ def threads_against_server(app, worker, count: int, *, timeout: float = 300) -> 
     from waitress.server import create_server
 
     server = create_server(app, host="127.0.0.1", port=0, threads=8)
-    threading.Thread(target=server.run, daemon=True).start()
+    stop = threading.Event()
+
+    def serve() -> None:
+        # The loop polls in short slices and closes the server in this same thread: closing it from
+        # another thread while the loop sits in select() fails with "Bad file descriptor".
+        while not stop.is_set():
+            server.asyncore.loop(timeout=0.05, map=server._map, count=1)
+        server.task_dispatcher.shutdown()
+        server.asyncore.close_all(server._map)  # the listening socket, the wake-up trigger, open channels
+
+    loop = threading.Thread(target=serve, name="waitress-loop", daemon=True)
+    loop.start()
     try:
         workers = [threading.Thread(target=worker, args=(server.effective_port, n)) for n in range(count)]
         for w in workers:
@@ -179,4 +190,5 @@ def threads_against_server(app, worker, count: int, *, timeout: float = 300) -> 
         for w in workers:
             w.join(timeout=timeout)
     finally:
-        server.close()
+        stop.set()
+        loop.join(timeout=30)
