@@ -27,6 +27,7 @@ __all__ = [
     "RUN_STATES",
     "CONTAINER_STATES",
     "MOVEMENT_KINDS",
+    "HOLDING_CHANGE_KINDS",
     "FINDING_LEVELS",
     "ELEMENT_SYMBOLS",
     "TRACKED_ELEMENTS",
@@ -60,6 +61,24 @@ CONTAINER_STATES = ("open", "full", "pickup_requested", "collected")
 # How a stock leaves the inventory other than by a run's draw: into a waste container, to another
 # lab of the site (a new stock there), or out of the site (sent to a collaborator, returned).
 MOVEMENT_KINDS = ("dispose", "transfer", "ship")
+
+# Why a stock's or mixture's element content changed: one row per element of each change, signed
+# (+ into the inventory, − out of it), so that the element on hand at any moment is a sum.
+# Pairs inside the site net to zero: prepared / used_for_mixture, transferred_in / transferred_out.
+HOLDING_CHANGE_KINDS = (
+    "received",          # a stock or ready-made solution entered the inventory (+)
+    "carried_over",      # what a holding held when its changes began to be recorded (+)
+    "product",           # a run's product put into the inventory (+)
+    "prepared",          # a mixture prepared from stocks: what it drew (+)
+    "used_for_mixture",  # drawn from a stock or mixture to prepare a mixture (−)
+    "drawn_by_run",      # drawn by a run (−)
+    "disposed",          # disposed of into a waste container (−)
+    "shipped",           # shipped out of the site (−)
+    "transferred_out",   # moved to another lab of the site (−)
+    "transferred_in",    # arrived from another lab of the site (+)
+    "corrected",         # the content recomputed after a corrected amount, purity, density or volume (±)
+    "retired",           # the holding retired with what it still held (−)
+)
 
 # Levels of a rule finding, in rising severity (rule packs and review decisions).
 FINDING_LEVELS = ("note", "caution", "review", "block")

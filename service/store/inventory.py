@@ -26,6 +26,7 @@ from service.chem.substances import SubstanceCatalogue
 from service.chem.units import kind_of, parse_quantity, to_decimal
 from service.errors import Conflict, InvalidInput, NotFound
 from service.schemas import MixtureIn, MixturePatch, StockIn, StockPatch
+from service.store import holdings
 from service.store.paging import Page, paginate
 from service.store.models import (
     Lab,
@@ -172,6 +173,8 @@ def retire(session: Session, record: T) -> T:
     if record.retired_at is not None:
         raise Conflict(f"{_ENTITY[type(record)]} {record.id} is already retired")
     record.retired_at = utcnow()
+    if isinstance(record, (Stock, Mixture)):  # what it still holds leaves the inventory with it
+        holdings.record(record, "retired", holdings.content_of(record), sign=-1, session=session)
     session.flush()
     return record
 
@@ -263,9 +266,11 @@ def stock_elements(stock: Stock, amount: Optional[str] = None) -> list[StockElem
     return [StockElement(element=s, mass_ug=ug) for s, ug in sorted(masses.items())]
 
 
-def create_stock(session: Session, body: StockIn, *, elements: Optional[dict[str, int]] = None) -> Stock:
+def create_stock(session: Session, body: StockIn, *, elements: Optional[dict[str, int]] = None,
+                 change: str = "received") -> Stock:
     """A new stock; its element rows computed from the formula, or ``elements`` ({symbol: µg}) as given
-    (what left another stock, so that a transfer neither creates nor destroys metal by rounding)."""
+    (what left another stock, so that a transfer neither creates nor destroys metal by rounding).
+    Its content is recorded as a holding change of kind ``change`` (received, or transferred_in)."""
     values = body.model_dump()
     _check_unique(session, Stock, values)
     _check_refs(session, values)
@@ -276,6 +281,7 @@ def create_stock(session: Session, body: StockIn, *, elements: Optional[dict[str
     stock.elements = (stock_elements(stock) if elements is None
                       else [StockElement(element=e, mass_ug=ug) for e, ug in sorted(elements.items())])
     session.add(stock)
+    holdings.record(stock, change, holdings.content_of(stock), sign=1, session=session)
     session.flush()
     return stock
 
@@ -310,6 +316,7 @@ def create_product_stock(session: Session, *, label: str, amount: str, location_
     stock.substance = substance
     stock.elements = [StockElement(element=s, mass_ug=ug) for s, ug in sorted(masses_ug.items())]
     session.add(stock)
+    holdings.record(stock, "product", masses_ug, sign=1, session=session, run=session.get(Run, run_id))
     session.flush()
     return stock
 
@@ -327,7 +334,9 @@ def update_stock(session: Session, stock: Stock, patch: StockPatch) -> Stock:
     for key, value in values.items():
         setattr(stock, key, value)
     if recompute and not is_product(stock):  # a product's content is what its run recorded
+        before = holdings.content_of(stock)
         stock.elements = stock_elements(stock)
+        holdings.record_difference(stock, before)
     session.flush()
     return stock
 
@@ -342,7 +351,7 @@ def source_element_masses(stock: Optional[Stock], mixture: Optional[Mixture], am
     return draw_of(stock if stock is not None else mixture, amount_text, field).element_mass_ug
 
 
-def draw_from(source: Stock | Mixture, amount: str, field: str) -> dict[str, int]:
+def draw_from(source: Stock | Mixture, amount: str, field: str, *, change: str, **links) -> dict[str, int]:
     """Take ``amount`` out of a stock or mixture (loaded with its row lock); the element masses (µg) taken.
 
     :func:`draw_of` then :func:`take`: refused (Conflict naming ``field``) beyond what the source holds;
@@ -352,7 +361,7 @@ def draw_from(source: Stock | Mixture, amount: str, field: str) -> dict[str, int
     draw = draw_of(source, amount, field)
     if draw.micro <= 0:
         raise InvalidInput(field, "must be above zero", amount)
-    take(source, draw, field, amount)
+    take(source, draw, field, amount, change=change, **links)
     return dict(draw.element_mass_ug)
 
 
@@ -384,7 +393,8 @@ def _volume_ul(volume: str) -> int:
     return int(to_decimal(quantity, "uL").to_integral_value())
 
 
-def _drawn_component(session: Session, comp, field: str, lab_id: int, substance: Substance) -> tuple[dict, dict[str, int]]:
+def _drawn_component(session: Session, comp, field: str, lab_id: int, substance: Substance,
+                     mixture: Mixture) -> tuple[dict, dict[str, int]]:
     """Take a prepared mixture's component out of its source; (the component's provenance columns, µg taken).
 
     The source is a stock or mixture of the mixture's own lab (another lab's answers as a missing id)
@@ -401,7 +411,7 @@ def _drawn_component(session: Session, comp, field: str, lab_id: int, substance:
         if substance.id not in {c.substance_id for c in source.components}:
             raise InvalidInput(f"{field}.substance_id", f"mixture {source.label} has no component {substance.name}",
                                substance.id)
-    taken = draw_from(source, comp.amount, f"{field}.amount")
+    taken = draw_from(source, comp.amount, f"{field}.amount", change="used_for_mixture", into_mixture=mixture)
     return {"source_stock_id": comp.source_stock_id, "source_mixture_id": comp.source_mixture_id,
             "amount_text": comp.amount, "element_mass_ug": taken}, taken
 
@@ -429,7 +439,7 @@ def create_mixture(session: Session, body: MixtureIn) -> Mixture:
                                "a mixture received ready-made is marked received_as_solution")
         provenance = {}
         if has_source:
-            provenance, taken = _drawn_component(session, comp, field, body.lab_id, substance)
+            provenance, taken = _drawn_component(session, comp, field, body.lab_id, substance, mixture)
             drawn.append(taken)
         mixture.components.append(
             MixtureComponent(
@@ -447,6 +457,8 @@ def create_mixture(session: Session, body: MixtureIn) -> Mixture:
     else:
         mixture.elements = [MixtureElement(element=s, mass_ug=ug) for s, ug in sorted(total_ug(drawn).items())]
     session.add(mixture)
+    holdings.record(mixture, "received" if body.received_as_solution else "prepared", holdings.content_of(mixture),
+                    sign=1, session=session)
     session.flush()
     return mixture
 
@@ -464,7 +476,9 @@ def update_mixture(session: Session, mixture: Mixture, patch: MixturePatch) -> M
     for key, value in values.items():
         setattr(mixture, key, value)
     if recompute:
+        before = holdings.content_of(mixture)
         mixture.elements = mixture_elements(mixture)
+        holdings.record_difference(mixture, before)
     session.flush()
     return mixture
 
@@ -529,9 +543,12 @@ def _format(micro: int, kind: str) -> str:
     return f"{value.normalize():f} {'mg' if kind == 'mass' else 'mL'}"
 
 
-def take(source: Union[Stock, Mixture], draw: Draw, field: str, amount: str) -> None:
+def take(source: Union[Stock, Mixture], draw: Draw, field: str, amount: str, *, change: str,
+         **links) -> list:
     """Take ``draw`` out of ``source`` (locked by the caller): its amount and each element row drop by
-    exactly what the draw takes. A draw beyond what the source holds is refused (Conflict naming ``field``)."""
+    exactly what the draw takes, recorded as holding changes of kind ``change`` (linked to ``links``:
+    run, movement or into_mixture), which are returned. A draw beyond what the source holds is
+    refused (Conflict naming ``field``)."""
     kind, held = held_of(source)
     if draw.micro > held:
         shown = "mg" if kind == "mass" else "mL"
@@ -549,6 +566,7 @@ def take(source: Union[Stock, Mixture], draw: Draw, field: str, amount: str) -> 
     else:
         source.volume_ul = held - draw.micro
         source.volume_text = _format(source.volume_ul, kind)
+    return holdings.record(source, change, draw.element_mass_ug, sign=-1, **links)
 
 
 # --- catalogue ----------------------------------------------------------------

@@ -420,6 +420,7 @@ class RunOutput(Base):
     element_mass_ug: Mapped[dict[str, Any]] = mapped_column(default=dict)
     relative_uncertainty: Mapped[Optional[float]] = mapped_column(Float)
     basis: Mapped[dict[str, Any]] = mapped_column(default=dict)  # assay or estimate inputs, as entered
+    at: Mapped[dt.datetime] = mapped_column(default=utcnow, index=True)  # when it was recorded
 
 
 class RunLoss(Base):
@@ -428,6 +429,7 @@ class RunLoss(Base):
     run_id: Mapped[int] = mapped_column(ForeignKey("runs.id"), index=True)
     description: Mapped[str] = mapped_column(Text)
     element_mass_ug: Mapped[dict[str, Any]] = mapped_column(default=dict)
+    at: Mapped[dt.datetime] = mapped_column(default=utcnow, index=True)  # when it was recorded
 
 
 class WasteContainer(_Lifecycle, Base):
@@ -547,6 +549,37 @@ class StockMovement(Base):
     note: Mapped[Optional[str]] = mapped_column(Text)
     actor_id: Mapped[Optional[int]] = mapped_column(ForeignKey("users.id"))
     at: Mapped[dt.datetime] = mapped_column(default=utcnow, index=True)
+
+
+# --- the element content of the inventory, change by change -------------------------
+
+class HoldingChange(Base):
+    """One element's change in one stock or mixture, signed (+ into the inventory, − out of it).
+
+    Written in the transaction of the change itself (receipt, draw, preparation, movement, correction,
+    retirement), so that the element on hand at any moment is the sum of the rows before it; the site
+    element ledger's opening and closing figures are such sums. Append-only.
+    """
+
+    __tablename__ = "holding_changes"
+    __table_args__ = (_one_of("element", vocab.ELEMENT_SYMBOLS), _one_of("kind", vocab.HOLDING_CHANGE_KINDS))
+    id: Mapped[int] = mapped_column(primary_key=True)
+    at: Mapped[dt.datetime] = mapped_column(default=utcnow, index=True)
+    element: Mapped[str] = mapped_column(String(3), index=True)
+    mass_ug: Mapped[int] = mapped_column(BigInteger)  # signed
+    kind: Mapped[str] = mapped_column(String(20), index=True)  # vocab.HOLDING_CHANGE_KINDS
+    lab_id: Mapped[int] = mapped_column(ForeignKey("labs.id"), index=True)
+    stock_id: Mapped[Optional[int]] = mapped_column(ForeignKey("stocks.id"), index=True)
+    mixture_id: Mapped[Optional[int]] = mapped_column(ForeignKey("mixtures.id"), index=True)
+    run_id: Mapped[Optional[int]] = mapped_column(ForeignKey("runs.id"), index=True)
+    movement_id: Mapped[Optional[int]] = mapped_column(ForeignKey("stock_movements.id"))
+    into_mixture_id: Mapped[Optional[int]] = mapped_column(ForeignKey("mixtures.id"))
+    # Set as objects by the store, so that a change recorded before its records have ids links at the flush.
+    stock: Mapped[Optional[Stock]] = relationship(foreign_keys=[stock_id], lazy="raise")
+    mixture: Mapped[Optional[Mixture]] = relationship(foreign_keys=[mixture_id], lazy="raise")
+    run: Mapped[Optional["Run"]] = relationship(foreign_keys=[run_id], lazy="raise")
+    movement: Mapped[Optional["StockMovement"]] = relationship(foreign_keys=[movement_id], lazy="raise")
+    into_mixture: Mapped[Optional[Mixture]] = relationship(foreign_keys=[into_mixture_id], lazy="raise")
 
 
 # --- retried requests -------------------------------------------------------------

@@ -37,9 +37,9 @@ def _lock(session: Session, stock_id: int) -> Stock:
     return stock
 
 
-def _take(stock: Stock, amount: Optional[str]) -> runs.Taken:
+def _take(stock: Stock, amount: Optional[str], change: str) -> runs.Taken:
     try:
-        return runs.take(stock, amount, "amount")
+        return runs.take(stock, amount, "amount", change=change)
     except runs.BeyondHeld as exc:
         raise InvalidInput("amount", str(exc), amount) from None
 
@@ -50,6 +50,8 @@ def _record(session: Session, stock: Stock, kind: str, taken: runs.Taken, actor_
                              quantity_micro=taken.quantity_micro, element_mass_ug=dict(taken.element_mass_ug),
                              actor_id=actor_id, at=utcnow(), **links)
     session.add(movement)
+    for change in taken.changes:
+        change.movement = movement
     session.flush()
     return movement
 
@@ -95,7 +97,7 @@ def dispose(session: Session, stock_id: int, body: DisposeIn, actor_id: Optional
     if state != container.form:
         raise InvalidInput("container_id", f"{container.label} holds {container.form}s and {stock.label} is a "
                                            f"{state}: choose a container for {state}s")
-    taken = _take(stock, body.amount)
+    taken = _take(stock, body.amount, "disposed")
     entry_body = EntryIn.model_validate({
         "description": body.description, **_entry_amount(stock, container, taken),
         "elements": [{"element": e, "mass": f"{ug} ug"} for e, ug in taken.element_mass_ug.items() if ug],
@@ -119,19 +121,19 @@ def transfer(session: Session, stock_id: int, body: TransferIn, actor_id: Option
     if lab.id == stock.lab_id:
         raise InvalidInput("lab_id", f"{stock.label} is already in lab {lab.code}; a transfer goes to another lab",
                            body.lab_id)
-    taken = _take(stock, body.amount)
+    taken = _take(stock, body.amount, "transferred_out")
     unit = "mg" if stock.quantity_kind == "mass" else "mL"
     new_body = StockIn(label=body.label, substance_id=stock.substance_id, lab_id=lab.id, location_id=body.location_id,
                        amount=f"{Decimal(taken.quantity_micro) / 1000:f} {unit}", purity_percent=stock.purity_percent,
                        density_g_per_ml=stock.density_g_per_ml, opened_on=stock.opened_on, expires_on=stock.expires_on)
-    received = inventory.create_stock(session, new_body, elements=taken.element_mass_ug)
+    received = inventory.create_stock(session, new_body, elements=taken.element_mass_ug, change="transferred_in")
     return _record(session, stock, "transfer", taken, actor_id, to_stock_id=received.id)
 
 
 def ship(session: Session, stock_id: int, body: ShipIn, actor_id: Optional[int]) -> StockMovement:
     """Send an amount of a stock (default: all of it) out of the site."""
     stock = _lock(session, stock_id)
-    taken = _take(stock, body.amount)
+    taken = _take(stock, body.amount, "shipped")
     return _record(session, stock, "ship", taken, actor_id, destination=body.destination, note=body.note)
 
 

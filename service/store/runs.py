@@ -45,13 +45,14 @@ class Taken:
     amount_text: str
     quantity_micro: int
     element_mass_ug: dict[str, int]
+    changes: tuple = ()  # the holding changes that record it (service.store.holdings)
 
 
 class BeyondHeld(Conflict):
     """A draw asks for more than the source holds (``field`` names the amount)."""
 
 
-def take(source: Stock | Mixture, amount: Optional[str], field: str) -> Taken:
+def take(source: Stock | Mixture, amount: Optional[str], field: str, *, change: str, **links) -> Taken:
     """Take ``amount`` (None: all it holds) from a stock or mixture the caller has locked.
 
     The one draw of the service: runs, disposals, transfers and shipments all take through it, and
@@ -72,17 +73,17 @@ def take(source: Stock | Mixture, amount: Optional[str], field: str) -> Taken:
     if draw.micro > held:
         raise BeyondHeld(f"{source.label} holds {held / 1000:g} {shown}; the draw asks for "
                          f"{draw.micro / 1000:g} {shown}", field, amount)
-    inventory.take(source, draw, field, amount)
-    return Taken(_format(Decimal(draw.micro) / 1000, shown), draw.micro, draw.element_mass_ug)
+    changes = inventory.take(source, draw, field, amount, change=change, **links)
+    return Taken(_format(Decimal(draw.micro) / 1000, shown), draw.micro, draw.element_mass_ug, tuple(changes))
 
 
-def _take(session: Session, body: DrawIn, lab_id: int, field: str) -> RunDraw:
+def _take(session: Session, body: DrawIn, run: Run, field: str) -> RunDraw:
     """Take the draw out of the stock or mixture (locked); refuse a draw larger than it holds."""
     model, kind = (Stock, "stock") if body.stock_id else (Mixture, "mixture")
     # Lock only the stock's own row: PostgreSQL refuses FOR UPDATE on the outer-joined substance.
     source = inventory.reference(session, model, body.stock_id or body.mixture_id, f"{field}.{kind}_id",
-                                 lab_id=lab_id, lock=True)
-    taken = take(source, body.amount, f"{field}.amount")
+                                 lab_id=run.lab_id, lock=True)
+    taken = take(source, body.amount, f"{field}.amount", change="drawn_by_run", run=run)
     return RunDraw(stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount,
                    element_mass_ug=taken.element_mass_ug)
 
@@ -105,7 +106,7 @@ def start_run(session: Session, body: RunIn, actor: User, rules: LayeredRules) -
     run = Run(procedure_id=proc.id, lab_id=proc.lab_id, researcher_id=actor.id, scale=body.scale, note=body.note,
               state="open", started_at=utcnow())
     draws = body.draws if body.draws is not None else _planned(proc, body.scale)
-    run.draws = [_take(session, d, proc.lab_id, f"draws[{i}]") for i, d in enumerate(draws)]
+    run.draws = [_take(session, d, run, f"draws[{i}]") for i, d in enumerate(draws)]
     session.add(run)
     session.flush()
     return run
