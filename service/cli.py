@@ -316,6 +316,8 @@ def _report_frame(name: str, by: str | None, since, until, element: str | None):
     from service.store import ledger
     from service.store.db import session_scope
 
+    if name == "elements":
+        return _element_ledger_frame(by, since, until, element)
     keys = [part.strip() for part in by.split(",") if part.strip()] if by else None
     filters = {"element": element}
     if name == "waste":
@@ -331,12 +333,33 @@ def _report_frame(name: str, by: str | None, since, until, element: str | None):
         return ledger.run_report(session, name, keys, **filters)
 
 
+def _element_ledger_frame(by: str | None, since, until, element: str | None):
+    """The site element ledger of the months of ``since``..``until`` (µg columns)."""
+    from service import vocab
+    from service.present.element_ledger import ledger_frame
+    from service.store import element_ledger
+    from service.store.db import session_scope
+
+    if by:
+        raise click.UsageError("--by does not apply to the element ledger (one row per element and month)")
+    if element is not None and element not in vocab.ELEMENT_SYMBOLS:
+        raise click.BadParameter(f"{element!r} is not an element symbol", param_hint="--element")
+    app = _app()
+    with session_scope(_sessions(app), write=False) as session:
+        lines = element_ledger.ledger_lines(
+            session, since=since.strftime("%Y-%m") if since else None, until=until.strftime("%Y-%m") if until else None,
+            element=element, tolerance=app.config["BALANCE_TOLERANCE"])
+    return ledger_frame(lines)
+
+
 _REPORT_OPTIONS = (
-    click.argument("name", type=click.Choice(["waste", "inventory"])),
+    click.argument("name", type=click.Choice(["waste", "inventory", "elements"])),
     click.option("--by", help="Comma-separated group keys (waste: element,stream,lab,container,month; "
                               "inventory: element,location,lab)."),
-    click.option("--since", type=click.DateTime(["%Y-%m-%d"]), help="Waste from this day (UTC), inclusive."),
-    click.option("--until", type=click.DateTime(["%Y-%m-%d"]), help="Waste up to this day (UTC), inclusive."),
+    click.option("--since", type=click.DateTime(["%Y-%m-%d"]),
+                 help="Waste from this day (UTC), inclusive; elements: from this day's month."),
+    click.option("--until", type=click.DateTime(["%Y-%m-%d"]),
+                 help="Waste up to this day (UTC), inclusive; elements: to this day's month."),
     click.option("--element", help="Only this element (e.g. Cd)."),
 )
 
@@ -350,10 +373,17 @@ def _report_options(command):
 @main.command()
 @_report_options
 def report(name: str, by: str | None, since, until, element: str | None) -> None:
-    """Print a ledger report (masses in mg): waste leaving, or inventory on hand."""
-    from service.store.ledger import CAUTION
+    """Print a ledger report (masses in mg): waste leaving, inventory on hand, or the site element ledger."""
+    from service.present import element_ledger
+    from service.store import ledger
 
-    frame = _report_frame(name, by, since, until, element).drop(columns="mass_ug")
+    frame = _report_frame(name, by, since, until, element)
+    if name == "elements":
+        _echo_element_ledger(frame)
+        click.echo(f"\n{element_ledger.CAUTION}")
+        return
+    CAUTION = ledger.CAUTION
+    frame = frame.drop(columns="mass_ug")
     if frame.empty:
         click.echo("no records match")
     else:
@@ -361,18 +391,39 @@ def report(name: str, by: str | None, since, until, element: str | None) -> None
     click.echo(f"\n{CAUTION}")
 
 
+def _echo_element_ledger(frame) -> None:
+    """The ledger as a table in mg (exact: three decimals of whole µg), one block per element."""
+    if frame.empty:
+        click.echo("no records in these months")
+        return
+    shown = frame.drop(columns=["difference_ug", "tolerance_percent"]).copy()
+    masses = [c for c in shown.columns if c.endswith("_ug")]
+    for column in masses:
+        shown[column] = shown[column].map(lambda ug: f"{ug / 1000:,.3f}")
+    shown = shown.rename(columns={c: c.removesuffix("_ug") + " (mg)" for c in masses})
+    shown["closes"] = frame.apply(lambda row: "yes" if row["closes"] else
+                                  ("NO: records disagree by %d µg" % row["difference_ug"] if row["difference_ug"]
+                                   else f"no: unaccounted beyond {row['tolerance_percent']:g} % of drawn"), axis=1)
+    for element, block in shown.groupby("element", sort=True):
+        click.echo(f"\n{element}")
+        click.echo(block.drop(columns="element").to_string(index=False))
+
+
 @main.command()
 @_report_options
 @click.option("--format", "fmt", type=click.Choice(["csv", "xlsx"]), default="csv", show_default=True)
 @click.option("--output", required=True, type=click.Path(dir_okay=False, path_type=Path), help="File to write.")
 def export(name: str, by: str | None, since, until, element: str | None, fmt: str, output: Path) -> None:
-    """Write a ledger report to a CSV or XLSX file (masses in µg and mg)."""
+    """Write a ledger report to a CSV or XLSX file (masses in µg and mg; the element ledger in µg)."""
+    from service.present import element_ledger
     from service.store.ledger import CAUTION, to_csv_bytes, to_xlsx_bytes
 
+    caution = element_ledger.CAUTION if name == "elements" else CAUTION
     frame = _report_frame(name, by, since, until, element)
-    output.write_bytes(to_csv_bytes(frame) if fmt == "csv" else to_xlsx_bytes(frame, sheet=name))
+    output.write_bytes(to_csv_bytes(frame, caution=caution) if fmt == "csv"
+                       else to_xlsx_bytes(frame, caution=caution, sheet=name))
     click.echo(f"wrote {len(frame)} row(s) of the {name} report to {output}")
-    click.echo(CAUTION)
+    click.echo(caution)
 
 
 @main.command()

@@ -64,6 +64,9 @@ MATRIX: dict[str, frozenset[str]] = {
     # ledger reports (waste leaving, inventory on hand): read-only, everyone; researchers lab-scoped
     "api.report_waste": EVERYONE,
     "api.report_inventory": EVERYONE,
+    # the site element ledger is site-wide: not for lab-scoped roles
+    "api.report_elements": frozenset({"safety_officer", "lab_manager", "auditor", "admin"}),
+    "api.report_element_figure": frozenset({"safety_officer", "lab_manager", "auditor", "admin"}),
     # runs: researchers record their batches
     "api.list_runs": EVERYONE,
     "api.read_runs": EVERYONE,

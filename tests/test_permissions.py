@@ -63,6 +63,9 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
         "web.waste", "web.container", "web.run",
     ]),
     "reports (waste leaving, inventory on hand)": (SIGNED_IN, ["api.report_waste", "api.report_inventory"]),
+    # The site element ledger is site-wide: every role but the lab-scoped researcher.
+    "site element ledger": (frozenset({OFFICER, MANAGER, AUDITOR, ADMIN}),
+                            ["api.report_elements", "api.report_element_figure"]),
     "estimate from absorbance (a calculation, nothing stored)": (SIGNED_IN, ["api.create_estimate"]),
     "review queue (who decides, and who oversees)": (frozenset({OFFICER, AUDITOR, ADMIN}),
                                                      ["api.review_queue", "web.review"]),

@@ -2,24 +2,31 @@
 
 ``GET /api/v1/reports/waste?by=element,stream,month&since=2026-01-01&until=2026-03-31&element=Cd&format=csv``
 ``GET /api/v1/reports/inventory?by=element,location&format=xlsx``
+``GET /api/v1/reports/elements?since=2026-01&until=2026-12&element=Cd&format=csv`` (the site element ledger)
+``GET /api/v1/reports/elements/contributions?element=Cd&month=2026-03&figure=into_waste`` (the records
+behind one of its figures)
 
-Researchers see their own labs' figures; every other role sees the whole site.
+Researchers see their own labs' figures of the waste and inventory reports; the site element ledger is
+site-wide and read by the other roles.
 """
 
 from __future__ import annotations
 
 import datetime as dt
-from typing import ClassVar, Literal, Optional
+from typing import Annotated, ClassVar, Literal, Optional
 
 from flask import Response, jsonify, request
-from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+from pydantic import BaseModel, ConfigDict, Field, StringConstraints, field_validator, model_validator
 
 from service.api import bp
-from service.api.responses import Report
+from service.api.responses import ElementLedger, LedgerFigure, Report
 from service.auth import lab_scope
 from service.operations import operation
+from service.balance.site import FIGURES
+from service.present.element_ledger import dump_figure, dump_ledger, ledger_frame
+from service.present.runs import balance_tolerance
 from service.schemas import ElementSymbol
-from service.store import ledger
+from service.store import element_ledger, ledger
 from service.store.db import end_session, get_session
 
 XLSX = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
@@ -107,3 +114,51 @@ def report_inventory():
     frame = ledger.run_report(get_session(), "inventory", query.by, lab_ids=lab_scope(), **query.filters())
     end_session()  # the frame is plain data: serialise it with no transaction open
     return render(frame, query)
+
+
+Month = Annotated[str, StringConstraints(pattern=r"^[0-9]{4}-(0[1-9]|1[0-2])$", max_length=7)]
+
+
+class ElementLedgerQuery(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+    report: ClassVar[str] = "elements"
+    since: Optional[Month] = None  # 'YYYY-MM'; default: the site's first month of records
+    until: Optional[Month] = None  # 'YYYY-MM'; default: the present month
+    element: Optional[ElementSymbol] = None
+    format: Literal["json", "csv", "xlsx"] = "json"
+
+    @model_validator(mode="after")
+    def _order(self):
+        if self.since and self.until and self.since > self.until:
+            raise ValueError(f"since ({self.since}) is after until ({self.until})")
+        return self
+
+
+class LedgerFigureQuery(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+    element: ElementSymbol
+    month: Month
+    figure: Literal[FIGURES]  # type: ignore[valid-type]
+
+
+@bp.get("/reports/elements", endpoint="report_elements")
+@operation(query=ElementLedgerQuery, response=ElementLedger, media=MEDIA)
+def report_elements():
+    """The site element ledger per element and month: opening, received, into products, into waste,
+    shipped out, declared losses, corrections, closing and the unaccounted remainder (µg)."""
+    query = ElementLedgerQuery.model_validate(request.args.to_dict())
+    lines = element_ledger.ledger_lines(get_session(), since=query.since, until=query.until, element=query.element,
+                                        tolerance=balance_tolerance())
+    end_session()
+    if query.format == "json":
+        return jsonify(dump_ledger(lines))
+    return render(ledger_frame(lines), query)
+
+
+@bp.get("/reports/elements/contributions", endpoint="report_element_figure")
+@operation(query=LedgerFigureQuery, response=LedgerFigure)
+def report_element_figure():
+    """The records behind one figure of the site element ledger, each with its part (µg)."""
+    query = LedgerFigureQuery.model_validate(request.args.to_dict())
+    parts = element_ledger.contributions(get_session(), query.element, query.month, query.figure)
+    return jsonify(dump_figure(query.element, query.month, query.figure, parts))

@@ -295,3 +295,28 @@ class Report(_Answer):
     count: int
     units: dict[str, Any]
     caution: str
+
+
+class ElementLedger(_Answer):
+    """The site element ledger: one row per element and month (masses in µg; CSV and XLSX carry the same rows)."""
+
+    report: str
+    figures: list[str]
+    rows: list[dict[str, Any]]
+    count: int
+    closes: bool
+    units: dict[str, Any]
+    caution: str
+
+
+class LedgerFigure(_Answer):
+    """The records behind one figure of the site element ledger; their ``mass_ug`` add up to ``mass_ug``."""
+
+    element: str
+    month: str
+    figure: str
+    mass_ug: int
+    contributions: list[dict[str, Any]]
+    count: int
+    units: dict[str, Any]
+    caution: str
