@@ -7,7 +7,7 @@ from decimal import Decimal
 from typing import Optional
 
 from sqlalchemy import select
-from sqlalchemy.orm import Session
+from sqlalchemy.orm import Session, object_session
 
 from service.errors import Blocked, Conflict, InvalidInput, NotFound
 from service.rules import LayeredRules, evaluate
@@ -113,6 +113,11 @@ def start_run(session: Session, body: RunIn, actor: User, rules: LayeredRules) -
 
 
 def _open(run: Run) -> None:
+    """Lock the run's row (re-read) for the rest of the transaction and refuse a closed run: a run's
+    outputs, losses, waste entries by share and its closing then never race one another."""
+    session = object_session(run)
+    session.scalar(select(Run).where(Run.id == run.id).with_for_update(of=Run)
+                   .execution_options(populate_existing=True))
     if run.state != "open":
         raise Conflict(f"run {run.id} is closed")
 
