@@ -94,6 +94,8 @@ MATRIX: dict[str, frozenset[str]] = {
     "api.mark_full_waste_container": frozenset({"researcher", "lab_manager", "safety_officer", "admin"}),
     "api.request_pickup_waste_container": frozenset({"lab_manager", "safety_officer", "admin"}),
     "api.collect_waste_container": frozenset({"safety_officer", "admin"}),
+    # the waste determination (confirmed codes) is the safety officer's; the admin may record one
+    "api.determine_waste_container": frozenset({"safety_officer", "admin"}),
     # printed documents (risk assessment, waste manifest): read-only, everyone; researchers lab-scoped
     "documents.procedure_assessment_pdf": EVERYONE,
     "documents.procedure_assessment_html": EVERYONE,

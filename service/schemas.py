@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import datetime as dt
+import re
 import unicodedata
 from decimal import Decimal
 from functools import lru_cache
@@ -67,6 +68,9 @@ __all__ = [
     "EntryComponentIn",
     "EntryIn",
     "ReverseIn",
+    "DeterminedCodeIn",
+    "DeterminationIn",
+    "ManifestQuery",
     "RunIn",
     "OutputIn",
     "LossIn",
@@ -599,6 +603,43 @@ class ReverseIn(_Body):
     reason: Text = Field(min_length=3, max_length=2000)
 
 
+_CODE_FORMATS = {system: re.compile(pattern) for system, pattern in vocab.WASTE_CODE_FORMATS.items()}
+_CODE_EXAMPLES = {"RCRA": "D006, F003, P001, U044", "EU-LoW": '"16 05 06*", "07 07 04*"'}
+
+
+class DeterminedCodeIn(_Body):
+    """One waste code of a determination, in the form of its system (``vocab.WASTE_CODE_FORMATS``)."""
+
+    system: Literal[vocab.WASTE_CODE_SYSTEMS]
+    code: str = Field(min_length=1, max_length=12, description='RCRA "D006"; EU-LoW "16 05 06*"')
+    description: Optional[Label] = Field(default=None, max_length=300)
+
+    @field_validator("code")
+    @classmethod
+    def _code_form(cls, code: str, info) -> str:  # system is declared above, so it is validated first
+        system = info.data.get("system")
+        if system in _CODE_FORMATS and not _CODE_FORMATS[system].fullmatch(code):
+            raise ValueError(f"{code!r} is not a {system} code (e.g. {_CODE_EXAMPLES[system]})")
+        return code
+
+
+class DeterminationIn(_Body):
+    """The safety officer's determination of a container's waste codes (replaces the one before it)."""
+
+    codes: list[DeterminedCodeIn] = Field(min_length=1, max_length=20)
+    comment: Optional[Text] = Field(default=None, max_length=2000)
+
+    @field_validator("codes")
+    @classmethod
+    def _once_each(cls, codes: list[DeterminedCodeIn]) -> list[DeterminedCodeIn]:
+        seen = set()
+        for i, row in enumerate(codes):
+            if (row.system, row.code) in seen:
+                raise ValueError(f"{row.system} {row.code} is given twice (codes.{i})")
+            seen.add((row.system, row.code))
+        return codes
+
+
 class RunIn(_Body):
     procedure_id: Id
     scale: float = Field(default=1.0, gt=0, le=1000)
@@ -650,6 +691,16 @@ OutputIn.model_rebuild()  # resolves the forward reference to EstimateIn
 
 
 # --- query parameters shared by the API, the pages and the command line ----------------------
+
+
+class ManifestQuery(_Query):
+    """What a manifest prints about the shipment; a field left out prints as a blank line to fill by hand."""
+
+    transporter: Optional[Label] = Field(default=None, min_length=1, max_length=200)
+    receiving_facility: Optional[Label] = Field(default=None, min_length=1, max_length=300)
+    container_count: Optional[int] = Field(default=None, ge=1, le=999, description="containers shipped, 1 to 999")
+    container_type: Optional[Label] = Field(default=None, min_length=1, max_length=80,
+                                            description='e.g. "4 L glass bottle" or "20 L HDPE jerrican"')
 
 
 class PreviewQuery(_Query):

@@ -29,6 +29,8 @@ __all__ = [
     "MOVEMENT_KINDS",
     "HOLDING_CHANGE_KINDS",
     "FINDING_LEVELS",
+    "WASTE_CODE_FORMATS",
+    "WASTE_CODE_SYSTEMS",
     "ELEMENT_SYMBOLS",
     "TRACKED_ELEMENTS",
     "BALANCE_ELEMENTS",
@@ -82,6 +84,19 @@ HOLDING_CHANGE_KINDS = (
 
 # Levels of a rule finding, in rising severity (rule packs and review decisions).
 FINDING_LEVELS = ("note", "caution", "review", "block")
+
+# The waste-code systems a safety officer's determination may name, each with the form of its codes:
+# - RCRA (40 CFR part 261): characteristic D001-D043 (261.21-261.24), F001-F039 from non-specific
+#   sources (261.31), K001-K999 from specific sources (261.32), P001-P999 acute and U001-U999 toxic
+#   discarded commercial products (261.33). The letter-and-three-digit form and the D and F ranges are
+#   from memory of the published lists; a code the form admits may still not exist.
+# - EU-LoW (List of Waste, Commission Decision 2000/532/EC as amended by 2014/955/EU): six digits in
+#   three pairs, chapters 01-20, an asterisk marking a hazardous entry ("16 05 06*").
+WASTE_CODE_FORMATS = {
+    "RCRA": r"D0(0[1-9]|[1-3][0-9]|4[0-3])|F0(0[1-9]|[1-3][0-9])|[KPU](00[1-9]|0[1-9][0-9]|[1-9][0-9]{2})",
+    "EU-LoW": r"(0[1-9]|1[0-9]|20) [0-9]{2} [0-9]{2}\*?",
+}
+WASTE_CODE_SYSTEMS = tuple(WASTE_CODE_FORMATS)
 
 # The 118 element symbols in order of atomic number, as the IUPAC Periodic Table of the Elements
 # writes them (Nh, Mc, Ts, Og as named in 2016): exact case, no isotopes (D, T), no neutron ("n").

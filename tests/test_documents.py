@@ -154,20 +154,25 @@ MANIFEST_DATA = {
                   "state": "open", "first_entry_at": None, "full_at": None, "pickup_requested_at": None,
                   "collected_at": None, "concentration_note": "Empty."},
     "stream_title": "Aqueous", "deferral": "Defer.", "caution": "Careful.", "transport_version": "t1",
-    "rule_packs": [], "constituents": [], "elements": [], "suggested_codes": [], "transport": [],
-    "metals_present": [], "hazards": [], "findings": [], "entries": [], "sign_off": ["Safety officer"],
+    "rule_packs": [], "constituents": [], "elements": [], "metals_present": [], "hazards": [], "findings": [],
+    "entries": [], "sign_off": ["Safety officer"],
+    "codes": {"status": "Not confirmed.", "confirmed": [], "by": None, "at": None, "comment": None, "for_review": []},
+    "transport": {"rule": "r", "chosen": None, "not_chosen": []},
+    "shipment": {"transporter": None, "receiving_facility": None, "container_count": None, "container_type": None},
 }
 MANIFEST_BYTES = (
-    b'{"caution":"Careful.","constituents":[],'
+    b'{"caution":"Careful.","codes":{"at":null,"by":null,"comment":null,"confirmed":[],"for_review":[],'
+    b'"status":"Not confirmed."},"constituents":[],'
     b'"container":{"acute_hazardous":false,"capacity":"10 L","collected_at":null,'
     b'"concentration_note":"Empty.","fill_percent":0,'
     b'"filterable_solids_percent":0,"first_entry_at":null,"form":"liquid","full_at":null,"id":1,"label":"W-1",'
     b'"pickup_requested_at":null,"state":"open","stream":"aqueous_heavy_metals","volume_l":0},'
     b'"deferral":"Defer.","document_id":"WM-00001","elements":[],"entries":[],"findings":[],'
     b'"generated_at":"2026-01-02 03:04:05 UTC","hazards":[],"lab":{"code":"C-214","name":"Colloids"},'
-    b'"location":{},"metals_present":[],"page_size":"A4","rule_packs":[],"sign_off":["Safety officer"],'
-    b'"site":"Institut f\xc3\xbcr Nanokristalle","stream_title":"Aqueous","suggested_codes":[],"transport":[],'
-    b'"transport_version":"t1"}'
+    b'"location":{},"metals_present":[],"page_size":"A4","rule_packs":[],'
+    b'"shipment":{"container_count":null,"container_type":null,"receiving_facility":null,"transporter":null},'
+    b'"sign_off":["Safety officer"],"site":"Institut f\xc3\xbcr Nanokristalle","stream_title":"Aqueous",'
+    b'"transport":{"chosen":null,"not_chosen":[],"rule":"r"},"transport_version":"t1"}'
 )
 
 
@@ -240,15 +245,36 @@ def test_cli_print_writes_pdf_and_hash(demo, tmp_path):
     assert missing.exit_code != 0
 
 
-@pytest.mark.parametrize("title, state", [("CsPbBr3 perovskite nanocrystals", "draft"),
-                                          ("CdSe/ZnS core-shell growth", "submitted")])
-def test_an_assessment_not_approved_is_marked_draft_on_every_page(demo, title, state):
+def _decided_procedure(app, api: Api, title: str, action: str) -> int:
+    """A procedure of the demo lab submitted by the admin and sent back or declined by a safety officer."""
+    lab = api.call("GET", "/labs")["items"][0]["id"]
+    place = next(p["id"] for p in api.call("GET", "/locations?limit=100")["items"] if p["lab_id"] == lab)
+    stock = api.call("POST", "/stocks", {"label": f"OA-{action}", "substance_id": api.substance_id("oleic acid"),
+                                         "lab_id": lab, "location_id": place, "amount": "100 mL"}, 201)["id"]
+    ident = api.call("POST", "/procedures", {"lab_id": lab, "title": title, "waste_plan": [],
+                                             "steps": [{"operation": "heat", "temperature_c": 120, "atmosphere": "argon"}],
+                                             "draws": [{"stock_id": stock, "amount": "1 mL"}]}, 201)["id"]
+    api.call("POST", f"/procedures/{ident}/submit", {})
+    officer = api.as_(make_user(app, f"officer-{action}@test.example", "safety_officer"))
+    officer.call("POST", f"/procedures/{ident}/{action}", {"comment": "Not as written."})
+    return ident
+
+
+@pytest.mark.parametrize("title, state, action, line", [
+    ("CsPbBr3 perovskite nanocrystals", "draft", None, "DRAFT — not approved (state: draft)"),
+    ("CdSe/ZnS core-shell growth", "submitted", None,
+     "NOT APPROVED — submitted, awaiting the safety officer (state: submitted)"),
+    ("Sent back for changes", "changes_requested", "request_changes", "NOT APPROVED — changes requested "),
+    ("Declined batch", "declined", "decline", "NOT APPROVED — declined "),
+])
+def test_an_assessment_not_approved_is_marked_on_every_page(demo, title, state, action, line):
     app, api, _ = demo
-    procs, _ = _ids(api)
-    assert api.call("GET", f"/procedures/{procs[title]}")["state"] == state  # the demo scenario's states
-    _, pages = _text(_get(api, f"/procedures/{procs[title]}/assessment.pdf").data)
-    assert f"DRAFT — not approved (state: {state})" in pages[0]
-    assert all("DRAFT" in page for page in pages)  # the running head and the mark across the page
+    ident = _decided_procedure(app, api, title, action) if action else _ids(api)[0][title]
+    assert api.call("GET", f"/procedures/{ident}")["state"] == state  # the demo scenario's states, or made here
+    _, pages = _text(_get(api, f"/procedures/{ident}/assessment.pdf").data)
+    assert line in pages[0] and f"(state: {state})" in pages[0]
+    marker = "DRAFT" if state == "draft" else "NOT APPROVED"
+    assert all(marker in page for page in pages)  # the running head and the mark across the page
     assert "Approved " not in " ".join(pages)
 
 
@@ -279,3 +305,205 @@ def test_steps_and_substances_are_numbered_from_one(demo):
     _, pages = _text(_get(api, f"/procedures/{ident}/assessment.pdf").data)
     first_step = view["steps"][0]["operation"]
     assert re.search(rf"Note 1 {first_step}\b", " ".join(pages)), "the first step row reads 1 <operation>"
+
+
+# --- the manifest: confirmed codes, one transport entry, shipment fields, reversed entries ---------------
+# 49 CFR 172.101 Hazardous Materials Table, column 2 (proper shipping name) and column 3 (hazard class), written
+# out here independently of rules/transport-suggestions.yaml. Status as in the project's reference list:
+# UN1090, UN2570, UN3283 seen; UN1993, UN2929, UN3077, UN3082 from a secondary copy; UN1992, UN1888, UN3440 from
+# memory. A proper shipping name may be used in the singular or plural (172.101(c)(1); secondary copy).
+CFR_172_101 = {
+    "UN 1090": ("Acetone", "3"),
+    "UN 1888": ("Chloroform", "6.1"),
+    "UN 1992": ("Flammable liquids, toxic, n.o.s.", "3"),
+    "UN 1993": ("Flammable liquids, n.o.s.", "3"),
+    "UN 2570": ("Cadmium compounds", "6.1"),
+    "UN 2929": ("Toxic liquids, flammable, organic, n.o.s.", "6.1"),
+    "UN 3077": ("Environmentally hazardous substances, solid, n.o.s.", "9"),
+    "UN 3082": ("Environmentally hazardous substances, liquid, n.o.s.", "9"),
+    "UN 3283": ("Selenium compound, solid, n.o.s.", "6.1"),
+    "UN 3440": ("Selenium compound, liquid, n.o.s.", "6.1"),
+}
+
+
+def _same_name(printed: str, regulation: str) -> bool:
+    """Whether ``printed`` starts with the regulation's proper shipping name, singular or plural, any case."""
+    words, theirs = printed.lower().split(), regulation.lower().split()
+    if len(words) < len(theirs):
+        return False
+    for i, (mine, reg) in enumerate(zip(words, theirs)):
+        if i == len(theirs) - 1:  # the name's last word: what follows it in print is the class, after a comma
+            mine = mine.removesuffix(",")
+        stem, trail = reg.rstrip(","), "," if reg.endswith(",") else ""
+        if mine not in {stem + trail, stem.removesuffix("s") + trail, stem + "s" + trail}:
+            return False
+    return True
+
+
+def test_every_suggested_un_entry_carries_its_49_cfr_172_101_name_and_class(rules_dir):
+    from service.documents.controls import load_transport
+
+    candidates = [c for s in load_transport(str(rules_dir)).streams for c in s.candidates]
+    assert {c.un for c in candidates} <= set(CFR_172_101)
+    for c in candidates:
+        name, hazard_class = CFR_172_101[c.un]
+        assert _same_name(c.description, name), (c.un, c.description, name)
+        assert f", {hazard_class}" in c.description, (c.un, c.description)  # the class follows the name
+
+
+@pytest.mark.parametrize("stream, elements, components, expected", [
+    # hand-chosen cases: a named toxic constituent outranks the generic n.o.s. entry
+    ("non_halogenated_solvent_heavy_metals", {"Cd"}, {"acetone"}, "UN 1992"),
+    ("non_halogenated_solvent_heavy_metals", set(), {"acetone"}, "UN 1090"),
+    ("non_halogenated_solvent_heavy_metals", {"Zn"}, {"hexane"}, "UN 1993"),  # zinc is not in UN 1992's list
+    ("halogenated_solvent_heavy_metals", {"Cd"}, {"chloroform"}, "UN 1888"),
+    ("halogenated_solvent_heavy_metals", {"Cd"}, set(), "UN 2929"),
+    ("aqueous_heavy_metals", {"Se"}, set(), "UN 3440"),
+    ("aqueous_heavy_metals", {"Cd"}, set(), "UN 3082"),
+    ("contaminated_solids", {"Cd", "Se"}, set(), "UN 2570"),
+    ("contaminated_solids", {"Se"}, set(), "UN 3283"),
+    ("contaminated_solids", {"Pb"}, set(), "UN 3077"),
+    ("sharps", {"Cd"}, set(), None),
+])
+def test_one_transport_entry_is_chosen_and_the_others_say_why_not(rules_dir, stream, elements, components, expected):
+    from service.documents.controls import load_transport, transport_choice
+
+    transport = load_transport(str(rules_dir))
+    choice = transport_choice(transport, stream, elements, components)
+    assert (choice["chosen"] or {}).get("un") == expected
+    entry = next(s for s in transport.streams if s.stream == stream)
+    assert len(choice["not_chosen"]) == len(entry.candidates) - (expected is not None)
+    for other in choice["not_chosen"]:
+        assert other["why_not"].startswith(("its conditions are not met", f"its conditions are met, but {expected}"))
+
+
+def test_two_candidates_of_one_priority_are_refused_at_load(tmp_path, rules_dir):
+    from service.datafiles import DataFileError
+    from service.documents.controls import load_transport
+
+    text = (rules_dir / "transport-suggestions.yaml").read_text(encoding="utf-8")
+    (tmp_path / "transport-suggestions.yaml").write_text(text.replace("priority: 20", "priority: 30", 1), encoding="utf-8")
+    with pytest.raises(DataFileError, match="share a priority"):
+        load_transport(str(tmp_path))
+
+
+def _manifest_text(api: Api, ident: int, query: str = "") -> str:
+    return " ".join(_text(_get(api, f"/waste_containers/{ident}/manifest.pdf{query}").data)[1])
+
+
+def test_manifest_prints_confirmed_codes_as_confirmed_and_the_rest_for_review(demo):
+    app, api, _ = demo
+    _, containers = _ids(api)
+    container = containers["NG-W01"]  # acetone washes carrying Cd (demo)
+    before = _manifest_text(api, container["id"])
+    assert "NOT CONFIRMED — no determination recorded" in before
+    assert "D006 suggested" in before and "D006 confirmed" not in before
+    officer = api.as_(make_user(app, "officer-codes@test.example", "safety_officer"))
+    body = {"codes": [{"system": "RCRA", "code": "D006", "description": "toxicity characteristic, cadmium"}],
+            "comment": "TC cadmium confirmed from the entries."}
+    determination = officer.call("POST", f"/waste_containers/{container['id']}/determination", body, 201)["determination"]
+    text = _manifest_text(api, container["id"])
+    who, when = determination["by"]["name"], determination["at"][:16].replace("T", " ")
+    assert f"Confirmed by {who} on {when} UTC" in text
+    assert "D006 confirmed" in text and "D006 suggested" not in text  # 40 CFR 261.24 Table 1, cadmium
+    assert "TC cadmium confirmed from the entries." in text
+    suggested = {f["suggested_code"]["code"] for f in container["findings"] if f.get("suggested_code")} - {"D006"}
+    assert suggested  # the demo container also has D001 / F003 suggestions (acetone)
+    assert all(f"{code} suggested" in text for code in suggested)
+    assert "suggested, for review" in text.lower()
+
+
+def test_manifest_suggests_one_un_entry_with_its_reason(demo):
+    app, api, _ = demo
+    _, containers = _ids(api)
+    text = _manifest_text(api, containers["NG-W01"]["id"])
+    transport = text.split("4. Transport description")[1].split("5. Hazards")[0]
+    # Cd in acetone: UN 1992 chosen (heavy metals make the liquid toxic); UN 1090 and UN 1993 not chosen.
+    chosen = transport.split("Entries not chosen")[0]
+    assert "UN 1992" in chosen and "UN 1090" not in chosen and "UN 1993" not in chosen
+    name, hazard_class = CFR_172_101["UN 1992"]
+    printed = chosen.split("Description", 1)[1].strip()
+    assert _same_name(printed, name) and f", {hazard_class}" in printed  # 49 CFR 172.101 (from memory)
+    assert "Heavy metals present" in chosen and "highest priority" in chosen
+    others = transport.split("Entries not chosen")[1]
+    assert re.search(r"UN 1090 .*not chosen: its conditions are met, but UN 1992 ranks higher", others)
+    assert re.search(r"UN 1993 .*not chosen: its conditions are met, but UN 1992 ranks higher", others)
+
+
+SHIPMENT = {"transporter": "Rivergate Hazmat Haulage", "receiving_facility": "Eastbank Treatment Works, Dock 4",
+            "container_count": 2, "container_type": "20 L HDPE jerrican"}
+
+
+def test_manifest_prints_the_shipment_or_lines_to_fill(demo):
+    from urllib.parse import urlencode
+
+    app, api, _ = demo
+    _, containers = _ids(api)
+    ident = containers["NG-W01"]["id"]
+    filled = _manifest_text(api, ident, "?" + urlencode(SHIPMENT))
+    shipment = filled.split("Shipment", 1)[1].split("2. Constituents")[0]
+    for label, key in (("Transporter", "transporter"), ("Receiving facility", "receiving_facility"),
+                       ("Number of containers", "container_count"), ("Container type", "container_type")):
+        assert f"{label} {SHIPMENT[key]}" in shipment
+    blank = _manifest_text(api, ident).split("Shipment", 1)[1].split("2. Constituents")[0]
+    assert blank.strip().startswith("Transporter Receiving facility Number of containers Container type")
+    html = _get(api, f"/waste_containers/{ident}/manifest.html").get_data(as_text=True)
+    assert html.count('class="fill') == 4  # four lines to fill by hand
+    assert "Receiving facility" in " ".join(_text(_get(api, f"/waste_containers/{ident}/manifest.pdf").data)[1][-1:])
+
+
+@pytest.mark.parametrize("query, field", [
+    ({"transporter": "x" * 201}, "transporter"), ({"receiving_facility": "y" * 301}, "receiving_facility"),
+    ({"container_type": "z" * 81}, "container_type"), ({"container_count": 0}, "container_count"),
+    ({"container_count": 1000}, "container_count"), ({"container_count": "two"}, "container_count"),
+    ({"carrier": "x"}, "carrier"),
+])
+def test_shipment_fields_out_of_bounds_are_refused_naming_them(demo, query, field):
+    from urllib.parse import urlencode
+
+    app, api, _ = demo
+    _, containers = _ids(api)
+    response = _get(api, f"/waste_containers/{containers['NG-W01']['id']}/manifest.pdf?{urlencode(query)}", expect=422)
+    assert response.get_json()["error"]["details"][0]["field"] == field
+
+
+def test_shipment_at_its_bounds_is_printed(demo):
+    from urllib.parse import urlencode
+
+    app, api, _ = demo
+    _, containers = _ids(api)
+    query = {"transporter": "T" * 200, "container_count": 999, "container_type": "c" * 80}
+    html = _get(api, f"/waste_containers/{containers['NG-W01']['id']}/manifest.html?{urlencode(query)}").get_data(as_text=True)
+    assert "T" * 200 in html and ">999<" in html and "c" * 80 in html
+
+
+def test_cli_print_manifest_takes_the_shipment(demo, tmp_path):
+    app, api, _ = demo
+    _, containers = _ids(api)
+    target = tmp_path / "wm.pdf"
+    args = ["print", "manifest", str(containers["NG-W01"]["id"]), "--output", str(target),
+            "--transporter", SHIPMENT["transporter"], "--receiving-facility", SHIPMENT["receiving_facility"],
+            "--container-count", "2", "--container-type", SHIPMENT["container_type"]]
+    result = CliRunner().invoke(service.console.main, args)
+    assert result.exit_code == 0, result.output
+    text = " ".join(_text(target.read_bytes())[1])
+    assert f"Transporter {SHIPMENT['transporter']}" in text and "Number of containers 2" in text
+    refused = CliRunner().invoke(service.console.main, [*args[:5], "--container-count", "0"])
+    assert refused.exit_code != 0 and "--container-count" in refused.output
+
+
+def test_reversed_entries_print_as_reversed(demo):
+    app, api, _ = demo
+    _, containers = _ids(api)
+    ident = containers["NG-W04"]["id"]
+    view = api.call("GET", f"/waste_containers/{ident}")
+    body = ({"description": "wipes, mistaken entry", "mass": "10 g"} if view["form"] == "solid"
+            else {"description": "rinse, mistaken entry", "volume": "5 mL"})
+    wrong = api.call("POST", f"/waste_containers/{ident}/entries", body, 201)
+    reversal = api.call("POST", f"/waste_containers/{ident}/entries/{wrong['id']}/reverse", {"reason": "wrong container"}, 201)
+    text = _manifest_text(api, ident)
+    assert f"REVERSED by entry {reversal['id']}" in text and f"Reversal of entry {wrong['id']}" in text
+    html = _get(api, f"/waste_containers/{ident}/manifest.html").get_data(as_text=True)
+    row = re.search(rf'<tr class="reversed"><td class="num">{wrong["id"]}</td>', html)
+    assert row, "the reversed entry's row is struck through"
+    assert html.count('<tr class="reversed">') == 1  # the reversal itself is not struck through

@@ -101,6 +101,8 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
     "waste containers (create, request pickup)": (frozenset({OFFICER, MANAGER, ADMIN}),
                                                   ["api.create_waste_containers", "api.request_pickup_waste_container"]),
     "collection by the contractor": (frozenset({OFFICER, ADMIN}), ["api.collect_waste_container"]),
+    # The waste determination rests with the safety officer (the design); the admin may record one.
+    "waste determination (confirmed codes)": (frozenset({OFFICER, ADMIN}), ["api.determine_waste_container"]),
     "audit trail": (frozenset({AUDITOR, ADMIN}), ["api.list_audit_events", "web.audit", "web.audit_verify"]),
     "user management": (frozenset({ADMIN}), ["api.list_users", "api.read_users", *_writes("users")]),
 }

@@ -243,3 +243,79 @@ def test_the_migration_fills_the_totals_from_existing_entries(database_url):
                                {"c": full}) == 2_000_000 * 1_000_000
     finally:
         engine.dispose()
+
+
+# --- the safety officer's determination --------------------------------------------------------
+# Code forms: RCRA characteristic D001-D043 (40 CFR 261.21-261.24; D006 cadmium, 261.24 Table 1, seen),
+# F001-F039 (261.31), P and U lists (261.33; U044 chloroform from memory); EU List of Waste codes are
+# six digits in three pairs with "*" for hazardous entries (Decision 2000/532/EC as amended by
+# 2014/955/EU: 16 05 06* laboratory chemicals, 15 02 02* contaminated absorbents; 2nd).
+D006_AND_LOW = {"codes": [{"system": "RCRA", "code": "D006", "description": "toxicity characteristic, cadmium"},
+                          {"system": "RCRA", "code": "F003"}, {"system": "EU-LoW", "code": "07 07 04*"}],
+                "comment": "Confirmed from the entries; acetone washes."}
+
+
+def _officer(app, client, site):
+    return Api(client, make_user(app, "officer@test.example", "safety_officer"))
+
+
+def test_the_safety_officer_confirms_codes_and_the_latest_is_in_force(app, client, site):
+    container = _container(site)
+    _acetone_wash(site, container["id"])
+    assert site["researcher"].call("GET", f"/waste_containers/{container['id']}")["determination"] is None
+    officer = _officer(app, client, site)
+    first = officer.call("POST", f"/waste_containers/{container['id']}/determination", D006_AND_LOW, 201)
+    determination = first["determination"]
+    assert [(c["system"], c["code"]) for c in determination["codes"]] == [("RCRA", "D006"), ("RCRA", "F003"),
+                                                                          ("EU-LoW", "07 07 04*")]
+    assert determination["by"]["name"] and determination["comment"] == D006_AND_LOW["comment"]
+    assert {"D006", "F003"} <= _codes(first)  # the suggestions stay beside it
+    edited = officer.call("POST", f"/waste_containers/{container['id']}/determination",
+                          {"codes": [{"system": "RCRA", "code": "D006"}, {"system": "RCRA", "code": "D001"}]}, 201)
+    assert [c["code"] for c in edited["determination"]["codes"]] == ["D006", "D001"]
+    assert edited["determination"]["id"] > determination["id"] and edited["determination"]["comment"] is None
+    read = site["researcher"].call("GET", f"/waste_containers/{container['id']}")
+    assert read["determination"] == edited["determination"]
+    # Both are kept, append-only, each in the audit trail with who and which codes.
+    events = site["admin"].call("GET", "/audit_events?entity=waste_determinations")["items"]
+    assert [e["action"] for e in events] == ["create", "create"]
+    assert [[c["code"] for c in e["after"]["codes"]] for e in events] == [["D006", "F003", "07 07 04*"], ["D006", "D001"]]
+    assert {e["actor_label"] for e in events} == {"officer@test.example"}
+
+
+def test_a_researcher_may_not_determine(site):
+    container = _container(site)
+    site["researcher"].call("POST", f"/waste_containers/{container['id']}/determination", D006_AND_LOW, 403)
+
+
+@pytest.mark.parametrize("code, ok", [
+    ({"system": "RCRA", "code": "D001"}, True), ({"system": "RCRA", "code": "D043"}, True),  # 261.21 / 261.24 ends
+    ({"system": "RCRA", "code": "D044"}, False), ({"system": "RCRA", "code": "D000"}, False),  # beside them
+    ({"system": "RCRA", "code": "F039"}, True), ({"system": "RCRA", "code": "F040"}, False),  # 261.31
+    ({"system": "RCRA", "code": "U044"}, True), ({"system": "RCRA", "code": "P000"}, False),  # 261.33
+    ({"system": "RCRA", "code": "d006"}, False), ({"system": "RCRA", "code": "16 05 06*"}, False),
+    ({"system": "EU-LoW", "code": "16 05 06*"}, True), ({"system": "EU-LoW", "code": "15 02 02*"}, True),
+    ({"system": "EU-LoW", "code": "20 01 01"}, True), ({"system": "EU-LoW", "code": "21 01 01"}, False),  # 20 chapters
+    ({"system": "EU-LoW", "code": "160506*"}, False), ({"system": "EU-LoW", "code": "D006"}, False),
+    ({"system": "EPA", "code": "D006"}, False),
+])
+def test_codes_are_checked_against_the_form_of_their_system(app, client, site, code, ok):
+    container = _container(site)
+    answer = _officer(app, client, site).call("POST", f"/waste_containers/{container['id']}/determination",
+                                              {"codes": [code]}, 201 if ok else 422)
+    if not ok:
+        assert answer["error"]["details"][0]["field"] in ("codes.0.code", "codes.0.system"), answer
+
+
+@pytest.mark.parametrize("body, field", [
+    ({"codes": []}, "codes"),
+    ({"codes": [{"system": "RCRA", "code": "D006"}] * 2}, "codes"),
+    ({"codes": [{"system": "RCRA", "code": "D006"}] + [{"system": "RCRA", "code": f"U{i:03d}"} for i in range(1, 21)]},
+     "codes"),  # 21 codes: at most 20
+    ({"codes": [{"system": "RCRA", "code": "D006"}], "comment": "x" * 2001}, "comment"),
+    ({"codes": [{"system": "RCRA", "code": "D006", "description": "y" * 301}]}, "codes.0.description"),
+])
+def test_a_determination_out_of_bounds_is_refused_naming_the_field(app, client, site, body, field):
+    container = _container(site)
+    error = _officer(app, client, site).call("POST", f"/waste_containers/{container['id']}/determination", body, 422)
+    assert error["error"]["details"][0]["field"] == field, error

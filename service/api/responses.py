@@ -234,6 +234,22 @@ class Run(_Answer):
     balance: Optional[Balance] = None  # single-record answers only
 
 
+class DeterminedCode(_Answer):
+    system: str
+    code: str
+    description: Optional[str]
+
+
+class Determination(_Answer):
+    """The safety officer's determination in force: the latest one recorded."""
+
+    id: int
+    codes: list[DeterminedCode]
+    by: dict[str, Any]
+    at: str
+    comment: Optional[str]
+
+
 class WasteContainer(_Answer):
     id: int
     label: str
@@ -246,6 +262,7 @@ class WasteContainer(_Answer):
     elements: list[dict[str, Any]]
     findings: list[Finding]
     highest_level: Optional[str]
+    determination: Optional[Determination]
 
 
 class WasteEntry(_Answer):

@@ -89,6 +89,17 @@ def reverse_entry(ident: int, entry_id: int):
     return jsonify(dump_entry(entry)), 201
 
 
+@bp.post("/waste_containers/<int:ident>/determination", endpoint="determine_waste_container")
+@operation(body=schemas.DeterminationIn, response=ContainerAnswer, status=201, errors=(403,))
+def determine_container(ident: int):
+    """Record the safety officer's determination of the container's waste codes (append-only: the
+    latest is the one in force; each is kept and audited). The answer is the container with it."""
+    body = json_body(schemas.DeterminationIn)
+    container = _visible(ident)
+    waste.determine(get_session(), container.id, body, current_user().id)
+    return jsonify(dump_container(container)), 201
+
+
 def _move_view(action: str):
     @operation(summary=f"Waste container: {action.replace('_', ' ')}", response=ContainerAnswer, errors=(403, 409))
     def view(ident: int):

@@ -60,22 +60,34 @@ def hazard_texts(rows: list[dict], text_of) -> list[dict]:
 def approval_status(state: str, decided_at: str | None, decider: str | None) -> dict:
     """Whether the sheet describes an approved procedure, and the line every page prints about it.
 
+    A draft says DRAFT; a procedure submitted, sent back for changes or declined says NOT APPROVED
+    with its state; a retired one says RETIRED. Only an approved procedure carries no marker.
+
+    >>> approval_status("draft", None, None)["text"]
+    'DRAFT — not approved (state: draft)'
     >>> approval_status("submitted", None, None)["text"]
-    'DRAFT — not approved (state: submitted)'
+    'NOT APPROVED — submitted, awaiting the safety officer (state: submitted)'
     >>> approval_status("changes_requested", "2026-12-01T09:00:00+00:00", "S. Officer")["marker"]
-    'DRAFT'
+    'NOT APPROVED'
+    >>> approval_status("declined", "2026-12-01T09:00:00+00:00", "S. Officer")["text"]
+    'NOT APPROVED — declined 2026-12-01 by S. Officer (state: declined)'
     >>> approval_status("approved", "2026-12-01T09:00:00+00:00", "S. Officer")
     {'approved': True, 'marker': None, 'text': 'Approved 2026-12-01 by S. Officer'}
     >>> approval_status("retired", "2026-12-01T09:00:00+00:00", "S. Officer")["text"]
     'RETIRED — no longer approved (state: retired)'
     """
+    day = (decided_at or "")[:10] or "on an unrecorded date"
+    who = decider or "an unrecorded user"
     if state == "approved":
-        return {"approved": True, "marker": None,
-                "text": f"Approved {(decided_at or '')[:10] or 'on an unrecorded date'} by {decider or 'an unrecorded user'}"}
+        return {"approved": True, "marker": None, "text": f"Approved {day} by {who}"}
     if state == "retired":
         return {"approved": False, "marker": "RETIRED", "text": "RETIRED — no longer approved (state: retired)"}
-    return {"approved": False, "marker": "DRAFT",
-            "text": f"DRAFT — not approved (state: {state.replace('_', ' ')})"}
+    if state == "draft":
+        return {"approved": False, "marker": "DRAFT", "text": "DRAFT — not approved (state: draft)"}
+    how = {"submitted": "submitted, awaiting the safety officer",
+           "changes_requested": f"changes requested {day} by {who}",
+           "declined": f"declined {day} by {who}"}.get(state, state.replace("_", " "))
+    return {"approved": False, "marker": "NOT APPROVED", "text": f"NOT APPROVED — {how} (state: {state})"}
 
 
 def _facts(view: dict, substances: list[list[dict]]) -> Facts:

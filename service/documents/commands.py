@@ -20,7 +20,7 @@ def print_group() -> None:
     """Write a printed document (PDF): a risk assessment or a waste manifest."""
 
 
-def _print_document(start_app: Callable, kind: str, ident: int, output: Path | None) -> None:
+def _print_document(start_app: Callable, kind: str, ident: int, output: Path | None, *options) -> None:
     from service.documents.sources import assessment_for, manifest_for
     from service.store import inventory
     from service.store.db import get_session
@@ -30,7 +30,7 @@ def _print_document(start_app: Callable, kind: str, ident: int, output: Path | N
     model, build = (Procedure, assessment_for) if kind == "assessment" else (WasteContainer, manifest_for)
     with app.test_request_context():  # the session ends with the context, before rendering
         try:
-            draft = build(inventory.get(get_session(), model, ident))
+            draft = build(inventory.get(get_session(), model, ident), *options)
         except LookupError as exc:
             raise click.ClickException(str(exc)) from None
     doc = draft.render()
@@ -53,7 +53,23 @@ def print_assessment(start_app: Callable, ident: int, output: Path | None) -> No
 @print_group.command(name="manifest")
 @click.argument("ident", type=int)
 @click.option("--output", type=click.Path(dir_okay=False, path_type=Path), help="PDF file to write.")
+@click.option("--transporter", help="The transporter's name (at most 200 characters).")
+@click.option("--receiving-facility", help="The receiving facility's name and address (at most 300 characters).")
+@click.option("--container-count", type=int, help="How many containers are shipped (1 to 999).")
+@click.option("--container-type", help='The containers\' type, e.g. "20 L HDPE jerrican" (at most 80 characters).')
 @click.pass_obj
-def print_manifest(start_app: Callable, ident: int, output: Path | None) -> None:
-    """Write the waste manifest of container IDENT as PDF; print the path and the data SHA-256."""
-    _print_document(start_app, "manifest", ident, output)
+def print_manifest(start_app: Callable, ident: int, output: Path | None, **shipment) -> None:
+    """Write the waste manifest of container IDENT as PDF; print the path and the data SHA-256.
+
+    Shipment details left out print as lines to fill by hand.
+    """
+    from pydantic import ValidationError
+
+    from service.schemas import ManifestQuery
+
+    try:
+        query = ManifestQuery.model_validate({k: v for k, v in shipment.items() if v is not None})
+    except ValidationError as exc:
+        first = exc.errors()[0]
+        raise click.BadParameter(first["msg"], param_hint=f"--{str(first['loc'][0]).replace('_', '-')}") from None
+    _print_document(start_app, "manifest", ident, output, query)

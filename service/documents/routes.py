@@ -14,12 +14,13 @@ printed in its footer.
 
 from __future__ import annotations
 
-from flask import Blueprint, Response
+from flask import Blueprint, Response, request
 
 from service.auth import check_lab
 from service.documents.render import Draft
 from service.documents.sources import assessment_for, manifest_for
 from service.operations import API_PREFIX, operation
+from service.schemas import ManifestQuery
 from service.store import inventory
 from service.store.db import end_session, get_session
 from service.store.models import Procedure, WasteContainer
@@ -48,29 +49,33 @@ def _answer(draft: Draft, fmt: str) -> Response:
     return Response(doc.html, mimetype="text/html", headers=headers)
 
 
-def _view(model, gather, fmt: str, summary: str):
-    @operation(media=(_MEDIA[fmt],), errors=(403,))
+def _view(model, gather, fmt: str, summary: str, query=None):
+    @operation(media=(_MEDIA[fmt],), errors=(403,), query=query)
     def view(ident: int):
-        return _answer(gather(_visible(model, ident)), fmt)
+        options = (query.model_validate(request.args.to_dict()),) if query is not None else ()
+        return _answer(gather(_visible(model, ident), *options), fmt)
 
     view.__doc__ = summary
     return view
 
 
 _MEDIA = {"pdf": "application/pdf", "html": "text/html"}
-# (API path, page path or None, endpoint, model, gatherer, format, summary)
+_SHIPMENT = (" The query names the transporter, the receiving facility, the container count and type; what it "
+             "leaves out prints as a line to fill by hand.")
+# (API path, page path or None, endpoint, model, gatherer, format, summary, query model or None)
 _ROUTES = (
     ("/procedures/<int:ident>/assessment.pdf", "/procedures/<int:ident>/assessment.pdf", "procedure_assessment_pdf",
-     Procedure, assessment_for, "pdf", "The procedure's risk-assessment sheet as PDF."),
+     Procedure, assessment_for, "pdf", "The procedure's risk-assessment sheet as PDF.", None),
     ("/procedures/<int:ident>/assessment.html", None, "procedure_assessment_html",
-     Procedure, assessment_for, "html", "The procedure's risk-assessment sheet as HTML (preview)."),
+     Procedure, assessment_for, "html", "The procedure's risk-assessment sheet as HTML (preview).", None),
     ("/waste_containers/<int:ident>/manifest.pdf", "/waste/<int:ident>/manifest.pdf", "waste_container_manifest_pdf",
-     WasteContainer, manifest_for, "pdf", "The container's waste manifest as PDF."),
+     WasteContainer, manifest_for, "pdf", "The container's waste manifest as PDF." + _SHIPMENT, ManifestQuery),
     ("/waste_containers/<int:ident>/manifest.html", None, "waste_container_manifest_html",
-     WasteContainer, manifest_for, "html", "The container's waste manifest as HTML (preview)."),
+     WasteContainer, manifest_for, "html", "The container's waste manifest as HTML (preview)." + _SHIPMENT,
+     ManifestQuery),
 )
-for _api_path, _page_path, _endpoint, _model, _gather, _fmt, _summary in _ROUTES:
-    _document_view = _view(_model, _gather, _fmt, _summary)
+for _api_path, _page_path, _endpoint, _model, _gather, _fmt, _summary, _query in _ROUTES:
+    _document_view = _view(_model, _gather, _fmt, _summary, _query)
     bp.add_url_rule(_api_path, _endpoint, _document_view, methods=["GET"])
     if _page_path is not None:
         pages.add_url_rule(_page_path, _endpoint, _document_view, methods=["GET"])

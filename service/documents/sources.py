@@ -22,6 +22,7 @@ from service.documents.controls import ControlsFile, TransportFile, load_control
 from service.documents.manifest import manifest_data
 from service.documents.render import Draft
 from service.present.procedures import dump_procedure
+from service.schemas import ManifestQuery
 from service.present.serialize import lab_heading, location_heading, substance_facts
 from service.present.waste import dump_container, dump_entry
 from service.store import waste
@@ -79,8 +80,12 @@ def assessment_for(proc: Procedure) -> Draft:
     return Draft("assessment.html", data, document_id, f"assessment-{proc.id}-r{proc.revision}")
 
 
-def manifest_for(container: WasteContainer) -> Draft:
-    """The waste manifest's data for ``container`` (the caller has checked the lab scope)."""
+def manifest_for(container: WasteContainer, shipment: ManifestQuery | None = None) -> Draft:
+    """The waste manifest's data for ``container`` (the caller has checked the lab scope).
+
+    ``shipment`` names the transporter, the receiving facility and the containers shipped; what it
+    leaves out prints as a line to fill by hand.
+    """
     session = get_session()
     view = dump_container(container)
     entries = waste.entries_of(session, container)
@@ -91,5 +96,5 @@ def manifest_for(container: WasteContainer) -> Draft:
     data = manifest_data(view, entries=[dump_entry(e) for e in entries], records=records,
                          lab=lab_heading(session.get(Lab, container.lab_id)), location=location, document_id=document_id,
                          transport=_transport(), text_of=statements().text_of,
-                         **_common())
+                         shipment=(shipment or ManifestQuery()).model_dump(), **_common())
     return Draft("manifest.html", data, document_id, f"manifest-{_safe_name(container.label)}")

@@ -31,7 +31,7 @@ from service.store.db import get_session
 from service.store.findings import evaluate_once
 from service.store.models import Substance, WasteContainer, WasteEntry
 
-__all__ = ["CAUTION", "dump_container", "dump_entry", "basis_note", "amounts", "concentrations"]
+__all__ = ["CAUTION", "dump_container", "dump_determination", "dump_entry", "basis_note", "amounts", "concentrations"]
 
 CAUTION = ("Waste codes and transport descriptions are suggestions for review. The waste determination "
            "rests with the site safety officer and local regulations; shipping papers with the licensed shipper.")
@@ -57,8 +57,18 @@ def dump_container(container: WasteContainer) -> dict:
         "solvent_composition": [{"substance": c.name, "key": c.key, "volume_percent": round(100 * c.volume_fraction, 3)}
                                 for c in subject.components],
         "findings": [finding(f) for f in findings], "highest_level": highest_level(findings),
+        "determination": dump_determination(waste.determination_of(container)),
         "rule_packs": [{"pack": n, "version": v} for n, v in rules.packs], "caution": CAUTION,
     }
+
+
+def dump_determination(row) -> dict | None:
+    """The safety officer's determination in force (codes, by whom, when, comment), or None."""
+    if row is None:
+        return None
+    return {"id": row.id, "codes": [{"system": c["system"], "code": c["code"], "description": c.get("description")}
+                                    for c in row.codes],
+            "by": {"id": row.actor_id, "name": row.actor.display_name}, "at": _iso(row.at), "comment": row.comment}
 
 
 def amounts(subject: ContainerSubject, contents: waste.Contents, capacity_micro: int) -> dict:

@@ -38,6 +38,7 @@ __all__ = [
     "MixtureComponent",
     "MixtureElement",
     "User",
+    "WasteDetermination",
     "Membership",
     "ApiToken",
     "LoginAttempt",
@@ -457,6 +458,10 @@ class WasteContainer(_Lifecycle, Base):
     component_totals: Mapped[list["WasteContainerComponent"]] = relationship(
         cascade="all, delete-orphan", lazy="selectin", order_by="WasteContainerComponent.substance_id"
     )
+    # The safety officer's determinations, oldest first; the last one is the one in force.
+    determinations: Mapped[list["WasteDetermination"]] = relationship(
+        lazy="selectin", order_by="WasteDetermination.id"
+    )
 
 
 class WasteEntry(Base):
@@ -495,6 +500,20 @@ class WasteEntryElement(Base):
     # {"kind": "share", "percent", "of_ug", "remaining_ug"} or {"kind": "reversal", "entry_id"};
     # None for entries made before it was recorded
     basis: Mapped[Optional[dict[str, Any]]] = mapped_column(default=None)
+
+
+class WasteDetermination(Base):
+    """A safety officer's determination of a container's waste codes. Append-only: a new one replaces it."""
+
+    __tablename__ = "waste_determinations"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    container_id: Mapped[int] = mapped_column(ForeignKey("waste_containers.id"), index=True)
+    # [{"system": "RCRA", "code": "D006", "description": "..." or None}, ...]
+    codes: Mapped[list[Any]] = mapped_column()
+    comment: Mapped[Optional[str]] = mapped_column(Text)
+    actor_id: Mapped[int] = mapped_column(ForeignKey("users.id"))
+    at: Mapped[dt.datetime] = mapped_column(default=utcnow, index=True)
+    actor: Mapped["User"] = relationship(lazy="joined")
 
 
 class WasteContainerTotals(Base):

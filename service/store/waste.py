@@ -23,7 +23,7 @@ from service.chem.units import QuantityError, parse_quantity, to_decimal
 from service.errors import Conflict, InvalidInput
 from service.rules.subjects import ContainerComponent, ContainerSubject
 from service.chem.content import round_ug
-from service.schemas import ContainerIn, EntryIn
+from service.schemas import ContainerIn, DeterminationIn, EntryIn
 from service.store import runs
 from service.store.amounts import assay_ug, element_masses_ug, mass_ug, mg_text
 from service.store.inventory import get, reference
@@ -36,6 +36,7 @@ from service.store.models import (
     WasteContainerComponent,
     WasteContainerElement,
     WasteContainerTotals,
+    WasteDetermination,
     WasteEntry,
     WasteEntryComponent,
     WasteEntryElement,
@@ -43,7 +44,7 @@ from service.store.models import (
 )
 
 __all__ = ["SOLID_STREAMS", "Contents", "create_container", "add_entry", "reverse_entry", "contents_of",
-           "subject_of", "move", "element_masses_ug", "list_containers", "entries_of"]
+           "subject_of", "move", "determine", "determination_of", "element_masses_ug", "list_containers", "entries_of"]
 
 SOLID_STREAMS = frozenset(vocab.SOLID_STREAMS)
 _HALOGENS = frozenset({"F", "Cl", "Br", "I"})
@@ -261,6 +262,26 @@ def reverse_entry(session: Session, container_id: int, entry_id: int, reason: st
     _count(container, entry)
     session.flush()
     return entry
+
+
+def determine(session: Session, container_id: int, body: DeterminationIn, actor_id: int) -> WasteDetermination:
+    """Record the safety officer's determination of a container's waste codes.
+
+    Determinations are append-only: each is a new row (and an audit event), and the latest is the
+    one in force. The container's row is locked, so two determinations are ordered, not interleaved.
+    """
+    container = _lock(session, container_id)
+    row = WasteDetermination(container_id=container.id, actor_id=actor_id, comment=body.comment, at=utcnow(),
+                             codes=[code.model_dump() for code in body.codes])
+    session.add(row)
+    session.flush()
+    session.expire(container, ["determinations"])
+    return row
+
+
+def determination_of(container: WasteContainer) -> Optional[WasteDetermination]:
+    """The determination in force: the latest recorded, or None before the first."""
+    return container.determinations[-1] if container.determinations else None
 
 
 def move(session: Session, container: WasteContainer, action: str) -> WasteContainer:
