@@ -64,6 +64,11 @@ MATRIX: dict[str, frozenset[str]] = {
     # ledger reports (waste leaving, inventory on hand): read-only, everyone; researchers lab-scoped
     "api.report_waste": EVERYONE,
     "api.report_inventory": EVERYONE,
+    # the generator category is the whole site's: not for lab-scoped roles, whose figures are their labs'
+    "api.report_generator_category": frozenset({"safety_officer", "lab_manager", "auditor", "admin"}),
+    # accumulation areas: read-only views of their containers' sums; researchers see their labs' and shared areas
+    "api.list_accumulation_areas": EVERYONE,
+    "api.read_accumulation_areas": EVERYONE,
     # runs: researchers record their batches
     "api.list_runs": EVERYONE,
     "api.read_runs": EVERYONE,

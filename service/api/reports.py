@@ -15,11 +15,13 @@ from flask import Response, jsonify, request
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 from service.api import bp
-from service.api.responses import Report
+from service.api.responses import GeneratorReport, Report
+from service.appdata import active_rules
 from service.auth import lab_scope
 from service.operations import operation
-from service.schemas import ElementSymbol
-from service.store import ledger
+from service.present.areas import dump_generator
+from service.schemas import ElementSymbol, GeneratorQuery
+from service.store import generator, ledger
 from service.store.db import end_session, get_session
 
 XLSX = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
@@ -107,3 +109,15 @@ def report_inventory():
     frame = ledger.run_report(get_session(), "inventory", query.by, lab_ids=lab_scope(), **query.filters())
     end_session()  # the frame is plain data: serialise it with no transaction open
     return render(frame, query)
+
+
+@bp.get("/reports/generator_category", endpoint="report_generator_category")
+@operation(query=GeneratorQuery, response=GeneratorReport)
+def report_generator_category():
+    """Hazardous waste generated per calendar month (UTC) at the whole site, in kg, and the generator
+    category each month gives under the rule packs (40 CFR 262.13), with the months that moved it."""
+    query = GeneratorQuery.model_validate(request.args.to_dict())
+    rules = active_rules()
+    months = generator.generator_months(get_session(), rules, query.since, query.until)
+    end_session()
+    return jsonify(dump_generator(months, rules, query.since, query.until))
