@@ -62,7 +62,7 @@ def entry_kg(entry: GeneratedEntry, assumed_g_per_ml: Decimal) -> tuple[Decimal,
 
     >>> entry_kg(GeneratedEntry("2026-03", False, "liquid", 100_000, parts=(EntryPart("acetone", 60_000, 0.7845),)),
     ...          Decimal(1))
-    (Decimal('0.087070'), Decimal('0.04'))
+    (Decimal('0.0870700000'), Decimal('0.04'))
     """
     if entry.form == "solid":
         return Decimal(entry.mass_ug) / 1_000_000_000, Decimal(0)
