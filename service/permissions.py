@@ -67,6 +67,11 @@ MATRIX: dict[str, frozenset[str]] = {
     # the site element ledger is site-wide: not for lab-scoped roles
     "api.report_elements": frozenset({"safety_officer", "lab_manager", "auditor", "admin"}),
     "api.report_element_figure": frozenset({"safety_officer", "lab_manager", "auditor", "admin"}),
+    # the generator category is the whole site's: not for lab-scoped roles, whose figures are their labs'
+    "api.report_generator_category": frozenset({"safety_officer", "lab_manager", "auditor", "admin"}),
+    # accumulation areas: read-only views of their containers' sums; researchers see their labs' and shared areas
+    "api.list_accumulation_areas": EVERYONE,
+    "api.read_accumulation_areas": EVERYONE,
     # runs: researchers record their batches
     "api.list_runs": EVERYONE,
     "api.read_runs": EVERYONE,

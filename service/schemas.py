@@ -720,3 +720,36 @@ class PreviewQuery(_Query):
         if any(not (0 < v <= 1000) for v in value):  # also refuses nan
             raise ValueError("scale factors must be above 0 and at most 1000")
         return value
+
+
+GENERATOR_MONTHS_MAX = 120  # one report spans at most ten years of months
+_MONTH = r"^(19[89]\d|2\d{3})-(0[1-9]|1[0-2])$"  # RCRA's generator rules date from 1980
+
+
+def _month_of(day: dt.date) -> str:
+    return f"{day.year:04d}-{day.month:02d}"
+
+
+class GeneratorQuery(_Query):
+    """The calendar months (UTC, ``YYYY-MM``, inclusive) of the generator-category report.
+
+    ``until`` defaults to the current month, ``since`` to eleven months before ``until``.
+    """
+
+    since: Optional[str] = Field(default=None, pattern=_MONTH, description="first month, YYYY-MM (UTC)")
+    until: Optional[str] = Field(default=None, pattern=_MONTH, description="last month, YYYY-MM (UTC)")
+
+    @model_validator(mode="after")
+    def _range(self):
+        until = self.until or _month_of(dt.datetime.now(dt.timezone.utc).date())
+        year, month = map(int, until.split("-"))
+        back = year * 12 + month - 1 - 11
+        since = self.since or f"{back // 12:04d}-{back % 12 + 1:02d}"
+        if since > until:
+            raise ValueError(f"since ({since}) is after until ({until})")
+        first_year, first_month = map(int, since.split("-"))
+        if (year - first_year) * 12 + month - first_month + 1 > GENERATOR_MONTHS_MAX:
+            raise ValueError(f"at most {GENERATOR_MONTHS_MAX} months in one report")
+        self.since = since
+        self.until = until
+        return self

@@ -21,6 +21,10 @@ from __future__ import annotations
 __all__ = [
     "ROLES",
     "LOCATION_KINDS",
+    "ACCUMULATION_AREA_KINDS",
+    "GENERATOR_CATEGORIES",
+    "RULE_MARKS",
+    "OPT_INS",
     "STREAMS",
     "SOLID_STREAMS",
     "PROCEDURE_STATES",
@@ -42,8 +46,22 @@ __all__ = [
 # Who a user is; what each may do is service/permissions.py.
 ROLES = ("researcher", "safety_officer", "lab_manager", "auditor", "admin")
 
-# Where things are kept: ordinary storage, or a satellite accumulation area for waste (RCRA, 40 CFR 262.15).
-LOCATION_KINDS = ("storage", "satellite_accumulation_area")
+# Where things are kept: ordinary storage, or an accumulation area for waste: a satellite area at or near
+# the point of generation (RCRA, 40 CFR 262.15) or the site's central accumulation area (262.16 / 262.17).
+LOCATION_KINDS = ("storage", "satellite_accumulation_area", "central_accumulation_area")
+ACCUMULATION_AREA_KINDS = ("satellite_accumulation_area", "central_accumulation_area")
+
+# Generator categories of 40 CFR 260.10 / 262.13, from the smallest; which applies in a month follows from
+# the rules of scope generator_month that mark a category (rule packs hold the thresholds).
+GENERATOR_CATEGORIES = ("very_small_quantity_generator", "small_quantity_generator", "large_quantity_generator")
+
+# What a firing rule marks beyond its finding: an accumulation area over its limit (starts the area's
+# clock), or the generator category a month's amounts put the site in.
+RULE_MARKS = ("area_over_limit", "small_quantity_generator", "large_quantity_generator")
+
+# Optional regimes a site pack opts in to (``opt_ins:``); rules may apply only with, or only without, one.
+# academic_laboratories: 40 CFR part 262 subpart K for the laboratories of an eligible academic entity.
+OPT_INS = ("academic_laboratories",)
 
 # Waste streams a container collects; the solid ones are measured by mass, the others by volume.
 STREAMS = (

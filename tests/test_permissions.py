@@ -56,6 +56,7 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
         "api.list_runs", "api.read_runs", "api.read_run_balance",
         "api.list_waste_containers", "api.read_waste_containers", "api.list_waste_entries",
         "api.list_stock_movements_of_stock", "api.list_stock_movements",
+        "api.list_accumulation_areas", "api.read_accumulation_areas",
         "documents.procedure_assessment_pdf", "documents.procedure_assessment_html",
         "documents.waste_container_manifest_pdf", "documents.waste_container_manifest_html",
         "documents_pages.procedure_assessment_pdf", "documents_pages.waste_container_manifest_pdf",
@@ -66,6 +67,9 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
     # The site element ledger is site-wide: every role but the lab-scoped researcher.
     "site element ledger": (frozenset({OFFICER, MANAGER, AUDITOR, ADMIN}),
                             ["api.report_elements", "api.report_element_figure"]),
+    # The generator category is the whole site's (40 CFR 262.13): not for a lab-scoped researcher.
+    "generator category of the site": (frozenset({OFFICER, MANAGER, AUDITOR, ADMIN}),
+                                       ["api.report_generator_category"]),
     "estimate from absorbance (a calculation, nothing stored)": (SIGNED_IN, ["api.create_estimate"]),
     "review queue (who decides, and who oversees)": (frozenset({OFFICER, AUDITOR, ADMIN}),
                                                      ["api.review_queue", "web.review"]),

@@ -3,9 +3,8 @@
 Sources: 40 CFR 261.24 Table 1 — D006 Cd 1.0 mg/L (seen), D010 Se 1.0 mg/L
 (2nd), D022 chloroform 6.0 mg/L (seen); 261.24(a) < 0.5 % filterable solids: the waste is its
 own extract (seen); 261.21(a)(1) D001 flash point < 60 °C (seen); 261.31 F003 acetone (seen),
-F005 toluene ≥ 10 % by volume (2nd), chloroform and hexane not F-listed (seen); 262.15 satellite
-accumulation 55 gal (208 L), 1 qt (0.94 L) acute, 3 days (2nd); 262.208(a) 12 months (seen);
-List of Waste 2000/532/EC: 07 07 03*, 07 07 04*, 16 05 06* (2nd). Flash points: acetone −20 °C,
+F005 toluene ≥ 10 % by volume (2nd), chloroform and hexane not F-listed (seen) (the satellite
+accumulation limits are per area: tests/test_areas.py); List of Waste 2000/532/EC: 07 07 03*, 07 07 04*, 16 05 06* (2nd). Flash points: acetone −20 °C,
 toluene 4 °C, n-hexane −22 °C; chloroform none (NAS 2016; Prudent Practices — seen).
 Unit relations: 1 US gallon = 3.785411784 L and 1 US quart = 0.946352946 L exactly (NIST
 Handbook 44, Appendix C). The 0.01 "trace" cut-off is the project's choice, not a regulation.
@@ -101,27 +100,6 @@ def test_solids_container_is_not_compared_in_mg_per_l(packs):
     assert "us.tc-extraction-test-needed" in fired(packs, solids)
 
 
-@pytest.mark.parametrize(
-    "volume_l, block, caution",
-    [(230.0, True, True), (208.0, True, True), (187.2, False, True), (187.1, False, False)],
-)  # 208 L = 55 gal (262.15); caution from 0.9 × 208 L = 187.2 L
-def test_satellite_accumulation(packs, volume_l, block, caution):
-    findings = fired(packs, container(volume_l, capacity_l=250.0))
-    assert ("us.saa-volume-limit" in findings, "us.saa-volume-near-limit" in findings) == (block, caution)
-    assert (highest_level(findings.values()) == "block") is block
-
-
-@pytest.mark.parametrize("acute, volume_l, fires", [(True, 0.94, True), (True, 0.93, False), (False, 5.0, False)])
-def test_acute_hazardous_quart(packs, acute, volume_l, fires):
-    assert ("us.saa-acute-liquid-limit" in fired(packs, container(volume_l, acute_hazardous=acute))) is fires
-
-
-@pytest.mark.parametrize("mass_kg, fires", [(1.0, True), (0.99, False)])
-def test_acute_hazardous_solid_kilogram(packs, mass_kg, fires):
-    solids = container(volume_l=0.0, form="solid", mass_kg=mass_kg, components=(), acute_hazardous=True)
-    assert ("us.saa-acute-solid-limit" in fired(packs, solids)) is fires
-
-
 @pytest.mark.parametrize("toluene, f005", [(0.05, False), (0.0999, False), (0.1, True), (0.5, True)])
 def test_toluene_f005_at_ten_percent(packs, toluene, f005):
     mix = (ContainerComponent("acetone", "acetone", 1 - toluene, -20.0, FLAMMABLE),
@@ -159,15 +137,11 @@ def test_unknown_flash_point_is_not_taken_as_safe(packs):
 @pytest.mark.parametrize(
     "facts, rule_id, fires",
     [
-        ({"days_since_full": 3.0}, "us.saa-full-container-days", False),
-        ({"days_since_full": 3.5}, "us.saa-full-container-days", True),
-        ({"days_since_first_entry": 364.0}, "us.subpart-k-twelve-months", False),
-        ({"days_since_first_entry": 365.0}, "us.subpart-k-twelve-months", True),
         ({"capacity_l": 22.3}, "site.waste-container-headspace", False),  # 20 / 22.3 = 0.897
         ({"capacity_l": 22.0}, "site.waste-container-headspace", True),  # 20 / 22 = 0.909
     ],
 )
-def test_time_and_fill_limits(packs, facts, rule_id, fires):
+def test_fill_limits(packs, facts, rule_id, fires):
     assert (rule_id in fired(packs, container(**facts))) is fires
 
 

@@ -43,7 +43,8 @@ def test_vocabulary_lists_every_procedure_measure():
         "scale_factor_over_last_approved": "",
         "max_injection_temperature": "degC",
     }
-    assert all(row["description"] and row["scope"] in ("procedure", "waste_container") for row in vocabulary())
+    assert all(row["description"] and row["scope"] in ("procedure", "waste_container", "accumulation_area",
+                                                       "generator_month") for row in vocabulary())
     assert set(MEASURES) == {row["name"].split(":")[0] for row in vocabulary()}
 
 

@@ -30,7 +30,7 @@ def test_a_good_rule_parses():
         ("id", "Site.CD", "should match pattern"),
         ("id", "no-dot", "should match pattern"),
         ("id", "site..x", "should match pattern"),
-        ("scope", "container", "'procedure', 'run', 'waste_container' or 'inventory'"),
+        ("scope", "container", "'procedure', 'run', 'waste_container', 'inventory', 'accumulation_area' or 'generator_month'"),
         ("level", "warning", "'note', 'caution', 'review' or 'block'"),
         ("comparator", "=>", "Input should be '>'"),
         ("comparator", "gt", "Input should be '>'"),

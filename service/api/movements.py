@@ -9,6 +9,7 @@ from service import schemas
 from service.api import bp
 from service.api.inventory import json_body, page_answer
 from service.api.responses import StockMovement as MovementAnswer
+from service.appdata import active_rules
 from service.auth import check_lab, current_user, lab_scope
 from service.operations import operation
 from service.present.serialize import movement
@@ -38,7 +39,8 @@ def _move_view(body_model, move, summary: str):
     def view(ident: int):
         body = json_body(body_model)
         _visible(ident)
-        return jsonify(movement(move(get_session(), ident, body, current_user().id))), 201
+        judged = {"rules": active_rules()} if move is movements.dispose else {}  # the area's clock follows an entry
+        return jsonify(movement(move(get_session(), ident, body, current_user().id, **judged))), 201
 
     return view
 

@@ -19,14 +19,16 @@ from flask import Response, jsonify, request
 from pydantic import BaseModel, ConfigDict, Field, StringConstraints, field_validator, model_validator
 
 from service.api import bp
-from service.api.responses import ElementLedger, LedgerFigure, Report
+from service.api.responses import ElementLedger, GeneratorReport, LedgerFigure, Report
+from service.appdata import active_rules
 from service.auth import lab_scope
-from service.operations import operation
 from service.balance.site import FIGURES
+from service.operations import operation
+from service.present.areas import dump_generator
 from service.present.element_ledger import dump_figure, dump_ledger, ledger_frame
 from service.present.runs import balance_tolerance
-from service.schemas import ElementSymbol
-from service.store import element_ledger, ledger
+from service.schemas import ElementSymbol, GeneratorQuery
+from service.store import element_ledger, generator, ledger
 from service.store.db import end_session, get_session
 
 XLSX = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
@@ -162,3 +164,13 @@ def report_element_figure():
     query = LedgerFigureQuery.model_validate(request.args.to_dict())
     parts = element_ledger.contributions(get_session(), query.element, query.month, query.figure)
     return jsonify(dump_figure(query.element, query.month, query.figure, parts))
+@bp.get("/reports/generator_category", endpoint="report_generator_category")
+@operation(query=GeneratorQuery, response=GeneratorReport)
+def report_generator_category():
+    """Hazardous waste generated per calendar month (UTC) at the whole site, in kg, and the generator
+    category each month gives under the rule packs (40 CFR 262.13), with the months that moved it."""
+    query = GeneratorQuery.model_validate(request.args.to_dict())
+    rules = active_rules()
+    months = generator.generator_months(get_session(), rules, query.since, query.until)
+    end_session()
+    return jsonify(dump_generator(months, rules, query.since, query.until))

@@ -14,7 +14,7 @@ from pydantic import BaseModel, ConfigDict, Field
 __all__ = [
     "Error", "Index", "Lab", "Location", "Substance", "Stock", "Mixture", "User", "Token", "IssuedToken",
     "AuditEvent", "Procedure", "ReviewItem", "Decision", "Preview", "Run", "Balance", "WasteContainer",
-    "WasteEntry", "StockMovement", "Estimate", "Report",
+    "WasteEntry", "StockMovement", "Estimate", "Report", "AccumulationArea", "GeneratorReport",
 ]
 
 
@@ -336,4 +336,35 @@ class LedgerFigure(_Answer):
     contributions: list[dict[str, Any]]
     count: int
     units: dict[str, Any]
+    caution: str
+
+
+class AccumulationArea(_Answer):
+    """An accumulation area: totals of its containers not yet collected (L, US gal, kg), limits, findings."""
+
+    id: int
+    label: str
+    kind: str
+    lab_id: Optional[int]
+    containers: list[dict[str, Any]]
+    totals: dict[str, Any]
+    limits: list[dict[str, Any]]
+    over_limit_since: Optional[str]
+    days_over_limit: Optional[int]
+    findings: list[Finding]
+    highest_level: Optional[str]
+    caution: str
+
+
+class GeneratorReport(_Answer):
+    """Hazardous waste generated per calendar month (kg), the generator category and the month that moved it."""
+
+    report: str
+    since: str
+    until: str
+    months: list[dict[str, Any]]
+    highest_category: Optional[str]
+    moved_in: list[str]
+    assumed_density: Optional[str]
+    assumed_density_used: bool
     caution: str

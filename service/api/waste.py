@@ -11,6 +11,7 @@ from service import schemas
 from service.api import bp
 from service.api.inventory import json_body, page_answer
 from service.api.responses import WasteContainer as ContainerAnswer, WasteEntry as EntryAnswer
+from service.appdata import active_rules
 from service.auth import check_lab, current_user, lab_scope
 from service.operations import operation
 from service.present.runs import balance_elements
@@ -75,7 +76,8 @@ def add_entry(ident: int):
     (concentration × volume) or a share in percent of what the run leaves unaccounted."""
     body = json_body(schemas.EntryIn)
     _visible(ident)
-    entry = waste.add_entry(get_session(), ident, body, current_user().id, balance_elements=balance_elements())
+    entry = waste.add_entry(get_session(), ident, body, current_user().id, balance_elements=balance_elements(),
+                            rules=active_rules())
     return jsonify(dump_entry(entry)), 201
 
 
@@ -85,7 +87,7 @@ def reverse_entry(ident: int, entry_id: int):
     """Reverse an entry with a new entry of the exact negative."""
     body = json_body(schemas.ReverseIn)
     _visible(ident)
-    entry = waste.reverse_entry(get_session(), ident, entry_id, body.reason, current_user().id)
+    entry = waste.reverse_entry(get_session(), ident, entry_id, body.reason, current_user().id, rules=active_rules())
     return jsonify(dump_entry(entry)), 201
 
 
@@ -103,7 +105,7 @@ def determine_container(ident: int):
 def _move_view(action: str):
     @operation(summary=f"Waste container: {action.replace('_', ' ')}", response=ContainerAnswer, errors=(403, 409))
     def view(ident: int):
-        return jsonify(dump_container(waste.move(get_session(), _visible(ident), action)))
+        return jsonify(dump_container(waste.move(get_session(), _visible(ident), action, rules=active_rules())))
 
     return view
 

@@ -12,8 +12,9 @@ from __future__ import annotations
 from decimal import ROUND_HALF_EVEN, Decimal
 
 from service.appdata import active_rules
+from service.present.areas import area_findings
 from service.present.serialize import element_rows_from, finding
-from service.rules import highest_level
+from service.rules import SEVERITY, highest_level
 from service.rules.container_measures import (
     concentration_basis,
     concentration_mg_per_l,
@@ -29,6 +30,7 @@ from service.store import waste
 from service.store.amounts import mg_text
 from service.store.db import get_session
 from service.store.findings import evaluate_once
+from service.store import areas
 from service.store.models import Substance, WasteContainer, WasteEntry
 
 __all__ = ["CAUTION", "dump_container", "dump_determination", "dump_entry", "basis_note", "amounts", "concentrations"]
@@ -42,7 +44,11 @@ def dump_container(container: WasteContainer) -> dict:
     contents = waste.contents_of(session, container)
     subject = waste.subject_of(session, container, contents)
     rules = active_rules()
-    findings = evaluate_once(session, rules, "waste_container", container.id, subject)
+    location = areas.location_of(session, container.location_id)
+    in_area = areas.is_area(location) and container.state in areas.OPEN_STATES
+    # the container's own findings and, while it is in an accumulation area, the area's (the limits are per area)
+    findings = sorted(evaluate_once(session, rules, "waste_container", container.id, subject)
+                      + (area_findings(location) if in_area else []), key=lambda f: (-SEVERITY[f.level], f.rule_id))
     basis, note = concentration_basis(subject)
     return {
         "id": container.id, "label": container.label, "lab_id": container.lab_id, "location_id": container.location_id,
@@ -56,6 +62,8 @@ def dump_container(container: WasteContainer) -> dict:
                      for row in element_rows_from(contents.element_mass_ug)],
         "solvent_composition": [{"substance": c.name, "key": c.key, "volume_percent": round(100 * c.volume_fraction, 3)}
                                 for c in subject.components],
+        "accumulation_area": ({"id": location.id, "label": areas.label_of(location), "kind": location.kind}
+                              if areas.is_area(location) else None),
         "findings": [finding(f) for f in findings], "highest_level": highest_level(findings),
         "determination": dump_determination(waste.determination_of(container)),
         "rule_packs": [{"pack": n, "version": v} for n, v in rules.packs], "caution": CAUTION,

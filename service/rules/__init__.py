@@ -11,6 +11,7 @@ from service.rules.model import COMPARATORS, LEVELS, SCOPES, Rule, RulePack, Sug
 from service.rules.subjects import INERT_ATMOSPHERES, ProcedureSubject, ReagentFacts, StepFacts
 
 from service.rules import container_measures  # noqa: E402,F401,I001  (the waste_container measures register on import)
+from service.rules import area_measures, generator  # noqa: E402,F401,I001  (accumulation_area, generator_month)
 
 __all__ = [
     "ActiveRule",

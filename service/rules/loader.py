@@ -19,9 +19,10 @@ import pint
 from service.chem.units import QuantityError, kind_of, parse_quantity
 from service.datafiles import DataFileError, load_data_file
 from service.rules.measures import Measure, MeasureNameError, resolve_measure
-from service.rules.model import SCOPES, Rule, RulePack
+from service.rules.model import SCOPES, Rule, RulePack, WasteCounting
 
-__all__ = ["ActiveRule", "LayeredRules", "load_pack", "load_packs", "parse_threshold", "convert_exact", "unit_symbol"]
+__all__ = ["ActiveRule", "LayeredRules", "load_pack", "load_packs", "parse_threshold", "convert_exact", "unit_symbol",
+           "density_g_per_ml"]
 
 _PACK_NAME = re.compile(r"^[a-z0-9]+(-[a-z0-9]+)*$")
 # Temperature differences: parse_quantity reads plain unit words only, so each spelling is
@@ -138,10 +139,22 @@ class ActiveRule:
 
 @dataclass(frozen=True)
 class LayeredRules:
-    """The active rules after layering packs in order; ``packs`` lists (name, version)."""
+    """The active rules after layering packs in order; ``packs`` lists (name, version).
+
+    ``opt_ins`` are the regimes any active pack opted in to; a rule that needs an opt-in no one
+    made, or is replaced by one that was made, is not among ``rules``. ``waste_counting`` is the
+    last active pack's (or None), ``assumed_density_g_per_ml`` its density in g/mL, exact.
+    """
 
     packs: tuple[tuple[str, str], ...]
     rules: tuple[ActiveRule, ...]
+    opt_ins: tuple[str, ...] = ()
+    waste_counting: Optional[WasteCounting] = None
+    assumed_density_g_per_ml: Optional[Decimal] = None
+
+    def marked(self, scope: str) -> dict[str, str]:
+        """Rule id -> mark of the active rules of ``scope`` that mark something (``marks:``)."""
+        return {active.id: active.rule.marks for active in self.rules_for(scope) if active.rule.marks}
 
     def rules_for(self, scope: str) -> tuple[ActiveRule, ...]:
         """The active rules of one scope, in pack order; raises ValueError for an unknown scope."""
@@ -167,10 +180,27 @@ def _compile_rule(rule: Rule, pack: RulePack) -> tuple[Optional[ActiveRule], lis
     return active, []
 
 
+def density_g_per_ml(text: str) -> Decimal:
+    """A density text ("1 g/mL", "1000 kg/m^3") in g/mL, exact; raises QuantityError otherwise.
+
+    >>> density_g_per_ml("1000 kg/m^3")
+    Decimal('1')
+    """
+    value, _unit = parse_threshold(text, "g/mL")
+    if value <= 0:
+        raise QuantityError(text, "a density must be above zero")
+    return value
+
+
 def _load(path: Path) -> tuple[RulePack, list[ActiveRule]]:
     """Validate the file at ``path`` and compile its rules, collecting every problem."""
     pack = load_data_file(path, RulePack)
     problems: list[tuple[str, str]] = []
+    if pack.waste_counting is not None:
+        try:
+            density_g_per_ml(pack.waste_counting.assumed_density)
+        except QuantityError as exc:
+            problems.append(("waste_counting.assumed_density", str(exc)))
     compiled: list[ActiveRule] = []
     first_index: dict[str, int] = {}
     for index, rule in enumerate(pack.rules):
@@ -203,6 +233,8 @@ def load_packs(rules_dir: Path | str, names: list[str]) -> LayeredRules:
     """
     by_id: dict[str, ActiveRule] = {}
     packs: list[tuple[str, str]] = []
+    opt_ins: list[str] = []
+    counting: Optional[WasteCounting] = None
     for name in names:
         path = Path(rules_dir) / f"{name}.yaml"
         if not _PACK_NAME.match(name):
@@ -213,7 +245,13 @@ def load_packs(rules_dir: Path | str, names: list[str]) -> LayeredRules:
         if pack.pack != name:
             raise DataFileError(path, [("pack", f"names pack {pack.pack!r}, but the file is {name}.yaml")])
         packs.append((pack.pack, pack.version))
+        opt_ins.extend(o for o in pack.opt_ins if o not in opt_ins)
+        counting = pack.waste_counting or counting
         for active in compiled:
             earlier = by_id.get(active.rule.id)
             by_id[active.rule.id] = replace(active, overrides=earlier.pack) if earlier else active
-    return LayeredRules(tuple(packs), tuple(by_id.values()))
+    active_rules = tuple(active for active in by_id.values()
+                         if (active.rule.opt_in is None or active.rule.opt_in in opt_ins)
+                         and active.rule.replaced_by_opt_in not in opt_ins)
+    density = density_g_per_ml(counting.assumed_density) if counting is not None else None
+    return LayeredRules(tuple(packs), active_rules, tuple(opt_ins), counting, density)

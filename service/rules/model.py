@@ -15,7 +15,7 @@ from __future__ import annotations
 import string
 from typing import Literal, Optional, Union
 
-from pydantic import BaseModel, ConfigDict, Field, field_validator
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 from service import vocab
 
@@ -26,18 +26,24 @@ __all__ = [
     "PLACEHOLDERS",
     "SuggestedCode",
     "Rule",
+    "WasteCounting",
     "RulePack",
     "message_placeholders",
 ]
 
-SCOPES = ("procedure", "run", "waste_container", "inventory")
+SCOPES = ("procedure", "run", "waste_container", "inventory", "accumulation_area", "generator_month")
 LEVELS = vocab.FINDING_LEVELS  # in rising severity
 COMPARATORS = (">", ">=", "<", "<=", "==", "!=")
 PLACEHOLDERS = frozenset({"value", "threshold", "detail"})
 
-Scope = Literal["procedure", "run", "waste_container", "inventory"]
+Scope = Literal["procedure", "run", "waste_container", "inventory", "accumulation_area", "generator_month"]
 Level = Literal[vocab.FINDING_LEVELS]
 Comparator = Literal[">", ">=", "<", "<=", "==", "!="]
+Mark = Literal[vocab.RULE_MARKS]
+OptIn = Literal[vocab.OPT_INS]
+# The scope each mark belongs to: an area's clock starts from its area rules, a category from a month's.
+MARK_SCOPES = {"area_over_limit": "accumulation_area", "small_quantity_generator": "generator_month",
+               "large_quantity_generator": "generator_month"}
 
 _SLUG = r"^[a-z0-9]+(-[a-z0-9]+)*$"
 _DOTTED_SLUG = r"^[a-z0-9]+([-_][a-z0-9]+)*(\.[a-z0-9]+([-_][a-z0-9]+)*)+$"
@@ -89,6 +95,17 @@ class Rule(_Frozen):
     message: str = Field(min_length=1)
     source: str = Field(min_length=1)
     suggested_code: Optional[SuggestedCode] = None
+    marks: Optional[Mark] = None  # what the rule firing means beyond its finding (MARK_SCOPES)
+    opt_in: Optional[OptIn] = None  # active only when an active pack lists this in ``opt_ins``
+    replaced_by_opt_in: Optional[OptIn] = None  # inactive when an active pack lists this in ``opt_ins``
+
+    @model_validator(mode="after")
+    def _mark_fits_scope(self) -> "Rule":
+        if self.marks is not None and MARK_SCOPES[self.marks] != self.scope:
+            raise ValueError(f"marks: {self.marks} belongs to {MARK_SCOPES[self.marks]} rules, not {self.scope} rules")
+        if self.opt_in is not None and self.opt_in == self.replaced_by_opt_in:
+            raise ValueError("a rule cannot both need and be replaced by the same opt-in")
+        return self
 
     @field_validator("threshold", mode="before")
     @classmethod
@@ -105,6 +122,19 @@ class Rule(_Frozen):
         return value
 
 
+class WasteCounting(_Frozen):
+    """How waste generated is counted for the generator category (scope ``generator_month``).
+
+    ``streams``: the container streams whose entries count as hazardous waste generated;
+    ``assumed_density``: the density taken for a liquid (or the part of an entry) whose density
+    the catalogue does not give — the report flags every volume counted with it.
+    """
+
+    streams: tuple[Literal[vocab.STREAMS], ...] = Field(min_length=1)
+    assumed_density: str = Field(min_length=1, max_length=40)
+    source: str = Field(min_length=1)
+
+
 class RulePack(_Frozen):
     """A versioned rule pack: a jurisdiction's baseline or a site's policy."""
 
@@ -112,4 +142,6 @@ class RulePack(_Frozen):
     version: str = Field(min_length=1)
     jurisdiction: str = Field(min_length=1)
     disclaimer: str = Field(min_length=20)
+    opt_ins: tuple[OptIn, ...] = ()  # regimes the site has opted in to (a site pack says so)
+    waste_counting: Optional[WasteCounting] = None  # a later pack's replaces an earlier one's
     rules: tuple[Rule, ...] = ()

@@ -7,9 +7,11 @@ draws and steps) into a :class:`ProcedureSubject` and hands it over.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from decimal import Decimal
 from typing import Literal, Mapping, Optional
 
-__all__ = ["ReagentFacts", "StepFacts", "ProcedureSubject", "ContainerComponent", "ContainerSubject", "INERT_ATMOSPHERES"]
+__all__ = ["ReagentFacts", "StepFacts", "ProcedureSubject", "ContainerComponent", "ContainerSubject", "INERT_ATMOSPHERES",
+           "AreaContainer", "AreaSubject", "GeneratorMonthSubject"]
 
 INERT_ATMOSPHERES = frozenset({"argon", "nitrogen", "glovebox", "vacuum"})
 
@@ -89,3 +91,44 @@ class ContainerSubject:
     days_since_first_entry: Optional[float] = None
     days_since_full: Optional[float] = None
     acute_hazardous: bool = False
+
+
+@dataclass(frozen=True)
+class AreaContainer:
+    """One container of an accumulation area that has not been collected (open, full or pickup requested)."""
+
+    label: str
+    form: Literal["liquid", "solid"]
+    volume_l: float  # liquid volume (0 for a solids container)
+    mass_kg: float  # solids mass (0 for a liquids container)
+    acute_hazardous: bool = False
+    days_since_first_entry: Optional[float] = None
+
+
+@dataclass(frozen=True)
+class AreaSubject:
+    """An accumulation area (a location of an accumulation kind) as the ``accumulation_area`` rules see it.
+
+    ``containers`` are its containers not yet collected; ``days_over_limit`` counts whole calendar
+    days (UTC) since the day its containers first went over a limit (None while under it).
+    """
+
+    label: str
+    kind: str  # vocab.ACCUMULATION_AREA_KINDS
+    containers: tuple[AreaContainer, ...] = ()
+    days_over_limit: Optional[int] = None
+
+
+@dataclass(frozen=True)
+class GeneratorMonthSubject:
+    """The hazardous waste a site generated in one calendar month (UTC), as the generator rules see it.
+
+    ``non_acute_kg`` and ``acute_kg`` are exact; ``assumed_density_l`` is the liquid volume whose
+    mass was taken with the pack's assumed density (no density in the catalogue).
+    """
+
+    month: str  # "2026-03"
+    non_acute_kg: Decimal
+    acute_kg: Decimal
+    entries: int = 0
+    assumed_density_l: Decimal = Decimal(0)

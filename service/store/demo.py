@@ -257,9 +257,10 @@ def load_demo_waste(session: Session, rules, tolerance, elements) -> int:
         waste.add_entry(session, ids["NG-W01"], EntryIn(
             run_id=run.id, description=description, volume=volume, elements=amounts(masses),
             components=[EntryComponentIn(substance_id=acetone, volume="15 mL"),
-                        EntryComponentIn(substance_id=ode, volume="5 mL")]), researcher.id)
+                        EntryComponentIn(substance_id=ode, volume="5 mL")]), researcher.id, rules=rules)
     waste.add_entry(session, ids["NG-W04"], EntryIn(run_id=run.id, description="gloves, pipette tips, wipes",
-                                                    mass="35 g", elements=amounts(solids)), researcher.id)
+                                                    mass="35 g", elements=amounts(solids)), researcher.id,
+                    rules=rules)
     runs.close_run(session, run, tolerance, elements)
     return added
 

@@ -139,6 +139,9 @@ class Location(_Lifecycle, Base):
     room: Mapped[str] = mapped_column(String(100))
     storage: Mapped[str] = mapped_column(String(200))
     kind: Mapped[str] = mapped_column(String(40))  # vocab.LOCATION_KINDS
+    # An accumulation area: when its open containers first went over a limit (set and cleared by the store in
+    # the transaction of the entry, reversal or collection that crossed it; store/areas.py)
+    over_limit_since: Mapped[Optional[dt.datetime]] = mapped_column(default=None)
 
 
 class Substance(_Lifecycle, Base):

@@ -18,6 +18,7 @@ from sqlalchemy.orm import Session, aliased
 
 from service.chem.content import round_ug
 from service.errors import Conflict, InvalidInput
+from service.rules import LayeredRules
 from service.schemas import DisposeIn, EntryIn, ShipIn, StockIn, TransferIn
 from service.store import inventory, runs, waste
 from service.store.models import Lab, Stock, StockMovement, WasteContainer, utcnow
@@ -83,7 +84,8 @@ def _entry_amount(stock: Stock, container: WasteContainer, taken: runs.Taken) ->
     return {"volume": f"{ul} uL", "components": [{"substance_id": stock.substance_id, "volume": f"{ul} uL"}]}
 
 
-def dispose(session: Session, stock_id: int, body: DisposeIn, actor_id: Optional[int]) -> StockMovement:
+def dispose(session: Session, stock_id: int, body: DisposeIn, actor_id: Optional[int], *,
+            rules: Optional[LayeredRules] = None) -> StockMovement:
     """Put an amount of a stock (default: all of it) into a waste container of the stock's lab.
 
     The entry is added by ``waste.add_entry`` (container state, form, overfill and running totals);
@@ -103,7 +105,7 @@ def dispose(session: Session, stock_id: int, body: DisposeIn, actor_id: Optional
         "elements": [{"element": e, "mass": f"{ug} ug"} for e, ug in taken.element_mass_ug.items() if ug],
     })
     try:
-        entry = waste.add_entry(session, container.id, entry_body, actor_id)
+        entry = waste.add_entry(session, container.id, entry_body, actor_id, rules=rules)
     except Conflict as exc:  # overfilling, or the container is not open
         field = "amount" if exc.field in ("mass", "volume") else "container_id"
         raise Conflict(str(exc), field, body.amount if field == "amount" else body.container_id) from None

@@ -24,7 +24,8 @@ from service.errors import Conflict, InvalidInput
 from service.rules.subjects import ContainerComponent, ContainerSubject
 from service.chem.content import round_ug
 from service.schemas import ContainerIn, DeterminationIn, EntryIn
-from service.store import runs
+from service.rules import LayeredRules
+from service.store import areas, runs
 from service.store.amounts import assay_ug, element_masses_ug, mass_ug, mg_text
 from service.store.inventory import get, reference
 from service.store.paging import Page, paginate
@@ -108,6 +109,7 @@ def create_container(session: Session, body: ContainerIn) -> WasteContainer:
                                totals=_no_totals())
     session.add(container)
     session.flush()
+    areas.forget(session)
     return container
 
 
@@ -181,13 +183,16 @@ def _lock(session: Session, container_id: int) -> WasteContainer:
 
 
 def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Optional[int], *,
-              balance_elements: tuple[str, ...] = vocab.BALANCE_ELEMENTS) -> WasteEntry:
+              balance_elements: tuple[str, ...] = vocab.BALANCE_ELEMENTS,
+              rules: Optional[LayeredRules] = None) -> WasteEntry:
     """Append an entry, refusing one that would overfill the container, does not fit its form, or
     puts more of a followed element into waste than its run leaves unaccounted.
 
     ``balance_elements`` are the elements the run balance follows (the site's setting).
     The container's row and then the run's are locked, so concurrent entries of one run
-    are judged one after the other against the same balance.
+    are judged one after the other against the same balance. With ``rules`` the container's
+    accumulation area's clock is set when this entry takes the area over a limit
+    (:func:`service.store.areas.refresh_clock`, same transaction).
     """
     container = _lock(session, container_id)
     if container.state != "open":
@@ -234,11 +239,13 @@ def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Opti
     if already + micro >= container.capacity_micro and container.full_at is None:
         container.full_at = entry.at
     session.flush()
+    areas.refresh_clock(session, container.location_id, rules)
     return entry
 
 
-def reverse_entry(session: Session, container_id: int, entry_id: int, reason: str, actor_id: Optional[int]) -> WasteEntry:
-    """A correction: a new entry that negates ``entry_id`` exactly."""
+def reverse_entry(session: Session, container_id: int, entry_id: int, reason: str, actor_id: Optional[int], *,
+                  rules: Optional[LayeredRules] = None) -> WasteEntry:
+    """A correction: a new entry that negates ``entry_id`` exactly (with ``rules``: the area's clock follows)."""
     container = _lock(session, container_id)
     original = session.get(WasteEntry, entry_id)
     if original is None or original.container_id != container.id:
@@ -261,6 +268,7 @@ def reverse_entry(session: Session, container_id: int, entry_id: int, reason: st
     session.add(entry)
     _count(container, entry)
     session.flush()
+    areas.refresh_clock(session, container.location_id, rules)
     return entry
 
 
@@ -284,7 +292,9 @@ def determination_of(container: WasteContainer) -> Optional[WasteDetermination]:
     return container.determinations[-1] if container.determinations else None
 
 
-def move(session: Session, container: WasteContainer, action: str) -> WasteContainer:
+def move(session: Session, container: WasteContainer, action: str, *,
+         rules: Optional[LayeredRules] = None) -> WasteContainer:
+    """Move the container to its next state; a collection leaves the area (with ``rules``: its clock follows)."""
     starts, target, stamp = MOVES[action]
     if container.state not in starts:
         raise Conflict(f"cannot {action.replace('_', ' ')}: container {container.label} is "
@@ -293,6 +303,7 @@ def move(session: Session, container: WasteContainer, action: str) -> WasteConta
     if getattr(container, stamp) is None:
         setattr(container, stamp, utcnow())
     session.flush()
+    areas.refresh_clock(session, container.location_id, rules)
     return container
 
 

@@ -1,7 +1,7 @@
 """waste determinations: the safety officer's confirmed waste codes of a container, append-only
 
 Revision ID: 0018_determinations
-Revises: 0014_stock_movements
+Revises: 0017_accumulation_areas
 Create Date: 2026-12-08 09:00:00
 """
 
@@ -10,7 +10,7 @@ import sqlalchemy as sa
 
 
 revision = '0018_determinations'
-down_revision = '0014_stock_movements'
+down_revision = '0017_accumulation_areas'
 branch_labels = None
 depends_on = None
 

@@ -1,7 +1,7 @@
 """holding changes: the element content of stocks and mixtures, change by change; times of outputs and losses
 
 Revision ID: 0019_holding_changes
-Revises: 0014_stock_movements
+Revises: 0018_determinations
 Create Date: 2026-12-02 15:40:00
 
 A database that already holds stocks starts its record with one "carried_over" row per element of
@@ -16,7 +16,7 @@ import sqlalchemy as sa
 
 
 revision = '0019_holding_changes'
-down_revision = '0014_stock_movements'
+down_revision = '0018_determinations'
 branch_labels = None
 depends_on = None
 
