@@ -441,6 +441,7 @@ def estimate(**options) -> None:
     from pydantic import ValidationError
 
     from service import estimates
+    from service.chem.figures import concentration_text, percent_text
     from service.chem.units import QuantityError
     from service.nano import NanoError
     from service.schemas import EstimateIn
@@ -454,7 +455,7 @@ def estimate(**options) -> None:
     click.echo(f"{result['core']}{'/' + result['shell'] if result['shell'] else ''} at {result['wavelength_nm']:g} nm: "
                f"core diameter {result['core_diameter_nm']:.2f} nm, "
                f"ε {result['extinction_per_m_per_cm']:.3g} M⁻¹ cm⁻¹, "
-               f"particles {result['particle_concentration_mol_per_l']:.3g} mol/L")
+               f"particles {concentration_text(result['particle_concentration_mol_per_l'], 'mol/L')}")
     for row in result["elements"]:
-        click.echo(f"  {row['element']:<2} {row['mass_mg']:10.3f} mg  (± {100 * row['relative_uncertainty']:.0f} %)")
+        click.echo(f"  {row['element']:<2} {row['mass_mg']:10.3f} mg  (± {percent_text(100 * row['relative_uncertainty'])})")
     click.echo(result["caution"])

@@ -15,7 +15,7 @@ from pydantic import AfterValidator, BaseModel, BeforeValidator, ConfigDict, Fie
 
 from service import vocab
 from service.chem.substances import Substance as CatalogueSubstance
-from service.chem.units import LIMITS, MAX_AMOUNT_CHARS, check_bounds, parse_quantity
+from service.chem.units import LIMITS, MAX_AMOUNT_CHARS, parse_amount
 from service.datafiles import load_data_file
 from service.resources import RULES_DIR
 
@@ -121,13 +121,18 @@ Text = Annotated[str, AfterValidator(lambda v: _plain_text(v, newlines=True))]
 
 def _amount(*kinds: str, example: str):
     """An amount text of one of ``kinds``: at most MAX_AMOUNT_CHARS characters (checked before parsing),
-    within service.chem.units.LIMITS, and not below the smallest unit kept (1 µg, 1 µL)."""
+    within service.chem.units.LIMITS, and not below the smallest unit kept (1 µg, 1 µL).
+
+    Every amount field of an API body, page form or import row is one of these types, so each goes
+    through the one bound check (:func:`service.chem.units.parse_amount`)."""
 
     def check(text: str) -> str:
-        check_bounds(parse_quantity(text, expect=kinds), text=text)
+        parse_amount(text, expect=kinds)
         return text
 
-    bounds = "; ".join(f"{k} at most {LIMITS[k][0]}" for k in kinds if k in LIMITS)
+    bounds = "; ".join(f"{k} at most {LIMITS[k][0]}" + (f", and 0 or at least 1 {LIMITS[k][1].replace('u', 'µ')}"
+                                                          if LIMITS[k][1] else "")
+                       for k in kinds if k in LIMITS)
     return Annotated[str, Field(min_length=1, max_length=MAX_AMOUNT_CHARS,
                                 description=f'{" or ".join(kinds)} with unit, e.g. "{example}"; '
                                             f"at most {MAX_AMOUNT_CHARS} characters; {bounds}"),

@@ -8,6 +8,7 @@ character database (U+200B ZERO WIDTH SPACE and U+202E RIGHT-TO-LEFT OVERRIDE ar
 
 from __future__ import annotations
 
+import re
 import time
 
 import pytest
@@ -56,7 +57,7 @@ def test_the_parser_itself_refuses_long_text():
     assert parse_quantity("0.25 g", expect="mass").magnitude == 0.25
 
 
-@pytest.mark.parametrize("amount", ["1e13 g", "1001 kg", "1e400 g", "10001 L"])
+@pytest.mark.parametrize("amount", ["1e13 g", "1001 kg", "1000.001 kg", "1e400 g", "1001 L", "1000.001 L"])
 def test_amounts_beyond_physical_sense_are_422(api, amount):
     # Hole: 1e13 g overflowed int64 / Decimal / float into a 500.
     lab, place = api.lab_and_location()
@@ -159,3 +160,82 @@ def test_control_and_format_characters_are_refused(api, label):
     assert "label" in _fields(error)
     with pytest.raises(ValidationError, match="storage"):
         LocationIn(building="B", room="1", storage=label)
+
+
+# The bounds of service.chem.units (MAX_MASS 1000 kg, MAX_VOLUME 1000 L): at the bound accepted, beside it refused,
+# in any prefix (SI prefixes: 1000 kg = 10^6 g = 10^12 µg; 1000 L = 10^6 mL, from memory).
+@pytest.mark.parametrize("amount", ["1000 kg", "1e6 g", "1e12 ug", "1000 L", "1e6 mL", "1e9 uL"])
+def test_the_largest_amounts_are_accepted(api, amount):
+    lab, place = api.lab_and_location()
+    api.call("POST", "/stocks", _stock(api, lab, place, amount=amount), 201)
+
+
+@pytest.mark.parametrize("amount", ["-1 g", "nan g", "inf g", "-inf g", "1e999 g", "1000000000001 ug"])
+def test_negative_and_non_finite_amounts_are_422(api, amount):
+    lab, place = api.lab_and_location()
+    error = api.call("POST", "/stocks", _stock(api, lab, place, amount=amount), 422)["error"]
+    assert _fields(error) == {"amount"}
+
+
+def test_a_draw_of_1e30_g_is_422_naming_the_draw(api):
+    # Hole: a draw of "1e30 g" answered 500.
+    lab, place = api.lab_and_location()
+    stock = api.call("POST", "/stocks", _stock(api, lab, place), 201)["id"]
+    body = {"lab_id": lab, "title": "bound check", "steps": [{"operation": "heat"}],
+            "draws": [{"stock_id": stock, "amount": "1e30 g"}]}
+    error = api.call("POST", "/procedures", body, 422)["error"]
+    assert _fields(error) == {"draws.0.amount"} and "at most 1000 kg" in error["details"][0]["message"]
+    error = api.call("POST", "/runs", {"procedure_id": 1, "draws": [{"stock_id": stock, "amount": "1e30 g"}]},
+                     422)["error"]
+    assert "draws.0.amount" in _fields(error)
+
+
+def test_a_waste_entry_of_1e20_g_cadmium_is_422(api):
+    # Hole: 1e20 g of Cd was accepted and shown as 87,532,226,955,214,812,348,416.000 mg.
+    lab, place = api.lab_and_location()
+    container = api.call("POST", "/waste_containers", {"label": "W-1", "lab_id": lab, "location_id": place,
+                                                       "stream": "aqueous_heavy_metals", "capacity": "20 L"}, 201)
+    path = f"/waste_containers/{container['id']}/entries"
+    error = api.call("POST", path, {"description": "washes", "volume": "1 L",
+                                    "elements": [{"element": "Cd", "mass": "1e20 g"}]}, 422)["error"]
+    assert _fields(error) == {"elements.0.mass"}
+    # An assay within its own bounds whose product is beyond a tonne: 25 g/mL × 1000 L = 25 000 kg.
+    error = api.call("POST", path, {"description": "washes", "volume": "1 L", "elements": [
+        {"element": "Cd", "concentration": "25 g/mL", "volume": "1000 L"}]}, 422)["error"]
+    assert any(f.startswith("elements") for f in _fields(error)) and "at most 1000 kg" in str(error)
+    assert api.call("GET", f"/waste_containers/{container['id']}")["entries"] == 0
+
+
+def test_a_page_form_takes_the_same_bound(api):
+    # The editor's form is validated by ProcedureIn: the bound and its message sit next to the field.
+    from tests.test_cli import sign_in
+
+    app = api.client.application
+    lab, place = api.lab_and_location()
+    stock = api.call("POST", "/stocks", _stock(api, lab, place), 201)["id"]
+    make_user(app, "res@test.example", "researcher", lab_ids=[lab])
+    client = app.test_client()
+    sign_in(client, "res@test.example", "correct horse battery")
+    with client.session_transaction() as cookie:
+        csrf = cookie["csrf"]
+    response = client.post("/procedures/new", data={
+        "title": "bound check", "lab_id": str(lab), "scale": "1", "steps-0-operation": "heat",
+        "draws-0-source": f"stock:{stock}", "draws-0-amount": "1e30 g", "action": "save", "csrf_token": csrf})
+    page = response.get_data(as_text=True)
+    assert response.status_code == 422
+    assert re.search(r'id="draws-0-amount-error">[^<]*at most 1000 kg', page), page[:3000]
+
+
+def test_the_bounds_keep_micrograms_inside_a_64_bit_column():
+    # A signed 64-bit integer holds up to 2^63 - 1 (PostgreSQL BIGINT; SQLite INTEGER). Raising a bound past
+    # this fails here: the largest derived values are an assay at the bounds and the largest draw × scale 1000.
+    from service.chem.units import INT64_MAX, MAX_MASS, MAX_MASS_CONCENTRATION, MAX_VOLUME, ureg
+    from service.schemas import RunIn
+
+    assert INT64_MAX == 9_223_372_036_854_775_807
+    assay_ug = (ureg.Quantity(MAX_MASS_CONCENTRATION) * ureg.Quantity(MAX_VOLUME)).to("ug").magnitude
+    scale = RunIn.model_fields["scale"].metadata  # le=1000
+    top_scale = next(m.le for m in scale if getattr(m, "le", None) is not None)
+    drawn_ug = ureg.Quantity(MAX_MASS).to("ug").magnitude * top_scale
+    assert max(assay_ug, drawn_ug) < INT64_MAX
+    assert ureg.Quantity(MAX_VOLUME).to("uL").magnitude < INT64_MAX

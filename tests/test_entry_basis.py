@@ -81,7 +81,7 @@ def test_by_share_of_the_remainder(approved):  # noqa: F811
     assert (cd["mass_ug"], se["mass_ug"]) == (cd_share, se_share) == (4386, 474)
     assert cd["basis"] == {"kind": "share", "percent": 80, "of_ug": cd_left, "remaining_ug": cd_left - cd_share}
     assert se["basis"]["of_ug"] == se_left and se["basis"]["remaining_ug"] == se_left - se_share
-    assert "80 % of the 5.483 mg" in cd["basis_note"]
+    assert "80.0 % of the 5.483 mg" in cd["basis_note"]
     assert _balance_row(approved, run, "Cd")["unaccounted_ug"] == cd_left - cd_share
     # 100 % takes exactly what is left; the balance then shows nothing unaccounted
     _entry(approved, [{"element": "Cd", "share_percent": 100}], run=run)
@@ -163,7 +163,7 @@ def test_the_container_page_shows_the_basis(app, client, approved):  # noqa: F81
     _entry(approved, [{"element": "Se", "concentration": "12.5 mg/L", "volume": "4.0 mL"}], volume="4.0 mL")
     sign_in(client, "res@test.example", "correct horse battery")
     page = client.get(f"/waste/{approved['liquid']}").get_data(as_text=True)
-    assert "80 % of the 7.483 mg the run left unaccounted" in page
+    assert "80.0 % of the 7.483 mg the run left unaccounted" in page
     assert "12.5 mg/L × 4.0 mL" in page
 
 

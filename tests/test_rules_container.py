@@ -59,7 +59,7 @@ def test_acetone_wash_with_cadmium(packs):
     """25 mg Cd in 20 L = 1.25 mg/L ≥ 1.0 (261.24 Table 1 D006); acetone −20 °C < 60 °C (261.21); F003 (261.31)."""
     findings = fired(packs, container())
     d006 = findings["us.tc-d006-cadmium"]
-    assert (d006.value, d006.level) == (1.25, "review") and "Suggestion" in d006.message and "1.25 mg/l" in d006.message
+    assert (d006.value, d006.level) == (1.25, "review") and "Suggestion" in d006.message and "1.25 mg/L" in d006.message
     assert {"D006", "D001", "F003", "07 07 04*", "16 05 06*"} <= codes(packs, container())
     assert "spent" in findings["us.f003-acetone"].message
     for finding in findings.values():

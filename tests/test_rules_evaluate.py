@@ -121,7 +121,7 @@ def test_temperature_message_shows_a_difference_not_an_absolute_temperature(tmp_
 @pytest.mark.parametrize(
     "scale, last_approved, threshold, value_text, threshold_shown",
     [
-        (0.93, 1.0, "90 %", "93 %", "90 %"),  # a fraction measure against a percentage threshold
+        (0.93, 1.0, "90 %", "93.0 %", "90 %"),  # a fraction measure against a percentage threshold, one decimal
         (2.0, 3.0, "50 %", "66.7 %", "50 %"),  # 2/3: percentages to one decimal
         (0.90004, 1.0, "90 %", "90.004 %", "90 %"),  # one decimal would read "90 % > 90 %": more places
         (2.0, 1.0, "1.5", "2", "1.5"),  # a plain number stays plain

@@ -24,8 +24,14 @@ __all__ = [
     "mass_g",
     "to_decimal",
     "MAX_AMOUNT_CHARS",
+    "MAX_MASS",
+    "MAX_VOLUME",
+    "MAX_MOLARITY",
+    "MAX_MASS_CONCENTRATION",
+    "INT64_MAX",
     "LIMITS",
     "check_bounds",
+    "parse_amount",
 ]
 
 # Longer text is refused before any parsing: pint's preprocessing grows with the square of the length.
@@ -117,13 +123,25 @@ def parse_quantity(text: str, *, expect: str | tuple[str, ...] | None = None, fi
     return quantity
 
 
-# Physical sense of one amount: (largest value, its unit text, smallest non-zero value kept, its unit).
-# A mass is kept in whole µg and a volume in whole µL; more than a tonne or 10 m³ is no lab amount.
+# Physical sense of one amount entered: the one bound check, applied where text from outside becomes a
+# quantity (:func:`parse_amount`, which the schema types of every API body, page form and import row use).
+# A lab handles at most a tonne of anything and at most a cubic metre of liquid (an intermediate bulk
+# container, the largest vessel a lab site fills); the concentration and molarity bounds are beyond any
+# real solution (osmium, the densest element, is 22.6 g/mL; from memory).
+MAX_MASS = "1000 kg"
+MAX_VOLUME = "1000 L"
+MAX_MOLARITY = "100 mol/L"
+MAX_MASS_CONCENTRATION = "25 g/mL"  # also the density bound
+# Element masses are kept as whole µg and volumes as whole µL in signed 64-bit columns (BIGINT). The
+# largest single value a record derives is an assay at the bounds, 25 g/mL × 1000 L = 2.5 × 10^16 µg,
+# or a draw of 1000 kg at the largest scale (1000) = 10^18 µg, both below INT64_MAX ≈ 9.2 × 10^18 µg.
+INT64_MAX = 2**63 - 1
+# kind -> (largest value, the unit kept as a whole number: a non-zero amount below one of it is refused)
 LIMITS = {
-    "mass": ("1000 kg", "ug"),
-    "volume": ("10000 L", "uL"),
-    "molarity": ("100 mol/L", None),
-    "density": ("25 g/mL", None),  # also a mass concentration; osmium is 22.6 g/mL (from memory)
+    "mass": (MAX_MASS, "ug"),
+    "volume": (MAX_VOLUME, "uL"),
+    "molarity": (MAX_MOLARITY, None),
+    "density": (MAX_MASS_CONCENTRATION, None),
 }
 
 
@@ -131,18 +149,38 @@ def check_bounds(quantity, *, text: str = "", field: Optional[str] = None):
     """``quantity`` if within :data:`LIMITS` for its kind; else QuantityError naming the bound.
 
     A non-zero mass below 1 µg or volume below 1 µL is refused: it would be kept as 0.
+
+    >>> check_bounds(parse_quantity("1000 kg")).magnitude
+    1000
+    >>> check_bounds(parse_quantity("1e30 g"), text="1e30 g", field="amount")
+    Traceback (most recent call last):
+    ...
+    service.chem.units.QuantityError: amount: must be at most 1000 kg ('1e30 g')
     """
     kind = kind_of(quantity)
     if kind not in LIMITS:
         return quantity
     largest, smallest = LIMITS[kind]
     top = ureg.Quantity(largest)
-    if quantity.to(top.units).magnitude > top.magnitude:
+    # the bound converted to the unit as entered, so "1e12 ug" meets "1000 kg" without a float residue
+    if quantity.magnitude > top.to(quantity.units).magnitude:
         raise QuantityError(text, f"must be at most {largest}", field)
     if smallest and 0 < quantity.to(smallest).magnitude < 1:
         shown = smallest.replace("u", "µ")
         raise QuantityError(text, f"below 1 {shown}, the smallest amount kept; give 0 or at least 1 {shown}", field)
     return quantity
+
+
+def parse_amount(text: str, *, expect: str | tuple[str, ...], field: Optional[str] = None):
+    """An amount entered by a person or a client: :func:`parse_quantity`, then :func:`check_bounds`.
+
+    The one edge for amounts from outside; rule thresholds and amounts the service computes
+    (a draw × scale) are parsed with :func:`parse_quantity` alone.
+
+    >>> parse_amount("250 mg", expect="mass").magnitude
+    250
+    """
+    return check_bounds(parse_quantity(text, expect=expect, field=field), text=(text or "").strip(), field=field)
 
 
 def kind_of(quantity) -> Optional[str]:

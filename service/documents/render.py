@@ -14,6 +14,7 @@ from pathlib import Path
 
 from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoescape
 
+from service.chem.figures import TEMPLATE_FILTERS
 from service.resources import TEMPLATES_DIR
 
 __all__ = ["PAGE_SIZES", "Draft", "Document", "canonical_json", "data_sha256", "render_html", "render_pdf", "page_size_css"]
@@ -81,6 +82,7 @@ def _environment() -> Environment:
     env.filters["mg"] = lambda ug: f"{ug / 1000:,.3f}"
     env.filters["num"] = lambda v, fmt="{:,.3g}": "—" if v is None else fmt.format(v)
     env.filters["ts"] = format_timestamp
+    env.filters.update(TEMPLATE_FILTERS)  # concentrations, percentages and units as on the pages
     return env
 
 

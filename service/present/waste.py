@@ -12,6 +12,7 @@ from __future__ import annotations
 from decimal import ROUND_HALF_EVEN, Decimal
 
 from service.appdata import active_rules
+from service.chem.figures import percent_text
 from service.present.areas import area_findings
 from service.present.serialize import element_rows_from, finding
 from service.rules import SEVERITY, highest_level
@@ -122,14 +123,13 @@ def basis_note(basis) -> str:
     """How an entry's element mass was given, in a few words (empty when it was not recorded).
 
     >>> basis_note({"kind": "share", "percent": 80.0, "of_ug": 17500, "remaining_ug": 3500})
-    '80 % of the 17.5 mg the run left unaccounted (3.5 mg left)'
+    '80.0 % of the 17.5 mg the run left unaccounted (3.5 mg left)'
     >>> basis_note({"kind": "assay", "concentration": "12.5 mg/L", "volume": "4.0 mL"})
     '12.5 mg/L × 4.0 mL'
     """
     kind = (basis or {}).get("kind")
     if kind == "share":
-        percent = f"{Decimal(repr(float(basis['percent']))).normalize():f}"
-        return (f"{percent} % of the {mg_text(basis['of_ug'])} the run left unaccounted "
+        return (f"{percent_text(basis['percent'])} of the {mg_text(basis['of_ug'])} the run left unaccounted "
                 f"({mg_text(basis['remaining_ug'])} left)")
     if kind == "assay":
         return f"{basis['concentration']} × {basis['volume']}"

@@ -14,13 +14,12 @@ import re
 from decimal import Decimal
 from typing import Optional
 
+from service.chem.figures import percent
 from service.rules.registry import MeasureNameError, MeasureResult, measure, parameter
 from service.rules.registry import dec as _dec
 from service.rules.registry import plain as _plain
 from service.rules.registry import text as _text
 from service.rules.subjects import ContainerComponent, ContainerSubject
-
-_PERCENT_STEP = Decimal("0.1")  # shares in details read to one decimal ("66.7 %")
 
 __all__ = ["TRACE_FRACTION", "TC_EXTRACT_SOLIDS_PERCENT", "is_water", "concentration_basis", "mg_per_l", "mg_per_kg"]
 
@@ -54,7 +53,7 @@ def _present(subject: ContainerSubject) -> list[ContainerComponent]:
 
 def _fraction(components: list[ContainerComponent]) -> MeasureResult:
     total = sum((_dec(c.volume_fraction) for c in components), Decimal(0))
-    detail = ", ".join(f"{c.name} {_text((_dec(c.volume_fraction) * 100).quantize(_PERCENT_STEP))} %" for c in components)
+    detail = ", ".join(f"{c.name} {percent(_dec(c.volume_fraction) * 100)} %" for c in components)
     return MeasureResult(_plain(total), "", detail)
 
 
@@ -77,11 +76,12 @@ def concentration_basis(subject: ContainerSubject) -> tuple[str, str]:
     if not _liquid(subject):
         return "empty", "No liquid recorded: no concentration."
     share = _dec(subject.filterable_solids_percent)
+    shown = percent(share, apart_from=TC_EXTRACT_SOLIDS_PERCENT)
     if share >= TC_EXTRACT_SOLIDS_PERCENT:
-        return "extraction_test", (f"{_text(share)} % filterable solids (0.5 % or more): the liquid is not itself "
+        return "extraction_test", (f"{shown} % filterable solids (0.5 % or more): the liquid is not itself "
                                    "the toxicity-characteristic extract; the extract of the leaching procedure decides "
                                    "(40 CFR 261.24(a), Method 1311), so no mg/L here compares with a TC limit.")
-    return "extract", (f"{_text(share)} % filterable solids (below 0.5 %): the filtered liquid is itself the "
+    return "extract", (f"{shown} % filterable solids (below 0.5 %): the filtered liquid is itself the "
                        "toxicity-characteristic extract (40 CFR 261.24(a)); its mg/L compare with the TC limits.")
 
 
@@ -117,7 +117,7 @@ def filterable_solids_percent(subject: ContainerSubject, _arg: None) -> MeasureR
     if subject.form == "solid":
         return MeasureResult(100, "percent", "a solid waste")
     share = _dec(subject.filterable_solids_percent)
-    return MeasureResult(_plain(share), "percent", f"{_text(share)} % filterable solids")
+    return MeasureResult(_plain(share), "percent", f"{percent(share, apart_from=TC_EXTRACT_SOLIDS_PERCENT)} % filterable solids")
 
 
 @measure("min_flash_point_present_c", scope="waste_container", unit="degC")
@@ -137,7 +137,7 @@ def min_flash_point_present_c(subject: ContainerSubject, _arg: None) -> Optional
     detail = f"{low.name} flash point {_text(flash_c)} °C"
     water = [c for c in subject.components if is_water(c)]
     if water:
-        detail += f"; water {_text(_dec(water[0].volume_fraction) * 100)} % (aqueous exclusion not assessed)"
+        detail += f"; water {percent(_dec(water[0].volume_fraction) * 100)} % (aqueous exclusion not assessed)"
     return MeasureResult(_plain(flash_c), "degC", detail)
 
 

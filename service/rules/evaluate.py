@@ -13,7 +13,8 @@ from dataclasses import dataclass
 from decimal import ROUND_HALF_EVEN, Decimal
 from typing import Iterable, Optional
 
-from service.rules.loader import ActiveRule, LayeredRules, convert_exact, unit_symbol
+from service.chem.figures import percent, significant
+from service.rules.loader import ActiveRule, LayeredRules, convert_exact, is_concentration, unit_symbol
 from service.rules.measures import MeasureResult
 from service.rules.model import LEVELS, SuggestedCode
 
@@ -28,8 +29,7 @@ _COMPARE = {
     "==": operator.eq,
     "!=": operator.ne,
 }
-_SHOWN_PLACES = Decimal("0.000001")  # values in messages: at most six decimals
-_PERCENT_PLACES = Decimal("0.1")  # measured percentages: one decimal ("66.7 %")
+_SHOWN_PLACES = Decimal("0.000001")  # other values in messages: at most six decimals
 _PERCENT_UNITS = frozenset({"percent", "%"})
 
 
@@ -68,19 +68,27 @@ def _in_threshold_unit(value: Decimal, active: ActiveRule, places: Decimal) -> s
     converted = convert_exact(value, active.definition.unit, active.threshold_unit)
     if converted != converted.to_integral_value():
         converted = converted.quantize(places, rounding=ROUND_HALF_EVEN)
-    number = f"{converted.normalize():f}"
+    return _with_symbol(f"{converted.normalize():f}", active)
+
+
+def _with_symbol(number: str, active: ActiveRule) -> str:
     symbol = unit_symbol(active.threshold_unit)
     return f"{number} {symbol}" if symbol else number
 
 
 def _shown(value: Decimal, active: ActiveRule) -> str:
-    """A measured value in the unit the threshold was written in ("512.3 mg"); percentages to one decimal."""
-    places = _PERCENT_PLACES if active.threshold_unit in _PERCENT_UNITS else _SHOWN_PLACES
-    text = _in_threshold_unit(value, active, places)
-    if value != active.threshold_value and text == _threshold_shown(active):
-        # rounded onto the threshold it crossed ("90 % > 90 %"): show the places that tell them apart
-        text = _in_threshold_unit(value, active, _SHOWN_PLACES)
-    return text
+    """A measured value in the unit the threshold was written in (service.chem.figures): a concentration
+    to 3 significant figures ("0.999 mg/L"), a percentage to one decimal ("66.7 %"), others exact to six
+    decimals ("512.3 mg"). A value that differs from its threshold never reads as the threshold (0.99951
+    would read "1.00 mg/L >= 1.0 mg/L"): it gets the figures that tell them apart ("0.9995 mg/L")."""
+    unit = active.threshold_unit
+    converted = convert_exact(value, active.definition.unit, unit)
+    limit = convert_exact(active.threshold_value, active.definition.unit, unit)
+    if is_concentration(unit):
+        return _with_symbol(significant(converted, apart_from=limit), active)
+    if unit in _PERCENT_UNITS:
+        return _with_symbol(percent(converted, apart_from=limit), active)
+    return _in_threshold_unit(value, active, _SHOWN_PLACES)
 
 
 def _threshold_shown(active: ActiveRule) -> str:

@@ -16,13 +16,14 @@ from typing import Optional
 
 import pint
 
+from service.chem.figures import unit_text
 from service.chem.units import QuantityError, kind_of, parse_quantity
 from service.datafiles import DataFileError, load_data_file
 from service.rules.measures import Measure, MeasureNameError, resolve_measure
 from service.rules.model import SCOPES, Rule, RulePack, WasteCounting
 
 __all__ = ["ActiveRule", "LayeredRules", "load_pack", "load_packs", "parse_threshold", "convert_exact", "unit_symbol",
-           "density_g_per_ml"]
+           "density_g_per_ml", "is_concentration"]
 
 _PACK_NAME = re.compile(r"^[a-z0-9]+(-[a-z0-9]+)*$")
 # Temperature differences: parse_quantity reads plain unit words only, so each spelling is
@@ -53,14 +54,24 @@ def convert_exact(value: Decimal, from_unit: str, to_unit: str) -> Decimal:
 
 
 def unit_symbol(unit: str) -> str:
-    """A short symbol for a pint unit: "ug" -> "µg"; a temperature difference reads as °C / °F.
+    """A short symbol for a pint unit, in the one spelling of :func:`service.chem.figures.unit_text`:
+    "ug" -> "µg", "mg/l" -> "mg/L"; a temperature difference reads as °C / °F.
 
-    >>> unit_symbol("delta_degC"), unit_symbol("milligram"), unit_symbol("")
-    ('°C', 'mg', '')
+    >>> unit_symbol("delta_degC"), unit_symbol("milligram"), unit_symbol("milligram/liter"), unit_symbol("")
+    ('°C', 'mg', 'mg/L', '')
     """
     if not unit or unit == "dimensionless":
         return ""
-    return f"{_exact().Unit(unit):~P}".replace("Δ", "")
+    return unit_text(f"{_exact().Unit(unit):~P}".replace("Δ", ""))
+
+
+def is_concentration(unit: str) -> bool:
+    """True for a mass per volume (mg/L, µg/mL): shown to 3 significant figures.
+
+    >>> is_concentration("mg/L"), is_concentration("mg"), is_concentration("")
+    (True, False, False)
+    """
+    return bool(unit) and _exact().Unit(unit).dimensionality == _exact().Unit("mg/L").dimensionality
 
 
 def _has_offset(unit: str) -> bool:

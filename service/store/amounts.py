@@ -16,7 +16,7 @@ from __future__ import annotations
 from decimal import Decimal
 
 from service.chem.content import round_ug
-from service.chem.units import parse_quantity, to_decimal
+from service.chem.units import check_bounds, parse_quantity, to_decimal, ureg
 from service.errors import InvalidInput
 from service.schemas import AssayIn, ElementAmountIn
 
@@ -29,10 +29,13 @@ def mass_ug(row: ElementAmountIn, field: str) -> int:
 
 
 def assay_ug(assay: AssayIn, field: str = "assay") -> int:
-    """concentration × volume of one assay, in µg rounded once."""
+    """concentration × volume of one assay, in µg rounded once; like an element mass given as such, at
+    most MAX_MASS (each factor is bounded by its schema type, their product by this)."""
     c = to_decimal(parse_quantity(assay.concentration, field=f"{field}.concentration"), "ug/mL")
     v = to_decimal(parse_quantity(assay.volume, expect="volume", field=f"{field}.volume"), "mL")
-    return round_ug(c * v)
+    ug = round_ug(c * v)
+    check_bounds(ureg.Quantity(ug, "ug"), text=f"{assay.concentration} × {assay.volume}", field=field)
+    return ug
 
 
 def element_masses_ug(rows: list[ElementAmountIn], field: str = "elements") -> dict[str, int]:

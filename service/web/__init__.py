@@ -2,7 +2,15 @@
 
 from flask import Blueprint
 
+from service.chem.figures import TEMPLATE_FILTERS
+
 bp = Blueprint("web", __name__)
+
+
+@bp.record_once
+def _filters(state) -> None:
+    # Concentrations, percentages and units read the same on every page and in the documents.
+    state.app.jinja_env.filters.update(TEMPLATE_FILTERS)
 
 
 @bp.app_context_processor
