@@ -585,6 +585,9 @@ class EntryIn(_Body):
         description='per element one of: {"element", "mass"}; an assay {"element", "concentration", "volume"}; '
                     'or {"element", "share_percent"} of what the run leaves unaccounted (needs run_id)')
     filterable_solids_percent: Optional[float] = Field(default=None, ge=0, le=100)
+    ph: Optional[float] = Field(default=None, ge=0, le=14,
+                                description="pH of a liquid entry as measured, 0 to 14; the container's pH is the "
+                                            "one recorded last on an entry that is not reversed")
 
     @field_validator("elements")
     @classmethod

@@ -65,6 +65,7 @@ class ContainerComponent:
     flash_point_c: Optional[float] = None
     flags: frozenset[str] = frozenset()
     halogenated: bool = False
+    density_g_per_ml: Optional[float] = None  # None: not known
 
 
 @dataclass(frozen=True)
@@ -74,7 +75,8 @@ class ContainerSubject:
     ``volume_l`` is the liquid volume (0 for a solids container), ``mass_kg`` the solids
     mass; ``element_mass_ug`` the summed element masses of all entries;
     ``filterable_solids_percent`` decides whether the liquid itself counts as the
-    toxicity-characteristic extract (< 0.5 %, 40 CFR 261.24(a)).
+    toxicity-characteristic extract (< 0.5 %, 40 CFR 261.24(a)); ``ph`` is the pH most
+    recently recorded on an entry that is neither a reversal nor reversed (None: none recorded).
     """
 
     label: str
@@ -89,3 +91,4 @@ class ContainerSubject:
     days_since_first_entry: Optional[float] = None
     days_since_full: Optional[float] = None
     acute_hazardous: bool = False
+    ph: Optional[float] = None  # the pH most recently recorded on an entry that is not reversed
