@@ -31,6 +31,7 @@ class ReagentFacts:
     carcinogen_category: Optional[str] = None  # CLP "1A", "1B", "2"
     flash_point_c: Optional[float] = None  # closed cup; None: none known
     flammable: bool = False  # a flammable liquid: None flash point then means unknown, not safe
+    step: Optional[int] = None  # 0-based position of the step it is added at; None: in the vessel from the start
 
 
 @dataclass(frozen=True)

@@ -346,6 +346,8 @@ class ReagentDraw(Base):
     stock_id: Mapped[Optional[int]] = mapped_column(ForeignKey("stocks.id"))
     mixture_id: Mapped[Optional[int]] = mapped_column(ForeignKey("mixtures.id"))
     amount_text: Mapped[str] = mapped_column(String(60))
+    # 0-based position of the step it is added at; None: in the vessel from the start
+    step: Mapped[Optional[int]] = mapped_column(Integer)
     stock: Mapped[Optional[Stock]] = relationship(lazy="joined")
     mixture: Mapped[Optional[Mixture]] = relationship(lazy="joined")
 
