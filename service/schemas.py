@@ -55,6 +55,7 @@ __all__ = [
     "PAGE_LIMIT_DEFAULT",
     "PAGE_LIMIT_MAX",
     "StepIn",
+    "PlannedDrawIn",
     "DrawIn",
     "WastePlanIn",
     "ProcedureIn",
@@ -484,6 +485,14 @@ class DrawIn(_Body):
         return self
 
 
+class PlannedDrawIn(DrawIn):
+    """A procedure's planned draw: a draw and, optionally, the step it goes into the vessel at."""
+
+    step: Optional[int] = Field(default=None, ge=0, le=199,
+                                description="0-based position of the step the reagent is added at (as the steps' "
+                                            "position); omitted: in the vessel from the start")
+
+
 class WastePlanIn(_Body):
     stream: Label = Field(min_length=1, max_length=60, description="e.g. non-halogenated solvent with heavy metals")
     contents: Text = Field(min_length=1, max_length=2000)
@@ -496,7 +505,7 @@ class ProcedureIn(_Body):
     summary: Optional[Text] = Field(default=None, max_length=5000)
     scale: float = Field(default=1.0, gt=0, le=1000)
     steps: list[StepIn] = Field(min_length=1, max_length=200)
-    draws: list[DrawIn] = Field(min_length=1, max_length=200)
+    draws: list[PlannedDrawIn] = Field(min_length=1, max_length=200)
     waste_plan: list[WastePlanIn] = Field(default_factory=list, max_length=50)
 
 
@@ -505,7 +514,7 @@ class ProcedurePatch(_Body):
     summary: Optional[Text] = Field(default=None, max_length=5000)
     scale: Optional[float] = Field(default=None, gt=0, le=1000)
     steps: Optional[list[StepIn]] = Field(default=None, min_length=1, max_length=200)
-    draws: Optional[list[DrawIn]] = Field(default=None, min_length=1, max_length=200)
+    draws: Optional[list[PlannedDrawIn]] = Field(default=None, min_length=1, max_length=200)
     waste_plan: Optional[list[WastePlanIn]] = Field(default=None, max_length=50)
 
 
@@ -594,6 +603,9 @@ class EntryIn(_Body):
         description='per element one of: {"element", "mass"}; an assay {"element", "concentration", "volume"}; '
                     'or {"element", "share_percent"} of what the run leaves unaccounted (needs run_id)')
     filterable_solids_percent: Optional[float] = Field(default=None, ge=0, le=100)
+    ph: Optional[float] = Field(default=None, ge=0, le=14,
+                                description="pH of a liquid entry as measured, 0 to 14; the container's pH is the "
+                                            "one recorded last on an entry that is not reversed")
 
     @field_validator("elements")
     @classmethod

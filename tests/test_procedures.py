@@ -276,3 +276,43 @@ def test_withdraw_a_submitted_procedure(app, lab):
     decisions = officer.call("GET", f"/procedures/{proc['id']}/decisions")["items"]
     assert [(d["from_state"], d["to_state"]) for d in decisions] == [
         ("draft", "submitted"), ("submitted", "draft"), ("draft", "submitted"), ("submitted", "draft")]
+
+
+def test_acetone_of_the_precipitation_is_not_in_the_hot_flask(lab):
+    # Acetone (flash point −20 °C, NAS 2016 App. D, seen) added at the precipitate step (position 5), after
+    # the last heated step, and TOP (≈146 °C, from memory) at the injection (position 3, 270 °C: 124 degrees):
+    # the 300 °C step is judged over 1-octadecene (≈149 °C, from memory) alone: 151 degrees.
+    body = cdse_core(lab, extra=[{"stock_id": lab["stocks"]["ACE"], "amount": "40 mL", "step": 5}])
+    body["draws"][4]["step"] = 3
+    proc = lab["researcher"].call("POST", "/procedures", body, 201)
+    finding = _measures(proc)["max_temperature_minus_flash_point"]
+    assert finding["value"] == pytest.approx(151, abs=0.5) and "acetone" not in finding["detail"]
+    assert [d["step"] for d in proc["draws"]] == [None, None, None, None, 3, 5]
+    # the same draw without a step is in the flask from the start: 300 − (−20) = 320
+    del body["draws"][-1]["step"]
+    unlinked = lab["researcher"].call("POST", "/procedures", body, 201)
+    assert _measures(unlinked)["max_temperature_minus_flash_point"]["value"] == pytest.approx(320, abs=0.5)
+
+
+def test_a_draw_step_must_name_a_step(lab):
+    body = cdse_core(lab, extra=[{"stock_id": lab["stocks"]["ACE"], "amount": "40 mL", "step": 7}])  # 7 steps: 0–6
+    error = lab["researcher"].call("POST", "/procedures", body, 422)["error"]
+    assert [d["field"] for d in error["details"]] == ["draws[5].step"] and "7 steps" in error["message"]
+    body["draws"][-1]["step"] = -1  # below the schema's bound of 0
+    error = lab["researcher"].call("POST", "/procedures", body, 422)["error"]
+    assert any(d.get("field") == "draws.5.step" for d in error["details"]), error
+    body["draws"][-1]["step"] = 6  # the last step: accepted
+    proc = lab["researcher"].call("POST", "/procedures", body, 201)
+    # fewer steps in a later edit would leave the draw pointing at nothing: refused, naming the draw
+    error = lab["researcher"].call("PATCH", f"/procedures/{proc['id']}", {"steps": body["steps"][:3]}, 422)["error"]
+    assert [d["field"] for d in error["details"]] == ["draws[5].step"]
+
+
+def test_a_new_revision_keeps_the_draw_steps(lab):
+    researcher, officer = lab["researcher"], lab["officer"]
+    body = cdse_core(lab, extra=[{"stock_id": lab["stocks"]["ACE"], "amount": "40 mL", "step": 5}])
+    proc = researcher.call("POST", "/procedures", body, 201)
+    researcher.call("POST", f"/procedures/{proc['id']}/submit")
+    officer.call("POST", f"/procedures/{proc['id']}/approve", {"comment": "Argon line and controller checked."})
+    revision = researcher.call("PATCH", f"/procedures/{proc['id']}", {"title": "CdSe cores, revision 2"}, 201)
+    assert revision["revision"] == 2 and [d["step"] for d in revision["draws"]] == [None] * 5 + [5]

@@ -4,8 +4,11 @@ Sources: 40 CFR 261.24 Table 1 — D006 Cd 1.0 mg/L (seen), D010 Se 1.0 mg/L
 (2nd), D022 chloroform 6.0 mg/L (seen); 261.24(a) < 0.5 % filterable solids: the waste is its
 own extract (seen); 261.21(a)(1) D001 flash point < 60 °C (seen); 261.31 F003 acetone (seen),
 F005 toluene ≥ 10 % by volume (2nd), chloroform and hexane not F-listed (seen) (the satellite
-accumulation limits are per area: tests/test_areas.py); List of Waste 2000/532/EC: 07 07 03*, 07 07 04*, 16 05 06* (2nd). Flash points: acetone −20 °C,
-toluene 4 °C, n-hexane −22 °C; chloroform none (NAS 2016; Prudent Practices — seen).
+accumulation limits are per area: tests/test_areas.py); 262.208(a) 12 months (seen);
+List of Waste 2000/532/EC as amended by 2014/955/EU: 07 07 03*, 07 07 04*, 15 02 02*, 16 05 06* (2nd).
+261.21(a)(1) excludes aqueous solutions with less than 24 % alcohol by volume (seen); 261.22(a)(1) D002:
+aqueous with pH ≤ 2 or ≥ 12.5 (seen). Flash points: acetone −20 °C, ethanol 13 °C, toluene 4 °C,
+n-hexane −22 °C; chloroform none; chloroform density 1.498 g/mL (NAS 2016; Prudent Practices — seen).
 Unit relations: 1 US gallon = 3.785411784 L and 1 US quart = 0.946352946 L exactly (NIST
 Handbook 44, Appendix C). The 0.01 "trace" cut-off is the project's choice, not a regulation.
 """
@@ -28,7 +31,8 @@ from service.rules.subjects import ContainerComponent, ContainerSubject
 RULES = Path(__file__).resolve().parents[1] / "rules"
 FLAMMABLE = frozenset({"flammable"})
 ACETONE = ContainerComponent("acetone", "acetone", 1.0, -20.0, FLAMMABLE)
-CHLOROFORM = ContainerComponent("chloroform", "chloroform", 1.0, None, halogenated=True)
+CHLOROFORM = ContainerComponent("chloroform", "chloroform", 1.0, None, halogenated=True, density_g_per_ml=1.498)
+ALCOHOL = frozenset({"flammable", "alcohol"})
 
 
 @pytest.fixture(scope="module")
@@ -213,7 +217,9 @@ def test_vocabulary_lists_every_container_measure():
         "listed_solvent_fraction:<key>": "", "halogenated_fraction": "", "halogen_free_solvent_fraction": "",
         "volume_l": "L", "fill_fraction": "", "mass_kg": "kg", "days_since_full": "day",
         "days_since_first_entry": "day", "acute_hazardous": "", "acute_volume_l": "L", "acute_mass_kg": "kg",
-        "container_element_mass:<El>": "ug",
+        "container_element_mass:<El>": "ug", "component_concentration_mg_per_l:<key>": "mg/L",
+        "min_flash_point_outside_aqueous_alcohol_c:<percent>": "degC", "aqueous_ph": "",
+        "stream_element_mass:<stream>:<El>": "ug", "element_mass_outside_stream:<stream>:<El>": "ug",
     }  # fmt: skip
 
 
@@ -231,3 +237,172 @@ def test_shares_in_details_read_to_one_decimal():
     mix = (ContainerComponent("acetone", "acetone", 2 / 3, -20.0, FLAMMABLE),
            ContainerComponent("1-octadecene", "1-octadecene", 1 / 3, 149.0, FLAMMABLE))  # fmt: skip
     assert compute("listed_solvent_fraction:acetone", container(components=mix)).detail == "acetone 66.7 %"
+
+
+# --- D022 chloroform, 40 CFR 261.24(b) Table 1: 6.0 mg/L -----------------------------------------
+
+
+def chloroform_in(volume_l: float, chloroform_ml: float, density: float = 1.498, **extra) -> ContainerSubject:
+    """A halogenated liquid waste: ``chloroform_ml`` of chloroform, the rest water, in ``volume_l``."""
+    fraction = chloroform_ml / 1000 / volume_l
+    parts = (ContainerComponent("chloroform", "chloroform", fraction, None, halogenated=True, density_g_per_ml=density),
+             ContainerComponent("water", "water", 1 - fraction))
+    return container(volume_l, 0, parts, **extra)
+
+
+def test_five_ml_chloroform_in_a_litre_is_d022(packs):
+    """5 mL × 1.498 g/mL = 7.49 g = 7 490 mg in 1 L: 7 490 mg/L, far above Table 1's 6.0 mg/L (D022)."""
+    subject = chloroform_in(1.0, 5.0)
+    finding = fired(packs, subject)["us.tc-d022-chloroform"]
+    assert finding.value == 7490 and finding.unit == "mg/L" and finding.suggested_code.code == "D022"
+    assert finding.threshold_value == Decimal("6.0") and "261.24" in finding.source
+    assert "chloroform 5 mL × 1.498 g/mL in 1 L" in finding.detail
+    assert "safety officer" in finding.disclaimer
+
+
+@pytest.mark.parametrize(
+    "chloroform_ml, density, fires",
+    [
+        (0.004, 1.5, True),  # 4 µL × 1.5 g/mL (a test density) = 6 mg in 1 L: exactly 6.0 mg/L, ">=" fires
+        (0.0039, 1.5, False),  # 5.85 mg/L
+        (0.004, 1.498, False),  # 4 µL of chloroform: 5.992 mg/L, just below
+        (0.005, 1.498, True),  # 5 µL: 7.49 mg/L
+    ],
+)
+def test_d022_boundary_at_six_mg_per_litre(packs, chloroform_ml, density, fires):
+    assert ("us.tc-d022-chloroform" in fired(packs, chloroform_in(1.0, chloroform_ml, density))) is fires
+
+
+def test_d022_follows_the_extract_basis_and_needs_a_density(packs):
+    # 261.24(a): from 0.5 % filterable solids the liquid is not the extract; the extraction test decides
+    findings = fired(packs, chloroform_in(1.0, 5.0, filterable_solids_percent=0.5))
+    assert "us.tc-d022-chloroform" not in findings and "us.tc-extraction-test-needed" in findings
+    unknown = (ContainerComponent("chloroform", "chloroform", 0.5, None, halogenated=True),)
+    assert compute("component_concentration_mg_per_l:chloroform", container(components=unknown)) is None
+    assert compute("component_concentration_mg_per_l:chloroform", container()).value == 0  # none recorded
+
+
+# --- EU List of Waste: contaminated solids 15 02 02* instead of 16 05 06* --------------------------
+
+
+def solids(stream: str, cd_ug: int) -> ContainerSubject:
+    return ContainerSubject("S-1", stream, "solid", 0.0, 0.035, None, {"Cd": cd_ug} if cd_ug else {})
+
+
+def test_gloves_and_wipes_with_cadmium_get_15_02_02(packs):
+    """2000/532/EC as amended by 2014/955/EU: 15 02 02* absorbents, filter materials, wiping cloths,
+    protective clothing contaminated by hazardous substances (2nd)."""
+    found = codes(packs, solids("contaminated_solids", 2_000))
+    assert "15 02 02*" in found and "16 05 06*" not in found
+    finding = fired(packs, solids("contaminated_solids", 2_000))["eu.low-absorbents-cadmium"]
+    assert "2000/532/EC" in finding.source and "2014/955/EU" in finding.source and "safety officer" in finding.disclaimer
+
+
+@pytest.mark.parametrize(
+    "stream, cd_ug, expected, absent",
+    [
+        ("contaminated_solids", 1, "15 02 02*", "16 05 06*"),  # 1 µg Cd: above "0 mg"
+        ("contaminated_solids", 0, None, "15 02 02*"),  # no hazardous metal recorded: neither code
+        ("sharps", 2_000, "16 05 06*", "15 02 02*"),  # the stream decides, not the solid form
+    ],
+)
+def test_the_stream_decides_between_15_02_02_and_16_05_06(packs, stream, cd_ug, expected, absent):
+    found = codes(packs, solids(stream, cd_ug))
+    assert absent not in found and (expected is None or expected in found)
+    if expected is None:
+        assert "16 05 06*" not in found
+
+
+def test_liquid_wastes_keep_16_05_06(packs):
+    assert "15 02 02*" not in codes(packs, container()) and "16 05 06*" in codes(packs, container())
+
+
+@pytest.mark.parametrize("name, phrase", [("stream_element_mass:gloves:Cd", "not a waste stream"),
+                                          ("stream_element_mass:contaminated_solids", "give the stream and an element"),
+                                          ("element_mass_outside_stream:sharps:cd", "not an element symbol")])
+def test_stream_measure_arguments_are_checked(name, phrase):
+    with pytest.raises(MeasureNameError, match=phrase):
+        resolve_measure(name)
+
+
+# --- D001 and the aqueous-alcohol exclusion, 40 CFR 261.21(a)(1) ------------------------------------
+
+
+def water_with(alcohol_fraction: float, key: str = "ethanol", flags=ALCOHOL, flash_c: float = 13.0,
+               recorded: float = 1.0) -> ContainerSubject:
+    parts = (ContainerComponent(key, key, alcohol_fraction, flash_c, flags),
+             ContainerComponent("water", "water", recorded - alcohol_fraction))
+    return container(10.0, 0, parts)
+
+
+@pytest.mark.parametrize(
+    "ethanol, d001",
+    [
+        (0.10, False),  # 10 % ethanol in water: excluded (less than 24 % alcohol by volume)
+        (0.239, False),  # 23.9 %: still excluded
+        (0.24, True),  # 24 %: "less than 24 percent" no longer holds; ethanol 13 °C < 60 °C
+        (0.30, True),  # 30 %
+    ],
+)
+def test_aqueous_ethanol_is_excluded_below_24_percent(packs, ethanol, d001):
+    assert ("us.d001-ignitable-liquid" in fired(packs, water_with(ethanol))) is d001
+
+
+def test_the_exclusion_needs_water_and_alcohols_only(packs):
+    # acetone is not an alcohol: 10 % acetone in water is not excluded (flash point −20 °C)
+    assert "us.d001-ignitable-liquid" in fired(packs, water_with(0.10, "acetone", FLAMMABLE, -20.0))
+    # 5 % of the volume not accounted for by any recorded component: not known to be aqueous
+    assert "us.d001-ignitable-liquid" in fired(packs, water_with(0.10, recorded=0.95))
+    # without water it is no aqueous solution at all
+    neat = container(10.0, 0, (ContainerComponent("ethanol", "ethanol", 1.0, 13.0, ALCOHOL),))
+    assert "us.d001-ignitable-liquid" in fired(packs, neat)
+    finding = fired(packs, water_with(0.30))["us.d001-ignitable-liquid"]
+    assert "30 % alcohol by volume" in finding.detail and "261.21(a)(1)" in finding.source
+
+
+def test_alcohol_percent_argument_is_checked():
+    for bad in ("24 %", "101", "-1", "x"):
+        with pytest.raises(MeasureNameError, match="percentage"):
+            resolve_measure(f"min_flash_point_outside_aqueous_alcohol_c:{bad}")
+
+
+# --- D002 corrosivity, 40 CFR 261.22(a)(1): aqueous with pH <= 2 or >= 12.5 -------------------------
+
+
+def aqueous(ph, components=(ContainerComponent("water", "water", 1.0),), form="liquid") -> ContainerSubject:
+    return container(volume_l=5.0 if form == "liquid" else 0.0, cd_ug=0, components=components, form=form, ph=ph)
+
+
+@pytest.mark.parametrize(
+    "ph, rule_id, fires",
+    [
+        (2.0, "us.d002-corrosive-acid", True),
+        (2.1, "us.d002-corrosive-acid", False),
+        (12.4, "us.d002-corrosive-base", False),
+        (12.5, "us.d002-corrosive-base", True),
+        (0.0, "us.d002-corrosive-acid", True),
+        (14.0, "us.d002-corrosive-base", True),
+    ],
+)
+def test_d002_at_ph_2_and_12_5(packs, ph, rule_id, fires):
+    findings = fired(packs, aqueous(ph))
+    assert (rule_id in findings) is fires
+    if fires:
+        assert findings[rule_id].suggested_code.code == "D002" and "261.22(a)(1)" in findings[rule_id].source
+        assert "safety officer" in findings[rule_id].disclaimer
+
+
+@pytest.mark.parametrize("ph", [2.1, 7.0, 12.4])
+def test_no_d002_between(packs, ph):
+    assert "D002" not in codes(packs, aqueous(ph))
+
+
+def test_d002_only_for_aqueous_liquids_with_a_ph(packs):
+    assert "D002" not in codes(packs, aqueous(None))  # no pH recorded
+    mostly_acetone = (ContainerComponent("acetone", "acetone", 0.6, -20.0, FLAMMABLE),
+                      ContainerComponent("water", "water", 0.4))  # fmt: skip
+    assert "D002" not in codes(packs, aqueous(1.0, mostly_acetone))  # not aqueous: 60 % organic
+    half = (ContainerComponent("acetone", "acetone", 0.5, -20.0, FLAMMABLE), ContainerComponent("water", "water", 0.5))
+    assert "D002" in codes(packs, aqueous(1.0, half))  # half organic: still aqueous (our reading)
+    assert "D002" in codes(packs, aqueous(1.0, ()))  # nothing recorded against it: taken as aqueous
+    assert compute("aqueous_ph", aqueous(1.0, (), form="solid")) is None

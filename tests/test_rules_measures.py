@@ -8,6 +8,8 @@ from memory).
 
 from __future__ import annotations
 
+import dataclasses
+
 import pytest
 
 from service.rules.measures import MEASURES, MeasureNameError, resolve_measure, vocabulary
@@ -106,6 +108,52 @@ def test_temperature_minus_flash_point_names_liquid_and_step():
 )
 def test_temperature_minus_flash_point_not_applicable(reagents, steps):
     assert compute("max_temperature_minus_flash_point", subject(reagents, steps)) is None
+
+
+# A CdSe core synthesis as planned (positions 0-based): 1-octadecene from the start, TOP-Se injected at step
+# 2, acetone at the precipitation (step 4), hexane to redisperse after centrifuging (step 6).
+# Acetone −20 °C (NAS 2016, App. D, seen), n-hexane −22 °C, 1-octadecene ≈149 °C (from memory).
+ACETONE = ReagentFacts("acetone", "40 mL", "liquid", flash_point_c=-20.0, flammable=True)
+CORE_STEPS = [StepFacts(0, "degas", 120.0, "vacuum"), StepFacts(1, "heat", 300.0, "argon"),
+              StepFacts(2, "inject", 270.0, "argon"), StepFacts(3, "cool", None, "argon"),
+              StepFacts(4, "precipitate"), StepFacts(5, "centrifuge"), StepFacts(6, "mix", 20.0)]
+
+
+def at_step(reagent: ReagentFacts, step: int) -> ReagentFacts:
+    return dataclasses.replace(reagent, step=step)
+
+
+def test_solvents_added_after_the_heated_steps_do_not_count():
+    reagents = [ODE, at_step(TOP, 2), at_step(ACETONE, 4), at_step(HEXANE, 6)]
+    result = compute("max_temperature_minus_flash_point", subject(reagents, CORE_STEPS))
+    # the flask at 300 °C holds 1-octadecene (149 °C) only: 151 degrees, not 300 − (−20) = 320 for acetone
+    assert result.value == 151 and result.detail == "step 2 (heat) at 300 °C; 1-octadecene flash point 149 °C"
+
+
+def test_a_draw_without_a_step_is_in_the_vessel_from_the_start():
+    # the same acetone with no step: in the flask from the start, so 300 − (−20) = 320
+    result = compute("max_temperature_minus_flash_point", subject([ODE, ACETONE], CORE_STEPS))
+    assert result.value == 320 and "acetone" in result.detail
+
+
+@pytest.mark.parametrize(
+    "step, value, where",
+    [
+        (1, 322, "step 2 (heat) at 300 °C"),  # hexane added at the heat step counts there: 300 − (−22)
+        (2, 292, "step 3 (inject) at 270 °C"),  # added at the injection: counts from that step on, 270 − (−22)
+        (3, 42, "step 7 (mix) at 20 °C"),  # added after the hot steps: only the 20 °C step sees it, 20 − (−22)
+    ],
+)
+def test_each_step_is_judged_over_what_is_in_the_vessel_then(step, value, where):
+    reagents = [ReagentFacts("wax", "1 g", "solid", flash_point_c=200.0), at_step(HEXANE, step)]
+    result = compute("max_temperature_minus_flash_point", subject(reagents, CORE_STEPS))
+    assert result.value == value and result.detail.startswith(where)
+
+
+def test_no_liquid_in_the_vessel_at_a_step_with_a_temperature():
+    # acetone added at the precipitation (no temperature), nothing else liquid: not applicable
+    steps = CORE_STEPS[:6]
+    assert compute("max_temperature_minus_flash_point", subject([CDO, at_step(ACETONE, 4)], steps)) is None
 
 
 def test_unknown_flash_point_of_a_flammable_liquid_is_counted():

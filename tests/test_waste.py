@@ -319,3 +319,82 @@ def test_a_determination_out_of_bounds_is_refused_naming_the_field(app, client, 
     container = _container(site)
     error = _officer(app, client, site).call("POST", f"/waste_containers/{container['id']}/determination", body, 422)
     assert error["error"]["details"][0]["field"] == field, error
+
+
+def _entry(site, container_id, body, expect=201):
+    return site["researcher"].call("POST", f"/waste_containers/{container_id}/entries",
+                                   {"description": "test entry", **body}, expect)
+
+
+def _parts(site, **volumes):
+    return [{"substance_id": site["admin"].substance_id(name.replace("_", "-")), "volume": volume}
+            for name, volume in volumes.items()]
+
+
+def test_five_ml_chloroform_in_a_litre_suggests_d022(site):
+    # 40 CFR 261.24(b) Table 1, D022 chloroform 6.0 mg/L (seen). 5 mL × 1.498 g/mL (catalogue; NAS 2016, seen)
+    # = 7.49 g in 1 L = 7 490 mg/L. 4 µL in 1 L: 5.992 mg/L, below.
+    found = {}
+    for label, chloroform in (("W-H1", "5 mL"), ("W-H2", "4 uL")):
+        container = _container(site, label, "10 L", "halogenated_solvent_heavy_metals")
+        _entry(site, container["id"], {"volume": "1 L", "components": _parts(site, chloroform=chloroform, water="995 mL")})
+        read = site["researcher"].call("GET", f"/waste_containers/{container['id']}")
+        found[label] = {f["rule_id"]: f for f in read["findings"]}
+    d022 = found["W-H1"]["us.tc-d022-chloroform"]
+    assert d022["value"] == 7490 and d022["suggested_code"]["code"] == "D022" and "safety officer" in d022["disclaimer"]
+    assert "us.tc-d022-chloroform" not in found["W-H2"]
+
+
+def test_gloves_with_cadmium_suggest_15_02_02(site):
+    # List of Waste 2000/532/EC as amended by 2014/955/EU: 15 02 02* (2nd), not 16 05 06*.
+    container = _container(site, "W-S1", "5 kg", "contaminated_solids")
+    _entry(site, container["id"], {"mass": "35 g", "elements": [{"element": "Cd", "mass": "2 mg"}]})
+    codes = _codes(site["researcher"].call("GET", f"/waste_containers/{container['id']}"))
+    assert "15 02 02*" in codes and "16 05 06*" not in codes
+
+
+@pytest.mark.parametrize("ethanol, water, d001", [("100 mL", "900 mL", False), ("300 mL", "700 mL", True)])
+def test_aqueous_ethanol_below_24_percent_is_not_d001(site, ethanol, water, d001):
+    # 40 CFR 261.21(a)(1): aqueous solutions with less than 24 % alcohol by volume are excluded (seen);
+    # ethanol flash point 13 °C (NAS 2016, App. D, seen).
+    container = _container(site, "W-A1", "10 L", "aqueous_heavy_metals")
+    _entry(site, container["id"], {"volume": "1 L", "components": _parts(site, ethanol=ethanol, water=water)})
+    assert ("D001" in _codes(site["researcher"].call("GET", f"/waste_containers/{container['id']}"))) is d001
+
+
+@pytest.mark.parametrize("ph, code", [(2.0, "D002"), (2.1, None), (12.4, None), (12.5, "D002")])
+def test_ph_of_an_aqueous_waste_and_d002(site, ph, code):
+    # 40 CFR 261.22(a)(1): aqueous with pH <= 2 or >= 12.5 is corrosive, D002 (seen).
+    container = _container(site, "W-P1", "10 L", "aqueous_heavy_metals")
+    entry = _entry(site, container["id"], {"volume": "1 L", "ph": ph, "components": _parts(site, water="1 L")})
+    read = site["researcher"].call("GET", f"/waste_containers/{container['id']}")
+    assert entry["ph"] == ph and read["ph"] == ph
+    assert ("D002" in _codes(read)) is (code == "D002")
+
+
+def test_the_container_ph_is_the_last_one_on_an_entry_still_standing(site):
+    container = _container(site, "W-P2", "10 L", "aqueous_heavy_metals")
+    water = _parts(site, water="1 L")
+    _entry(site, container["id"], {"volume": "1 L", "ph": 7.0, "components": water})
+    _entry(site, container["id"], {"volume": "1 L", "components": water})  # no pH measured: the last one stands
+    acid = _entry(site, container["id"], {"volume": "1 L", "ph": 1.0, "components": water})
+    read = site["researcher"].call("GET", f"/waste_containers/{container['id']}")
+    assert read["ph"] == 1.0 and "D002" in _codes(read)
+    reversal = site["researcher"].call("POST", f"/waste_containers/{container['id']}/entries/{acid['id']}/reverse",
+                                       {"reason": "pH read on the wrong sample"}, 201)
+    assert reversal["ph"] is None
+    read = site["researcher"].call("GET", f"/waste_containers/{container['id']}")
+    assert read["ph"] == 7.0 and "D002" not in _codes(read)
+
+
+@pytest.mark.parametrize("ph", [-0.1, 14.1, "2"])
+def test_ph_is_bounded(site, ph):
+    container = _container(site, "W-P3", "10 L", "aqueous_heavy_metals")
+    error = _entry(site, container["id"], {"volume": "1 L", "ph": ph}, 422)["error"]
+    assert any(d.get("field") == "ph" for d in error["details"]), error
+
+
+def test_a_solids_entry_takes_no_ph(site):
+    container = _container(site, "W-S2", "5 kg", "contaminated_solids")
+    error = _entry(site, container["id"], {"mass": "35 g", "ph": 7.0}, 422)["error"]
+    assert [d["field"] for d in error["details"]] == ["ph"]

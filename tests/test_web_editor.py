@@ -292,3 +292,23 @@ def test_a_check_drops_blank_rows_above_filled_ones_so_step_numbers_agree(app, l
     first = re.search(r'<select\s+id="steps-0-operation".*?</select>', text, re.S).group(0)
     assert re.search(r'<option value="degas"[^>]*selected', first), first
     assert 'id="steps-3-operation"' not in text  # three filled rows, numbered 1 to 3
+
+
+def test_the_step_a_draw_is_added_at_round_trips_counted_from_one(app, lab):
+    """The form counts steps from 1 as the page shows them; the body and the API from 0 (the steps' position)."""
+    client = _signed_in(app, "res@test.example")
+    form = _form(lab, **{"draws-1-step": "3"})  # Se at the injection, shown as step 3
+    response = client.post("/procedures/new", data={**form, "action": "save", "csrf_token": _csrf(client)})
+    assert response.status_code == 303, response.get_data(as_text=True)
+    ident = int(re.search(r"/procedures/(\d+)\?done=created", response.headers["Location"])[1])
+    assert [d["step"] for d in lab["researcher"].call("GET", f"/procedures/{ident}")["draws"]] == [None, 2, None]
+    page = client.get(f"/procedures/{ident}/edit").get_data(as_text=True)
+    assert re.search(r'<input id="draws-1-step" [^>]*value="3"', page)
+    # saving the page again keeps the step (it is not dropped by the round trip)
+    client.post(f"/procedures/{ident}/edit", data={**form, "title": "CdSe cores, again", "action": "save",
+                                                   "csrf_token": _csrf(client)})
+    assert lab["researcher"].call("GET", f"/procedures/{ident}")["draws"][1]["step"] == 2
+    for typed, message in (("0", "Give the number of a step"), ("4", "No step at position 3: the procedure has 3 steps")):
+        bad = client.post("/procedures/new", data={**_form(lab, **{"draws-1-step": typed}), "action": "save",
+                                                   "csrf_token": _csrf(client)})
+        assert bad.status_code == 422 and re.search(rf'id="draws-1-step-error">{message}', bad.get_data(as_text=True))

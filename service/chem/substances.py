@@ -41,6 +41,7 @@ Flag = Literal[
     "stench",
     "inert_gas",
     "environmental",    # Aquatic Acute 1 / Chronic 1–2
+    "alcohol",          # an alcohol (R–OH on a saturated carbon): counts toward the alcohol of an aqueous solution
 ]
 FLAGS: tuple[str, ...] = Flag.__args__  # type: ignore[attr-defined]
 

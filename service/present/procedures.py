@@ -23,6 +23,7 @@ def _draw(draw, reagent) -> dict:
         "label": source.label,
         "name": reagent.name,
         "amount": draw.amount_text,
+        "step": draw.step,
         "elements": element_rows_from(reagent.element_mass_ug),
     }
 

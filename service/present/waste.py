@@ -58,7 +58,7 @@ def dump_container(container: WasteContainer) -> dict:
         "first_entry_at": _iso(container.first_entry_at), "full_at": _iso(container.full_at),
         "pickup_requested_at": _iso(container.pickup_requested_at), "collected_at": _iso(container.collected_at),
         "entries": contents.entries, **amounts(subject, contents, container.capacity_micro),
-        "concentration_basis": basis, "concentration_note": note,
+        "concentration_basis": basis, "concentration_note": note, "ph": subject.ph,
         "elements": [{**row, **concentrations(subject, row["element"], basis)}
                      for row in element_rows_from(contents.element_mass_ug)],
         "solvent_composition": [{"substance": c.name, "key": c.key, "volume_percent": round(100 * c.volume_fraction, 3)}
@@ -110,7 +110,7 @@ def dump_entry(entry: WasteEntry) -> dict:
         "id": entry.id, "container_id": entry.container_id, "run_id": entry.run_id, "actor_id": entry.actor_id,
         "at": entry.at.isoformat(), "description": entry.description, "volume_ml": entry.volume_ul / 1000,
         "mass_g": entry.mass_ug / 1e6, "filterable_solids_percent": entry.filterable_solids_percent,
-        "reverses_entry_id": entry.reverses_entry_id,
+        "ph": entry.ph, "reverses_entry_id": entry.reverses_entry_id,
         "components": [{"substance_id": c.substance_id, "substance": session.get(Substance, c.substance_id).name,
                         "volume_ml": c.volume_ul / 1000} for c in entry.components],
         "elements": [{**row, "basis": e.basis, "basis_note": basis_note(e.basis)}

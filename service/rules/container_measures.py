@@ -15,17 +15,26 @@ from decimal import Decimal
 from typing import Optional
 
 from service.chem.figures import percent
+from service import vocab
 from service.rules.registry import MeasureNameError, MeasureResult, measure, parameter
 from service.rules.registry import dec as _dec
 from service.rules.registry import plain as _plain
 from service.rules.registry import text as _text
 from service.rules.subjects import ContainerComponent, ContainerSubject
 
-__all__ = ["TRACE_FRACTION", "TC_EXTRACT_SOLIDS_PERCENT", "is_water", "concentration_basis", "mg_per_l", "mg_per_kg"]
+_PERCENT_STEP = Decimal("0.1")  # shares in details read to one decimal ("66.7 %")
+
+__all__ = ["TRACE_FRACTION", "TC_EXTRACT_SOLIDS_PERCENT", "AQUEOUS_NON_WATER_LIMIT", "is_water", "concentration_basis",
+           "aqueous_alcohol_share", "mg_per_l", "mg_per_kg"]
 
 TRACE_FRACTION = Decimal("0.01")
 TC_EXTRACT_SOLIDS_PERCENT = Decimal("0.5")  # 40 CFR 261.24(a), seen: below it the liquid is the extract
+# A liquid counts as aqueous for the pH measure unless its recorded non-water components exceed half
+# its volume — our reading (DEVELOPERS.md, "Choices made where the design is silent"), not a regulatory value.
+AQUEOUS_NON_WATER_LIMIT = Decimal("0.5")
+_MG_PER_L_PER_G_PER_ML = Decimal(1_000_000)  # 1 g/mL = 10⁶ mg/L
 _KEY = re.compile(r"^[a-z0-9]+(-[a-z0-9]+)*$")
+_PERCENT = re.compile(r"^\d{1,3}(\.\d{1,6})?$")
 
 
 def _check_key(key: str) -> str:
@@ -36,6 +45,33 @@ def _check_key(key: str) -> str:
 
 
 parameter("substance", "<key>", _check_key)
+
+
+def _check_stream_element(argument: str) -> str:
+    """Return ``argument`` if it reads ``<stream>:<El>`` with a stream of the vocabulary; raise otherwise."""
+    stream, sep, element = argument.partition(":")
+    if stream not in vocab.STREAMS:
+        raise MeasureNameError(f"{stream!r} is not a waste stream (one of {', '.join(vocab.STREAMS)})")
+    if not sep:
+        raise MeasureNameError(f"give the stream and an element: {stream}:<El>, e.g. {stream}:Cd")
+    try:
+        vocab.element_symbol(element)
+    except vocab.UnknownElementError as exc:
+        raise MeasureNameError(str(exc)) from None
+    return argument
+
+
+parameter("stream_element", "<stream>:<El>", _check_stream_element)
+
+
+def _check_percent(argument: str) -> str:
+    """Return ``argument`` if it is a plain number of percent from 0 to 100 ("24", "24.5"); raise otherwise."""
+    if _PERCENT.match(argument) and Decimal(argument) <= 100:
+        return argument
+    raise MeasureNameError(f"{argument!r} is not a percentage from 0 to 100 written as a plain number, e.g. 24")
+
+
+parameter("percent", "<percent>", _check_percent)
 
 
 def is_water(component: ContainerComponent) -> bool:
@@ -141,6 +177,50 @@ def min_flash_point_present_c(subject: ContainerSubject, _arg: None) -> Optional
     return MeasureResult(_plain(flash_c), "degC", detail)
 
 
+def aqueous_alcohol_share(subject: ContainerSubject) -> Optional[Decimal]:
+    """The alcohol share (0–1 by volume) of an aqueous alcohol solution, or None if the liquid is not one.
+
+    Our reading of "aqueous solution" in 40 CFR 261.21(a)(1): water is a recorded component, and
+    every other component present beyond a trace is an alcohol (catalogue flag ``alcohol``); the
+    volume no component accounts for counts as unknown, so it too must stay below a trace.
+
+    >>> water = ContainerComponent("water", "water", 0.9)
+    >>> ethanol = ContainerComponent("ethanol", "ethanol", 0.1, 13.0, frozenset({"alcohol", "flammable"}))
+    >>> aqueous_alcohol_share(ContainerSubject("W", "aqueous_heavy_metals", "liquid", 1.0, 0.0, 10.0,
+    ...                                        components=(water, ethanol)))
+    Decimal('0.1')
+    """
+    if not _liquid(subject) or not any(is_water(c) for c in subject.components):
+        return None
+    recorded = sum((_dec(c.volume_fraction) for c in subject.components), Decimal(0))
+    if 1 - recorded >= TRACE_FRACTION:
+        return None
+    if any("alcohol" not in c.flags for c in _present(subject) if not is_water(c)):
+        return None
+    return sum((_dec(c.volume_fraction) for c in subject.components if "alcohol" in c.flags), Decimal(0))
+
+
+@measure("min_flash_point_outside_aqueous_alcohol_c", scope="waste_container", unit="degC", parameter="percent")
+def min_flash_point_outside_aqueous_alcohol_c(subject: ContainerSubject, percent: Optional[str]) -> Optional[MeasureResult]:
+    """Lowest known flash point among liquid components present beyond a trace, in °C; not applicable to an aqueous solution with less than <percent> % alcohol by volume.
+
+    The exclusion of 40 CFR 261.21(a)(1) (aqueous solutions with less than 24 % alcohol by
+    volume), with the percentage written in the rule; "aqueous solution" as
+    :func:`aqueous_alcohol_share` reads it. Otherwise as ``min_flash_point_present_c``.
+    """
+    share = aqueous_alcohol_share(subject)
+    if share is not None and share * 100 < Decimal(percent):
+        return None
+    lowest = min_flash_point_present_c(subject, None)
+    if lowest is None:
+        return None
+    detail = lowest.detail.split("; water", 1)[0]
+    if share is not None:
+        detail += (f"; an aqueous solution with {_text((share * 100).quantize(_PERCENT_STEP))} % alcohol by volume, "
+                   f"not below {percent} %")
+    return MeasureResult(lowest.value, "degC", detail)
+
+
 @measure("flammable_components_unknown_flash_point", scope="waste_container", unit="")
 def flammable_components_unknown_flash_point(subject: ContainerSubject, _arg: None) -> MeasureResult:
     """Count of flammable liquid components present beyond a trace whose flash point is not known."""
@@ -155,6 +235,46 @@ def listed_solvent_fraction(subject: ContainerSubject, key: Optional[str]) -> Op
     if not _liquid(subject):
         return None
     return _fraction([c for c in subject.components if c.key == key])
+
+
+@measure("component_concentration_mg_per_l", scope="waste_container", unit="mg/L", parameter="substance")
+def component_concentration_mg_per_l(subject: ContainerSubject, key: Optional[str]) -> Optional[MeasureResult]:
+    """Mass of the catalogue substance <key> per litre of liquid waste (volume × density / liquid volume), in mg/L; not applicable to solids, ≥ 0.5 % filterable solids or an unknown density.
+
+    As ``concentration_mg_per_l``, the liquid is compared only where it is itself the
+    toxicity-characteristic extract (:func:`concentration_basis`). No trace cut-off: the
+    organic TC levels are a few mg/L, far below a volume fraction of 0.01.
+    """
+    if concentration_basis(subject)[0] != "extract":
+        return None
+    parts = [c for c in subject.components if c.key == key]
+    if not parts:
+        return MeasureResult(0, "mg/L", f"no {key} recorded")
+    if any(c.density_g_per_ml is None for c in parts):
+        return None
+    litres = _dec(subject.volume_l)
+    value = sum((_dec(c.volume_fraction) * _dec(c.density_g_per_ml) for c in parts), Decimal(0)) * _MG_PER_L_PER_G_PER_ML
+    detail = "; ".join(f"{c.name} {_text(_dec(c.volume_fraction) * litres * 1000)} mL × "
+                       f"{_text(_dec(c.density_g_per_ml))} g/mL in {_text(litres)} L" for c in parts)
+    return MeasureResult(_plain(value), "mg/L", detail)
+
+
+@measure("aqueous_ph", scope="waste_container", unit="")
+def aqueous_ph(subject: ContainerSubject, _arg: None) -> Optional[MeasureResult]:
+    """pH of an aqueous liquid waste (the one most recently recorded); not applicable to solids, without a recorded pH or when non-water components exceed half the liquid.
+
+    The container's pH is the one recorded last on an entry that is neither a reversal nor
+    reversed (the store keeps it). A liquid counts as aqueous unless its recorded non-water
+    components make up more than :data:`AQUEOUS_NON_WATER_LIMIT` of its volume.
+    """
+    if not _liquid(subject) or subject.ph is None:
+        return None
+    other = sum((_dec(c.volume_fraction) for c in subject.components if not is_water(c)), Decimal(0))
+    if other > AQUEOUS_NON_WATER_LIMIT:
+        return None
+    ph = _dec(subject.ph)
+    share = _text((other * 100).quantize(_PERCENT_STEP))
+    return MeasureResult(_plain(ph), "", f"pH {_text(ph)} as last recorded; non-water components {share} % by volume")
 
 
 @measure("halogenated_fraction", scope="waste_container", unit="")
@@ -241,3 +361,17 @@ def container_element_mass(subject: ContainerSubject, element: Optional[str]) ->
     """Mass of the element over all entries of the container, in µg."""
     mass_ug = subject.element_mass_ug.get(element, 0)
     return MeasureResult(mass_ug, "ug", f"{_text(Decimal(mass_ug) / 1000)} mg {element} in {subject.label}")
+
+
+@measure("stream_element_mass", scope="waste_container", unit="ug", parameter="stream_element")
+def stream_element_mass(subject: ContainerSubject, argument: Optional[str]) -> Optional[MeasureResult]:
+    """Mass of the element over all entries of a container of stream <stream>, in µg; not applicable to other streams."""
+    stream, element = argument.split(":", 1)
+    return container_element_mass(subject, element) if subject.stream == stream else None
+
+
+@measure("element_mass_outside_stream", scope="waste_container", unit="ug", parameter="stream_element")
+def element_mass_outside_stream(subject: ContainerSubject, argument: Optional[str]) -> Optional[MeasureResult]:
+    """Mass of the element over all entries of a container of any stream but <stream>, in µg; not applicable to <stream>."""
+    stream, element = argument.split(":", 1)
+    return container_element_mass(subject, element) if subject.stream != stream else None

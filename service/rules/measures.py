@@ -63,21 +63,38 @@ def element_mass(subject: ProcedureSubject, element: Optional[str]) -> MeasureRe
     return MeasureResult(sum(p[0] for p in parts), "ug", ", ".join(shown))
 
 
+def in_vessel(reagent: ReagentFacts, step: StepFacts) -> bool:
+    """Whether ``reagent`` is in the vessel at ``step``: added at that step or before, or from the start (no step)."""
+    return reagent.step is None or reagent.step <= step.position
+
+
 @measure("max_temperature_minus_flash_point", scope="procedure", unit="delta_degC")
 def max_temperature_minus_flash_point(subject: ProcedureSubject, _arg: None) -> Optional[MeasureResult]:
-    """Highest step temperature minus the lowest known flash point of a liquid or solution.
+    """Largest margin of a step's temperature over the lowest known flash point of the liquids in the vessel at that step.
 
-    Not applicable when no step has a temperature or no liquid has a known flash point.
+    Judged per step with a temperature, over the liquids and solutions drawn at that step or
+    before (a draw without a step is in the vessel from the start); a solvent added after the
+    last heated step (precipitation, washing, redispersion) does not count. Not applicable when
+    no step with a temperature has a liquid of known flash point in the vessel.
     """
-    hot = [s for s in subject.steps if s.temperature_c is not None]
-    liquids = [r for r in subject.reagents if r.state in LIQUID_STATES and r.flash_point_c is not None]
-    if not hot or not liquids:
+    best: Optional[tuple[Decimal, StepFacts, ReagentFacts]] = None
+    for step in subject.steps:
+        if step.temperature_c is None:
+            continue
+        liquids = [r for r in subject.reagents
+                   if r.state in LIQUID_STATES and r.flash_point_c is not None and in_vessel(r, step)]
+        if not liquids:
+            continue
+        liquid = min(liquids, key=lambda r: r.flash_point_c)
+        margin = _dec(step.temperature_c) - _dec(liquid.flash_point_c)
+        if best is None or margin > best[0]:
+            best = (margin, step, liquid)
+    if best is None:
         return None
-    step = max(hot, key=lambda s: s.temperature_c)
-    liquid = min(liquids, key=lambda r: r.flash_point_c)
-    step_c, flash_c = _dec(step.temperature_c), _dec(liquid.flash_point_c)
-    detail = f"{_step_label(step)} at {_text(step_c)} °C; {liquid.name} flash point {_text(flash_c)} °C"
-    return MeasureResult(_plain(step_c - flash_c), "delta_degC", detail)
+    margin, step, liquid = best
+    detail = (f"{_step_label(step)} at {_text(_dec(step.temperature_c))} °C; {liquid.name} flash point "
+              f"{_text(_dec(liquid.flash_point_c))} °C")
+    return MeasureResult(_plain(margin), "delta_degC", detail)
 
 
 @measure("flammable_liquids_with_unknown_flash_point", scope="procedure", unit="")

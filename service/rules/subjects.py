@@ -33,6 +33,7 @@ class ReagentFacts:
     carcinogen_category: Optional[str] = None  # CLP "1A", "1B", "2"
     flash_point_c: Optional[float] = None  # closed cup; None: none known
     flammable: bool = False  # a flammable liquid: None flash point then means unknown, not safe
+    step: Optional[int] = None  # 0-based position of the step it is added at; None: in the vessel from the start
 
 
 @dataclass(frozen=True)
@@ -67,6 +68,7 @@ class ContainerComponent:
     flash_point_c: Optional[float] = None
     flags: frozenset[str] = frozenset()
     halogenated: bool = False
+    density_g_per_ml: Optional[float] = None  # None: not known
 
 
 @dataclass(frozen=True)
@@ -76,7 +78,8 @@ class ContainerSubject:
     ``volume_l`` is the liquid volume (0 for a solids container), ``mass_kg`` the solids
     mass; ``element_mass_ug`` the summed element masses of all entries;
     ``filterable_solids_percent`` decides whether the liquid itself counts as the
-    toxicity-characteristic extract (< 0.5 %, 40 CFR 261.24(a)).
+    toxicity-characteristic extract (< 0.5 %, 40 CFR 261.24(a)); ``ph`` is the pH most
+    recently recorded on an entry that is neither a reversal nor reversed (None: none recorded).
     """
 
     label: str
@@ -91,6 +94,7 @@ class ContainerSubject:
     days_since_first_entry: Optional[float] = None
     days_since_full: Optional[float] = None
     acute_hazardous: bool = False
+    ph: Optional[float] = None  # the pH most recently recorded on an entry that is not reversed
 
 
 @dataclass(frozen=True)

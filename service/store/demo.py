@@ -126,11 +126,13 @@ def load_demo(session: Session, catalogue: SubstanceCatalogue) -> tuple[dict[str
 PRODUCT = ("NG-P01", "4.0 mL", "cadmium-selenide", "glovebox")
 PRODUCT_OUTPUT = "CdSe cores in hexane (ICP-OES of a digest)"
 
-# title, [(stock or mixture label, amount)], steps, waste plan, end state
+# title, [(stock or mixture label, amount, step it is added at (0-based) or None: in the flask from the start)],
+# steps, waste plan, end state
 _INERT = "argon"
 PROCEDURES = [
     ("CdSe cores by hot injection",
-     [("NG-0001", "25.7 mg"), ("NG-0011", "0.6 mL"), ("NG-0010", "10 mL"), ("NG-M02", "1.0 mL"), ("NG-0013", "40 mL")],
+     [("NG-0001", "25.7 mg", None), ("NG-0011", "0.6 mL", None), ("NG-0010", "10 mL", None), ("NG-M02", "1.0 mL", 3),
+      ("NG-0013", "40 mL", 6)],
      [("charge", None, "air", None, "CdO, oleic acid and 1-octadecene into a 50 mL three-neck flask"),
       ("degas", 120, "vacuum", 30, "until bubbling stops"),
       ("heat", 300, _INERT, None, "until the solution turns clear and colourless"),
@@ -143,8 +145,8 @@ PROCEDURES = [
       ("contaminated solids", "gloves, wipes, pipette tips", None)],
      "approved"),
     ("CdSe/ZnS core-shell growth",
-     [(PRODUCT[0], "2.0 mL"), ("NG-0006", "110 mg"), ("NG-0005", "16 mg"), ("NG-0009", "1.0 mL"), ("NG-0010", "8 mL"), ("NG-0012", "2 mL"),
-      ("NG-0014", "10 mL"), ("NG-0013", "30 mL")],
+     [(PRODUCT[0], "2.0 mL", None), ("NG-0006", "110 mg", None), ("NG-0005", "16 mg", 2), ("NG-0009", "1.0 mL", 2),
+      ("NG-0010", "8 mL", None), ("NG-0012", "2 mL", None), ("NG-0014", "10 mL", 4), ("NG-0013", "30 mL", 4)],
      [("charge", None, "air", None, "purified CdSe cores in hexane, zinc acetate, oleylamine, 1-octadecene"),
       ("degas", 100, "vacuum", 30, "removes hexane"),
       ("grow_shell", 240, _INERT, 60, "dropwise S in TOP, two monolayers"),
@@ -154,8 +156,8 @@ PROCEDURES = [
      [("non-halogenated solvent with heavy metals", "supernatants, toluene and acetone washes", "40 mL")],
      "submitted"),
     ("CsPbBr3 perovskite nanocrystals",
-     [("NG-0007", "69 mg"), ("NG-0010", "5 mL"), ("NG-0011", "0.5 mL"), ("NG-0012", "0.5 mL"), ("NG-M03", "0.4 mL"),
-      ("NG-0015", "10 mL")],
+     [("NG-0007", "69 mg", None), ("NG-0010", "5 mL", None), ("NG-0011", "0.5 mL", 2), ("NG-0012", "0.5 mL", 2),
+      ("NG-M03", "0.4 mL", 3), ("NG-0015", "10 mL", 5)],
      [("charge", None, "air", None, "PbBr2 and 1-octadecene"),
       ("degas", 120, "vacuum", 60, None),
       ("heat", 170, _INERT, None, "add oleic acid and oleylamine"),
@@ -169,7 +171,7 @@ PROCEDURES = [
 
 def load_demo_procedures(session: Session, rules) -> int:
     """The three demo procedures, in the states the scenario needs; returns how many were added."""
-    from service.schemas import DrawIn, ProcedureIn, StepIn, WastePlanIn
+    from service.schemas import PlannedDrawIn, ProcedureIn, StepIn, WastePlanIn
     from service.store import procedures
     from service.store.models import Procedure
 
@@ -181,11 +183,11 @@ def load_demo_procedures(session: Session, rules) -> int:
         if session.scalar(select(Procedure.id).where(Procedure.title == title)) is not None:
             continue
         draw_bodies = []
-        for label, amount in draws:
+        for label, amount, step in draws:
             stock = session.scalar(select(Stock.id).where(Stock.label == label))
             mixture = session.scalar(select(Mixture.id).where(Mixture.label == label))
-            draw_bodies.append(DrawIn(stock_id=stock, mixture_id=None if stock else mixture, amount=amount)
-                               if stock or mixture else None)
+            draw_bodies.append(PlannedDrawIn(stock_id=stock, mixture_id=None if stock else mixture, amount=amount,
+                                             step=step) if stock or mixture else None)
         if None in draw_bodies:
             continue  # draws from a product not made yet: added once its run has made it (load_scenario)
         body = ProcedureIn(

@@ -350,6 +350,8 @@ class ReagentDraw(Base):
     stock_id: Mapped[Optional[int]] = mapped_column(ForeignKey("stocks.id"))
     mixture_id: Mapped[Optional[int]] = mapped_column(ForeignKey("mixtures.id"))
     amount_text: Mapped[str] = mapped_column(String(60))
+    # 0-based position of the step it is added at; None: in the vessel from the start
+    step: Mapped[Optional[int]] = mapped_column(Integer)
     stock: Mapped[Optional[Stock]] = relationship(lazy="joined")
     mixture: Mapped[Optional[Mixture]] = relationship(lazy="joined")
 
@@ -480,6 +482,7 @@ class WasteEntry(Base):
     volume_ul: Mapped[int] = mapped_column(BigInteger, default=0)  # signed
     mass_ug: Mapped[int] = mapped_column(BigInteger, default=0)  # signed, solids
     filterable_solids_percent: Mapped[Optional[float]] = mapped_column(Float)
+    ph: Mapped[Optional[float]] = mapped_column(Float)  # as measured when added; None on reversals
     reverses_entry_id: Mapped[Optional[int]] = mapped_column(ForeignKey("waste_entries.id"), unique=True)
     components: Mapped[list["WasteEntryComponent"]] = relationship(cascade="all, delete-orphan", lazy="selectin")
     elements: Mapped[list["WasteEntryElement"]] = relationship(cascade="all, delete-orphan", lazy="selectin")
@@ -530,6 +533,8 @@ class WasteContainerTotals(Base):
     # Σ volume_ul × filterable_solids_percent × 10⁶, each entry's term rounded once (half to even),
     # so that a reversal cancels its entry exactly.
     solids_percent_ul_e6: Mapped[int] = mapped_column(BigInteger, default=0)
+    # The pH last recorded on an entry that is neither a reversal nor reversed (None: none).
+    ph: Mapped[Optional[float]] = mapped_column(Float)
 
 
 class WasteContainerElement(Base):

@@ -17,7 +17,7 @@ from service.chem.units import QuantityError, parse_quantity
 from service.errors import Blocked, Conflict, Forbidden, InvalidInput
 from service.rules import LayeredRules, evaluate, highest_level
 from service.rules.subjects import ProcedureSubject, ReagentFacts, StepFacts
-from service.schemas import DrawIn, ProcedureIn, ProcedurePatch, StepIn, WastePlanIn
+from service.schemas import PlannedDrawIn, ProcedureIn, ProcedurePatch, StepIn, WastePlanIn
 from service.store import inventory
 from service.store.paging import Page, paginate
 from service.store.findings import evaluate_once
@@ -71,11 +71,12 @@ _SEVERITY = {level: rank for rank, level in enumerate(vocab.FINDING_LEVELS)}  # 
 # --- building -----------------------------------------------------------------
 
 
-def _draw(session: Session, lab_id: int, position: int, body: DrawIn) -> ReagentDraw:
+def _draw(session: Session, lab_id: int, position: int, body: PlannedDrawIn) -> ReagentDraw:
     field = f"draws[{position}]"
     model, kind = (Stock, "stock") if body.stock_id is not None else (Mixture, "mixture")
     source = inventory.reference(session, model, body.stock_id or body.mixture_id, f"{field}.{kind}_id", lab_id=lab_id)
-    draw = ReagentDraw(position=position, stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount)
+    draw = ReagentDraw(position=position, stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount,
+                       step=body.step)
     draw.stock, draw.mixture = (source, None) if kind == "stock" else (None, source)
     try:
         _reagent(draw, 1.0, field)  # checks the amount now: unit, kind, density
@@ -86,12 +87,17 @@ def _draw(session: Session, lab_id: int, position: int, body: DrawIn) -> Reagent
     return draw
 
 
-def _fill(session: Session, proc: Procedure, steps: list[StepIn] | None, draws: list[DrawIn] | None,
+def _fill(session: Session, proc: Procedure, steps: list[StepIn] | None, draws: list[PlannedDrawIn] | None,
           waste: list[WastePlanIn] | None) -> None:
     if steps is not None:
         proc.steps = [ProcedureStep(position=i, **s.model_dump()) for i, s in enumerate(steps)]
     if draws is not None:
         proc.draws = [_draw(session, proc.lab_id, i, d) for i, d in enumerate(draws)]
+    for draw in proc.draws:
+        if draw.step is not None and draw.step >= len(proc.steps):
+            count = len(proc.steps)
+            raise InvalidInput(f"draws[{draw.position}].step", f"no step at position {draw.step}: the procedure has "
+                               f"{count} steps (positions 0 to {count - 1}, shown as steps 1 to {count})", draw.step)
     if waste is not None:
         proc.waste_plan = [WastePlanItem(position=i, **w.model_dump()) for i, w in enumerate(waste)]
 
@@ -163,7 +169,8 @@ def _new_revision(session: Session, old: Procedure) -> Procedure:
     new.steps = [ProcedureStep(position=s.position, operation=s.operation, temperature_c=s.temperature_c,
                                atmosphere=s.atmosphere, duration_min=s.duration_min, note=s.note) for s in old.steps]
     new.draws = [ReagentDraw(position=d.position, stock_id=d.stock_id, mixture_id=d.mixture_id,
-                             amount_text=d.amount_text, stock=d.stock, mixture=d.mixture) for d in old.draws]
+                             amount_text=d.amount_text, step=d.step, stock=d.stock, mixture=d.mixture)
+                 for d in old.draws]
     new.waste_plan = [WastePlanItem(position=w.position, stream=w.stream, contents=w.contents,
                                     expected_amount=w.expected_amount) for w in old.waste_plan]
     session.add(new)
@@ -202,7 +209,7 @@ def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFa
             element_mass_ug=masses, flags=frozenset(substance.flags or ()),
             carcinogen_category=next((c.split(" ", 1)[1] for c in classes if c.startswith("Carc. ")), None),
             flash_point_c=substance.flash_point_c,
-            flammable="flammable" in (substance.flags or ()) and substance.state == "liquid",
+            flammable="flammable" in (substance.flags or ()) and substance.state == "liquid", step=draw.step,
         )
     mixture = draw.mixture
     parts = [c.substance for c in mixture.components]
@@ -215,7 +222,7 @@ def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFa
         flags=frozenset(f for p in parts for f in (p.flags or ())),
         carcinogen_category=categories[0] if categories else None,
         flash_point_c=min(flash) if flash else None,
-        flammable=any("flammable" in (p.flags or ()) for p in liquids),
+        flammable=any("flammable" in (p.flags or ()) for p in liquids), step=draw.step,
     )
 
 

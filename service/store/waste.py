@@ -121,6 +121,7 @@ class Contents:
     component_volume_ul: dict[int, int]  # substance id -> µL
     filterable_solids_percent: float
     entries: int
+    ph: Optional[float] = None  # last recorded on an entry still standing
 
 
 def contents_of(session: Session, container: WasteContainer) -> Contents:
@@ -131,11 +132,12 @@ def contents_of(session: Session, container: WasteContainer) -> Contents:
                     {row.element: row.mass_ug for row in sorted(container.element_totals, key=lambda r: r.element)
                      if row.mass_ug},
                     {row.substance_id: row.volume_ul for row in container.component_totals if row.volume_ul},
-                    totals.solids_percent_ul_e6 / (volume * 1_000_000) if volume > 0 else 0.0, totals.entries)
+                    totals.solids_percent_ul_e6 / (volume * 1_000_000) if volume > 0 else 0.0, totals.entries,
+                    totals.ph)
 
 
 def _no_totals() -> WasteContainerTotals:
-    return WasteContainerTotals(entries=0, volume_ul=0, mass_ug=0, solids_percent_ul_e6=0)
+    return WasteContainerTotals(entries=0, volume_ul=0, mass_ug=0, solids_percent_ul_e6=0, ph=None)
 
 
 def solids_weight(volume_ul: int, filterable_solids_percent: Optional[float]) -> int:
@@ -159,6 +161,8 @@ def _count(container: WasteContainer, entry: WasteEntry) -> None:
     totals.volume_ul += entry.volume_ul
     totals.mass_ug += entry.mass_ug
     totals.solids_percent_ul_e6 += solids_weight(entry.volume_ul, entry.filterable_solids_percent)
+    if entry.ph is not None:
+        totals.ph = entry.ph  # the latest pH; a reversal carries none and :func:`reverse_entry` looks back
     elements = {row.element: row for row in container.element_totals}
     for item in entry.elements:
         if item.element in elements:
@@ -202,6 +206,8 @@ def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Opti
         raise InvalidInput("volume", f"{container.label} holds liquids: give the entry's volume (and no mass)")
     if not liquid and (body.mass is None or body.volume is not None or body.components):
         raise InvalidInput("mass", f"{container.label} holds solids: give the entry's mass (and no volume)")
+    if not liquid and body.ph is not None:
+        raise InvalidInput("ph", f"{container.label} holds solids: a pH is recorded for liquid wastes")
     run = None
     if body.run_id is not None:
         run = reference(session, Run, body.run_id, "run_id", lab_id=container.lab_id, lock=True)
@@ -230,8 +236,8 @@ def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Opti
     elements = _entry_elements(session, body, run, balance_elements)
     entry = WasteEntry(container_id=container.id, run_id=body.run_id, actor_id=actor_id, description=body.description,
                        volume_ul=micro if liquid else 0, mass_ug=0 if liquid else micro,
-                       filterable_solids_percent=body.filterable_solids_percent, components=components,
-                       elements=elements, at=utcnow())
+                       filterable_solids_percent=body.filterable_solids_percent, ph=body.ph,
+                       components=components, elements=elements, at=utcnow())
     session.add(entry)
     _count(container, entry)
     if container.first_entry_at is None:
@@ -267,9 +273,20 @@ def reverse_entry(session: Session, container_id: int, entry_id: int, reason: st
                                  for e in original.elements])
     session.add(entry)
     _count(container, entry)
+    if original.ph is not None:
+        container.totals.ph = _standing_ph(session, container.id)
     session.flush()
     areas.refresh_clock(session, container.location_id, rules)
     return entry
+
+
+def _standing_ph(session: Session, container_id: int) -> Optional[float]:
+    """The pH last recorded in the container on an entry that is neither a reversal nor reversed."""
+    reversed_ids = select(WasteEntry.reverses_entry_id).where(WasteEntry.container_id == container_id,
+                                                              WasteEntry.reverses_entry_id.is_not(None))
+    return session.scalar(select(WasteEntry.ph).where(
+        WasteEntry.container_id == container_id, WasteEntry.ph.is_not(None), WasteEntry.reverses_entry_id.is_(None),
+        WasteEntry.id.not_in(reversed_ids)).order_by(WasteEntry.id.desc()).limit(1))
 
 
 def determine(session: Session, container_id: int, body: DeterminationIn, actor_id: int) -> WasteDetermination:
@@ -322,7 +339,8 @@ def subject_of(session: Session, container: WasteContainer, contents: Contents,
         components.append(ContainerComponent(
             name=substance.name, key=substance.key, volume_fraction=ul / total if total > 0 else 0.0,
             flash_point_c=substance.flash_point_c, flags=frozenset(substance.flags or ()),
-            halogenated=bool(_HALOGENS & set(parse_formula(substance.formula).atoms))))
+            halogenated=bool(_HALOGENS & set(parse_formula(substance.formula).atoms)),
+            density_g_per_ml=substance.density_g_per_ml))
     return ContainerSubject(
         label=container.label, stream=container.stream, form=container.form, volume_l=total / 1e6,
         mass_kg=contents.mass_ug / 1e9,
@@ -330,7 +348,7 @@ def subject_of(session: Session, container: WasteContainer, contents: Contents,
         element_mass_ug=contents.element_mass_ug, components=tuple(components),
         filterable_solids_percent=contents.filterable_solids_percent,
         days_since_first_entry=_days(container.first_entry_at, now), days_since_full=_days(container.full_at, now),
-        acute_hazardous=container.acute_hazardous)
+        acute_hazardous=container.acute_hazardous, ph=contents.ph)
 
 
 def list_containers(session: Session, *, lab_ids: Optional[set[int]] = None,

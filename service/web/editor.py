@@ -33,7 +33,7 @@ from service.web.pages import TRACKED
 # The rows of the form: form name -> (fields, the body's key, the word in buttons and labels, most rows).
 ROWS = {
     "steps": (("operation", "temperature_c", "atmosphere", "duration_min", "note"), "steps", "step", 200),
-    "draws": (("source", "amount"), "draws", "draw", 200),
+    "draws": (("source", "amount", "step"), "draws", "draw", 200),
     "waste": (("stream", "contents", "expected_amount"), "waste_plan", "waste", 50),
 }
 _BODY_KEYS = {key: name for name, (_, key, _, _) in ROWS.items()}
@@ -46,6 +46,7 @@ _LABELS = {"title": "Title", "lab_id": "Lab", "summary": "Summary", "scale": "Sc
 _ROW_LABELS = {
     "operation": "operation", "temperature_c": "temperature (°C)", "atmosphere": "atmosphere",
     "duration_min": "duration (min)", "note": "note", "source": "stock or mixture", "amount": "amount",
+    "step": "added at step",
     "stream": "stream", "contents": "contents", "expected_amount": "expected amount",
 }
 _ROW_KEY = re.compile(r"^(steps|draws|waste)-(\d{1,4})-([a-z_]+)$")
@@ -104,7 +105,8 @@ def _state_of(proc: Procedure) -> dict:
         "title": proc.title, "lab_id": str(proc.lab_id), "summary": proc.summary or "", "scale": _text(proc.scale),
         "steps": [{f: _text(getattr(s, f)) for f in ROWS["steps"][0]} for s in proc.steps],
         "draws": [{"source": f"stock:{d.stock_id}" if d.stock_id is not None else f"mixture:{d.mixture_id}",
-                   "amount": d.amount_text} for d in proc.draws],
+                   "amount": d.amount_text, "step": "" if d.step is None else str(d.step + 1)}  # people count from 1
+                  for d in proc.draws],
         "waste": [{f: _text(getattr(w, f)) for f in ROWS["waste"][0]} for w in proc.waste_plan],
     }
 
@@ -199,6 +201,11 @@ def _body(state: dict, sources: dict[str, str]) -> tuple[dict, dict[str, list[in
                     item["operation"] = row["operation"]
             elif name == "draws":
                 item = {"amount": row["amount"]}
+                step = _whole(row["step"])
+                if isinstance(step, int) and step >= 1:
+                    item["step"] = step - 1  # the form counts steps from 1, the body from 0
+                elif step is not None:
+                    errors[f"draws-{i}-step"] = "Give the number of a step (from 1), or leave it empty for the start."
                 typed = row["source"].strip()
                 found = _SOURCE.match(typed) or _SOURCE.match(sources.get(typed.casefold(), ""))
                 if found:

@@ -6,7 +6,7 @@ containers over a limit (the rules marked ``area_over_limit``) and cleared when 
 3-day (40 CFR 262.15(a)(6)) and 10-day (262.208) clocks count from it.
 
 Revision ID: 0017_accumulation_areas
-Revises: 0014_stock_movements
+Revises: 0016_draw_step
 Create Date: 2026-12-12 09:00:00
 """
 
@@ -15,7 +15,7 @@ import sqlalchemy as sa
 
 
 revision = '0017_accumulation_areas'
-down_revision = '0014_stock_movements'
+down_revision = '0016_draw_step'
 branch_labels = None
 depends_on = None
 
