@@ -18,7 +18,7 @@ from service.cli import main
 from service.schemas import (
     ComponentIn,
     ContainerIn,
-    DrawIn,
+    PlannedDrawIn,
     ElementAmountIn,
     EntryComponentIn,
     EntryIn,
@@ -75,7 +75,7 @@ def _seed(app) -> dict[str, int]:
         for n in range(ROWS):
             body = ProcedureIn(lab_id=lab.id, title=f"Seed batch {n}",
                                steps=[StepIn(operation="hold", temperature_c=20, atmosphere="argon")],
-                               draws=[DrawIn(stock_id=stocks[k].id, amount="1 mg" if k % 2 else "1 mL")
+                               draws=[PlannedDrawIn(stock_id=stocks[k].id, amount="1 mg" if k % 2 else "1 mL")
                                       for k in (n, (n + 1) % ROWS)],
                                waste_plan=[WastePlanIn(stream="contaminated solids", contents="wipes")])
             proc = procedures.create_procedure(s, body, researcher)
