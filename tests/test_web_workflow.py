@@ -12,7 +12,7 @@ import re
 
 import pytest
 
-from service.schemas import DrawIn, ProcedureIn, StepIn
+from service.schemas import PlannedDrawIn, ProcedureIn, StepIn
 from service.store import procedures
 from service.store.db import session_scope
 from service.store.models import Lab, Procedure, Stock, User, WasteContainer
@@ -162,7 +162,7 @@ def test_the_author_gets_no_approve_button_and_a_forged_approval_is_refused(demo
         lab = session.query(Lab).first()
         stock = session.query(Stock.id).filter(Stock.label == "NG-0001").scalar()
         body = ProcedureIn(lab_id=lab.id, title="Officer's own test", steps=[StepIn(operation="charge")],
-                           draws=[DrawIn(stock_id=stock, amount="10 mg")])
+                           draws=[PlannedDrawIn(stock_id=stock, amount="10 mg")])
         own = procedures.create_procedure(session, body, officer)
         procedures.transition(session, own, "submit", officer, None, app.extensions["dotledger.rules"])
         own_id = own.id
