@@ -58,6 +58,8 @@ __all__ = [
     "update_stock",
     "source_element_masses",
     "draw_from",
+    "Taken",
+    "BeyondHeld",
     "create_mixture",
     "update_mixture",
     "Draw",
@@ -351,18 +353,42 @@ def source_element_masses(stock: Optional[Stock], mixture: Optional[Mixture], am
     return draw_of(stock if stock is not None else mixture, amount_text, field).element_mass_ug
 
 
-def draw_from(source: Stock | Mixture, amount: str, field: str, *, change: str, **links) -> dict[str, int]:
-    """Take ``amount`` out of a stock or mixture (loaded with its row lock); the element masses (µg) taken.
+@dataclass(frozen=True)
+class Taken:
+    """What one draw took: the amount in the source's own unit (µg of a stock kept by mass, µL of a
+    stock kept by volume or of a mixture), exactly and as text in mg or mL, the element masses (µg)
+    and the holding changes that record it (``service.store.holdings``)."""
 
-    :func:`draw_of` then :func:`take`: refused (Conflict naming ``field``) beyond what the source holds;
-    the source drops by exactly the masses returned, so the element sum over source and destination
-    does not change.
+    amount_text: str
+    quantity_micro: int
+    element_mass_ug: dict[str, int]
+    changes: tuple = ()
+
+
+class BeyondHeld(Conflict):
+    """A draw asks for more than the source holds (``field`` names the amount)."""
+
+
+def draw_from(source: Stock | Mixture, amount: Optional[str], field: str, *, change: str, **links) -> Taken:
+    """Take ``amount`` (None: all it holds) out of a stock or mixture the caller has locked.
+
+    The one draw of the service: runs, mixture preparation, disposals, transfers and shipments all
+    take through it. :func:`draw_of` gives the element masses (the source's stored rows in proportion
+    to the amount; taking everything takes the rows exactly), then :func:`take` lowers the source by
+    exactly those and records the holding changes of kind ``change`` (linked to ``links``), so what
+    leaves a source is what arrives elsewhere, to the microgram. Refused: nothing to take, or more
+    than the source holds (BeyondHeld naming ``field``).
     """
+    kind, held = held_of(source)
+    if amount is None:
+        if held <= 0:
+            raise BeyondHeld(f"{source.label} is empty", field)
+        amount = _format(held, kind)
     draw = draw_of(source, amount, field)
     if draw.micro <= 0:
         raise InvalidInput(field, "must be above zero", amount)
-    take(source, draw, field, amount, change=change, **links)
-    return dict(draw.element_mass_ug)
+    changes = take(source, draw, field, amount, change=change, **links)
+    return Taken(_format(draw.micro, kind), draw.micro, draw.element_mass_ug, tuple(changes))
 
 
 # --- mixtures -----------------------------------------------------------------
@@ -411,7 +437,8 @@ def _drawn_component(session: Session, comp, field: str, lab_id: int, substance:
         if substance.id not in {c.substance_id for c in source.components}:
             raise InvalidInput(f"{field}.substance_id", f"mixture {source.label} has no component {substance.name}",
                                substance.id)
-    taken = draw_from(source, comp.amount, f"{field}.amount", change="used_for_mixture", into_mixture=mixture)
+    taken = draw_from(source, comp.amount, f"{field}.amount", change="used_for_mixture",
+                      into_mixture=mixture).element_mass_ug
     return {"source_stock_id": comp.source_stock_id, "source_mixture_id": comp.source_mixture_id,
             "amount_text": comp.amount, "element_mass_ug": taken}, taken
 
@@ -552,8 +579,8 @@ def take(source: Union[Stock, Mixture], draw: Draw, field: str, amount: str, *, 
     kind, held = held_of(source)
     if draw.micro > held:
         shown = "mg" if kind == "mass" else "mL"
-        raise Conflict(f"{source.label} holds {held / 1000:g} {shown}; the draw asks for {draw.micro / 1000:g} {shown}",
-                       field, amount)
+        raise BeyondHeld(f"{source.label} holds {held / 1000:g} {shown}; the draw asks for "
+                         f"{draw.micro / 1000:g} {shown}", field, amount)
     rows = {row.element: row for row in source.elements}
     if any(ug > (rows[element].mass_ug if element in rows else 0) for element, ug in draw.element_mass_ug.items()):
         raise Conflict(f"{source.label} holds less of an element than the draw would take", field, amount)

@@ -1,7 +1,7 @@
 """Stocks leaving the inventory other than by a run: disposed of into a waste container, transferred
 to another lab (a new stock there), shipped out of the site.
 
-Each movement takes its amount through the one draw of the service (``runs.take``), so the stock's
+Each movement takes its amount through the one draw of the service (``inventory.draw_from``), so the stock's
 element rows drop by exactly the element masses the movement records, and the same masses arrive
 in the waste entry or the new stock. The stock row is locked for the transaction; a refusal leaves
 nothing behind (the request's transaction rolls back).
@@ -20,7 +20,7 @@ from service.chem.content import round_ug
 from service.errors import Conflict, InvalidInput
 from service.rules import LayeredRules
 from service.schemas import DisposeIn, EntryIn, ShipIn, StockIn, TransferIn
-from service.store import inventory, runs, waste
+from service.store import inventory, waste
 from service.store.models import Lab, Stock, StockMovement, WasteContainer, utcnow
 from service.store.paging import Page, paginate
 
@@ -38,14 +38,14 @@ def _lock(session: Session, stock_id: int) -> Stock:
     return stock
 
 
-def _take(stock: Stock, amount: Optional[str], change: str) -> runs.Taken:
+def _take(stock: Stock, amount: Optional[str], change: str) -> inventory.Taken:
     try:
-        return runs.take(stock, amount, "amount", change=change)
-    except runs.BeyondHeld as exc:
+        return inventory.draw_from(stock, amount, "amount", change=change)
+    except inventory.BeyondHeld as exc:
         raise InvalidInput("amount", str(exc), amount) from None
 
 
-def _record(session: Session, stock: Stock, kind: str, taken: runs.Taken, actor_id: Optional[int],
+def _record(session: Session, stock: Stock, kind: str, taken: inventory.Taken, actor_id: Optional[int],
             **links) -> StockMovement:
     movement = StockMovement(stock_id=stock.id, kind=kind, amount_text=taken.amount_text,
                              quantity_micro=taken.quantity_micro, element_mass_ug=dict(taken.element_mass_ug),
@@ -62,7 +62,7 @@ def _density(stock: Stock) -> Optional[Decimal]:
     return None if density is None else Decimal(repr(density))
 
 
-def _entry_amount(stock: Stock, container: WasteContainer, taken: runs.Taken) -> dict[str, str]:
+def _entry_amount(stock: Stock, container: WasteContainer, taken: inventory.Taken) -> dict[str, str]:
     """The waste entry's mass (solids container) or volume (liquid container) of what is taken."""
     density = _density(stock)
     if container.form == "solid":

@@ -2,14 +2,12 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
 from decimal import Decimal
-from typing import Optional
 
 from sqlalchemy import select
 from sqlalchemy.orm import Session, object_session
 
-from service.errors import Blocked, Conflict, InvalidInput, NotFound
+from service.errors import Blocked, Conflict, NotFound
 from service.rules import LayeredRules, evaluate
 from service.schemas import DrawIn, LossIn, OutputIn, ProductStockIn, RunIn
 from service.store import inventory, procedures
@@ -29,52 +27,8 @@ from service.store.models import (
     utcnow,
 )
 
-__all__ = ["Taken", "BeyondHeld", "take", "list_runs", "start_run", "add_output", "add_loss", "flows_of", "balance_of",
+__all__ = ["list_runs", "start_run", "add_output", "add_loss", "flows_of", "balance_of",
            "remaining_ug", "close_run", "output_element_masses", "stock_output"]
-
-
-def _format(value: Decimal, unit: str) -> str:
-    return f"{value.normalize():f} {unit}"
-
-
-@dataclass(frozen=True)
-class Taken:
-    """What one draw took: the amount in the source's own unit (µg of a stock kept by mass, µL of a
-    stock kept by volume or of a mixture), exactly and as text in mg or mL, and the element masses (µg)."""
-
-    amount_text: str
-    quantity_micro: int
-    element_mass_ug: dict[str, int]
-    changes: tuple = ()  # the holding changes that record it (service.store.holdings)
-
-
-class BeyondHeld(Conflict):
-    """A draw asks for more than the source holds (``field`` names the amount)."""
-
-
-def take(source: Stock | Mixture, amount: Optional[str], field: str, *, change: str, **links) -> Taken:
-    """Take ``amount`` (None: all it holds) from a stock or mixture the caller has locked.
-
-    The one draw of the service: runs, disposals, transfers and shipments all take through it, and
-    it takes through :func:`inventory.draw_of` and :func:`inventory.take`: the element masses are the
-    source's stored rows in proportion to the amount (taking everything takes the rows exactly), and
-    the source's amount and rows drop by exactly what is returned, so what leaves a source is what
-    arrives elsewhere, to the microgram.
-    """
-    kind, held = inventory.held_of(source)
-    shown = "mg" if kind == "mass" else "mL"
-    if amount is None:
-        if held <= 0:
-            raise BeyondHeld(f"{source.label} is empty", field)
-        amount = _format(Decimal(held) / 1000, shown)
-    draw = inventory.draw_of(source, amount, field)
-    if draw.micro <= 0:
-        raise InvalidInput(field, "must be above zero", amount)
-    if draw.micro > held:
-        raise BeyondHeld(f"{source.label} holds {held / 1000:g} {shown}; the draw asks for "
-                         f"{draw.micro / 1000:g} {shown}", field, amount)
-    changes = inventory.take(source, draw, field, amount, change=change, **links)
-    return Taken(_format(Decimal(draw.micro) / 1000, shown), draw.micro, draw.element_mass_ug, tuple(changes))
 
 
 def _take(session: Session, body: DrawIn, run: Run, field: str) -> RunDraw:
@@ -83,7 +37,7 @@ def _take(session: Session, body: DrawIn, run: Run, field: str) -> RunDraw:
     # Lock only the stock's own row: PostgreSQL refuses FOR UPDATE on the outer-joined substance.
     source = inventory.reference(session, model, body.stock_id or body.mixture_id, f"{field}.{kind}_id",
                                  lab_id=run.lab_id, lock=True)
-    taken = take(source, body.amount, f"{field}.amount", change="drawn_by_run", run=run)
+    taken = inventory.draw_from(source, body.amount, f"{field}.amount", change="drawn_by_run", run=run)
     return RunDraw(stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount,
                    element_mass_ug=taken.element_mass_ug)
 
