@@ -26,7 +26,7 @@ from service.store import inventory, procedures, runs
 from service.store.db import get_session
 from service.store.models import Lab, Location, Mixture, Procedure, Run, Stock, Substance
 from service.web import bp
-from service.web.editor import _message
+from service.web.editor import _message, _number, _whole
 
 _STORE_PATH = re.compile(r"\[(\d+)\]\.?")
 METHODS = {"mass": "by mass", "assay": "by assay", "estimate": "from absorbance", "by_difference": "by difference"}
@@ -148,7 +148,7 @@ def run_start(ident: int):
     rows = _draw_rows(proc, scale if scale is not None and 0 < scale <= proc.scale else proc.scale)
     for i, row in enumerate(rows):
         row["amount"] = request.form.get(f"draws-{i}-amount", row["amount"])
-    data = {"procedure_id": proc.id, "scale": form["scale"] or None, "note": form["note"].strip() or None,
+    data = {"procedure_id": proc.id, "scale": scale if scale is not None else form["scale"] or None, "note": form["note"].strip() or None,
             "draws": [{f"{row['kind']}_id": row["id"], "amount": row["amount"]} for row in rows]}
     session = get_session()
     try:
@@ -238,6 +238,7 @@ def _renumber(errors: dict[str, str], prefix: str, kept: list[int]) -> dict[str,
     return out
 
 
+ESTIMATE_TEXT = ("core", "volume", "shell")  # the rest are numbers
 ESTIMATE_FIELDS = ("core", "wavelength_nm", "absorbance", "path_length_cm", "dilution_factor", "volume", "shell",
                    "shell_monolayers")
 
@@ -254,7 +255,8 @@ def _output_body(form, elements) -> tuple[dict, dict[str, list[int]]]:
         data.update(method="measured", assays=rows)
     elif method == "estimate":
         values = {f: form.get(f"estimate-{f}", "").strip() for f in ESTIMATE_FIELDS}
-        data.update(method="estimated", estimate={f: v for f, v in values.items() if v})
+        data.update(method="estimated", estimate={f: v if f in ESTIMATE_TEXT else _number(v)
+                                                  for f, v in values.items() if v})
     elif method == "by_difference":
         data["method"] = "by_difference"
     return data, kept
@@ -362,8 +364,8 @@ def run_stock_add(ident: int, output_id: int):
     run = _visible_run(ident)
     output = _output_of(run, output_id)
     form = request.form
-    data = {"label": form.get("label", ""), "location_id": form.get("location_id") or None,
-            "amount": form.get("amount", ""), "substance_id": form.get("substance_id") or None}
+    data = {"label": form.get("label", ""), "location_id": _whole(form.get("location_id", "")),
+            "amount": form.get("amount", ""), "substance_id": _whole(form.get("substance_id", ""))}
     session = get_session()
     try:
         body = schemas.ProductStockIn.model_validate(data)
