@@ -130,7 +130,8 @@ def bar_chart(title: str, categories: Sequence[str], series: Union[Mapping[str, 
     for label, value in marks:
         axis.append(f'<line class="mark" x1="{x(float(value))}" y1="{top - 14}" x2="{x(float(value))}" y2="{bottom}" '
                     f'stroke="{INK}" stroke-dasharray="4 3"/>')
-        axis.append(_text(x(float(value)), top - 16, label, anchor="middle", size=10))
+        if label:
+            axis.append(_text(x(float(value)), top - 16, label, anchor="middle", size=10))
     desc = (f"Horizontal {'stacked ' if stacked else ''}bars in {unit_text(unit)} from {number(start)} to {number(end)}, "
             f"zero line drawn; the numbers are in the table below.")
     svg = _svg(cid, title, desc, bottom + 30, legend + "".join(axis) + "".join(parts))
@@ -268,7 +269,7 @@ def _x_axis(start, end, step, x, top, bottom, unit) -> list[str]:
     for tick in _ticks(start, end, step):
         parts.append(f'<line x1="{x(tick)}" y1="{top}" x2="{x(tick)}" y2="{bottom}" stroke="{GRID}"/>')
         parts.append(_text(x(tick), bottom + 14, _tick(tick), anchor="middle", fill=MUTED, size=11))
-    parts.append(_text(WIDTH - RIGHT_W + 8, bottom + 14, unit_text(unit), fill=MUTED, size=11))
+    parts.append(_text(WIDTH - RIGHT_W + 22, bottom + 14, unit_text(unit), fill=MUTED, size=11))
     return parts
 
 

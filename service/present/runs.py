@@ -69,7 +69,7 @@ def balance_charts(balance: dict) -> list[dict]:
         chart = bar_chart(
             f"{row['element']}: input against where it went (mg)", [label for label, _ in BALANCE_PARTS],
             {row["element"]: [row[key] / 1000 for _, key in BALANCE_PARTS]}, "mg",
-            marks=[(f"−{percent:g} %", -band_mg), (f"+{percent:g} %", band_mg)], number=_mg,
+            marks=[("", -band_mg), (f"tolerance ±{percent:g} %", band_mg)], number=_mg,
             chart_id=f"balance-{row['element']}")
         out.append({"row": row, "chart": chart})
     return out
