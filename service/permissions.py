@@ -127,6 +127,17 @@ MATRIX: dict[str, frozenset[str]] = {
     "web.waste": EVERYONE,
     "web.container": EVERYONE,
     "web.run": EVERYONE,
+    "web.runs": EVERYONE,
+    # run forms: as the API's run routes (api.create_runs, add_run_output, add_run_loss, stock_run_output, close_run)
+    "web.run_new": frozenset({"researcher", "lab_manager", "admin"}),
+    "web.run_start": frozenset({"researcher", "lab_manager", "admin"}),
+    "web.run_output_new": frozenset({"researcher", "lab_manager", "admin"}),
+    "web.run_output_add": frozenset({"researcher", "lab_manager", "admin"}),
+    "web.run_loss_new": frozenset({"researcher", "lab_manager", "admin"}),
+    "web.run_loss_add": frozenset({"researcher", "lab_manager", "admin"}),
+    "web.run_stock_new": frozenset({"researcher", "lab_manager", "admin"}),
+    "web.run_stock_add": frozenset({"researcher", "lab_manager", "admin"}),
+    "web.run_close": frozenset({"researcher", "lab_manager", "admin"}),
     "web.audit": frozenset({"auditor", "admin"}),  # as api.list_audit_events
     "web.audit_verify": frozenset({"auditor", "admin"}),  # reads only: recomputes the chain
 }

@@ -52,6 +52,7 @@ __all__ = [
     "ShipIn",
     "PageQuery",
     "ListQuery",
+    "RunQuery",
     "PAGE_LIMIT_DEFAULT",
     "PAGE_LIMIT_MAX",
     "StepIn",
@@ -398,6 +399,14 @@ class PageQuery(_Query):
     limit: int = Field(default=PAGE_LIMIT_DEFAULT, ge=1, le=PAGE_LIMIT_MAX,
                        description=f"records per page, 1 to {PAGE_LIMIT_MAX}")
     offset: int = Field(default=0, ge=0, le=1_000_000_000, description="records to skip")
+
+
+class RunQuery(PageQuery):
+    """Filters of the run listings: one procedure, one lab, one state."""
+
+    procedure_id: Optional[Id] = None
+    lab_id: Optional[Id] = None
+    state: Optional[Literal[vocab.RUN_STATES]] = None
 
 
 class ListQuery(PageQuery):

@@ -61,7 +61,7 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
         "documents.waste_container_manifest_pdf", "documents.waste_container_manifest_html",
         "documents_pages.procedure_assessment_pdf", "documents_pages.waste_container_manifest_pdf",
         "web.overview", "web.stocks", "web.mixtures", "web.procedures", "web.procedure",
-        "web.waste", "web.container", "web.run",
+        "web.waste", "web.container", "web.run", "web.runs",
     ]),
     "reports (waste leaving, inventory on hand)": (SIGNED_IN, ["api.report_waste", "api.report_inventory"]),
     # The site element ledger is site-wide: every role but the lab-scoped researcher.
@@ -97,7 +97,10 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
     "retire an approved procedure": (frozenset({OFFICER, MANAGER, ADMIN}), ["api.retire_procedure"]),
     "runs (researchers record their batches)": (frozenset({RESEARCHER, MANAGER, ADMIN}),
                                                 ["api.create_runs", "api.add_run_output", "api.add_run_loss",
-                                                 "api.close_run", "api.stock_run_output"]),
+                                                 "api.close_run", "api.stock_run_output",
+                                                 "web.run_new", "web.run_start", "web.run_output_new",
+                                                 "web.run_output_add", "web.run_loss_new", "web.run_loss_add",
+                                                 "web.run_stock_new", "web.run_stock_add", "web.run_close"]),
     # Waste: researchers put each wash and solid into a container; the safety officer runs the containers.
     "waste entries (add, reverse, mark full)": (frozenset({RESEARCHER, MANAGER, OFFICER, ADMIN}),
                                                 ["api.add_waste_entry", "api.reverse_waste_entry",

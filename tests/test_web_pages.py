@@ -53,7 +53,7 @@ def _ids(app) -> dict[str, int]:
                           "acetone", "66.7", "run 1", "The waste determination rests with the site safety officer"]),
     ("/waste/{solids}", ["gloves, pipette tips, wipes", "35.000"]),
     ("/mixtures", ["NG-M02", "1.5794 g from NG-0003", "(Se 1,579.2 mg)", "18 mL from NG-0009"]),
-    ("/runs/1", ["Mass balance", "CdSe cores in hexane", "measured", "NG-0001", "100.0", ">yes<", "22.496"]),
+    ("/runs/1", ["Mass balance", "CdSe cores in hexane", "measured", "NG-0001", "100.0", ">closes<", "22.496"]),
     ("/stocks", ["NG-P01", "cadmium selenide", '<a href="/runs/1">from run 1</a>', "15.7"]),
 ])
 def test_pages_for_the_safety_officer(demo, path, expected):

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-from typing import Optional
-
 from flask import jsonify, request
 
 from service import schemas
@@ -27,17 +25,13 @@ def _visible(ident: int) -> Run:
     return run
 
 
-class RunQuery(schemas.PageQuery):
-    procedure_id: Optional[schemas.Id] = None
-
-
 @bp.get("/runs", endpoint="list_runs")
-@operation(query=RunQuery, response=RunAnswer, paged=True)
+@operation(query=schemas.RunQuery, response=RunAnswer, paged=True)
 def list_runs():
-    """One page of runs (without their balance), optionally of one procedure."""
-    query = RunQuery.model_validate(request.args.to_dict())
-    found = runs.list_runs(get_session(), lab_ids=lab_scope(), procedure_id=query.procedure_id, limit=query.limit,
-                           offset=query.offset)
+    """One page of runs (without their balance), optionally of one procedure, lab or state."""
+    query = schemas.RunQuery.model_validate(request.args.to_dict())
+    found = runs.list_runs(get_session(), lab_ids=runs.lab_filter(lab_scope(), query.lab_id),
+                           procedure_id=query.procedure_id, state=query.state, limit=query.limit, offset=query.offset)
     return jsonify(page_answer(found, lambda r: dump_run(r, with_balance=False)))
 
 

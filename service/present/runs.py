@@ -4,12 +4,18 @@ from __future__ import annotations
 
 from flask import current_app
 
+from service.present.charts import bar_chart
 from service.present.serialize import element_rows_from
 from service.store import runs
 from service.store.db import get_session
 from service.store.models import Run
 
-__all__ = ["CAUTION", "balance_tolerance", "balance_elements", "dump_balance", "dump_run"]
+__all__ = ["CAUTION", "BALANCE_PARTS", "balance_tolerance", "balance_elements", "balance_charts", "dump_balance",
+           "dump_run"]
+
+# The rows of a balance chart: (label, key of the balance row); the last is what the tolerance judges.
+BALANCE_PARTS = (("input", "input_ug"), ("product", "product_ug"), ("waste", "waste_ug"), ("losses", "losses_ug"),
+                 ("unaccounted", "unaccounted_ug"))
 
 CAUTION = ("The balance is a record for the lab's own use; estimated outputs carry the uncertainty of their "
            "method. Waste classification rests with the site safety officer and local regulations.")
@@ -45,4 +51,25 @@ def dump_run(run: Run, *, with_balance: bool = True) -> dict:
     }
     if with_balance:
         out["balance"] = dump_balance(runs.balance_of(get_session(), run, balance_tolerance(), balance_elements()))
+    return out
+
+
+def _mg(value) -> str:
+    return f"{value:,.3f}"
+
+
+def balance_charts(balance: dict) -> list[dict]:
+    """One chart per element of a dumped balance (:func:`dump_balance`): its input against product,
+    waste, losses and unaccounted, in mg on the element's own scale, with the tolerance drawn either
+    side of 0 (the band the unaccounted part must stay within). Returns {"row", "chart"} per element."""
+    percent = balance["tolerance_percent"]
+    out = []
+    for row in balance["elements"]:
+        band_mg = row["tolerance_ug"] / 1000
+        chart = bar_chart(
+            f"{row['element']}: input against where it went (mg)", [label for label, _ in BALANCE_PARTS],
+            {row["element"]: [row[key] / 1000 for _, key in BALANCE_PARTS]}, "mg",
+            marks=[("", -band_mg), (f"tolerance ±{percent:g} %", band_mg)], number=_mg,
+            chart_id=f"balance-{row['element']}")
+        out.append({"row": row, "chart": chart})
     return out

@@ -28,7 +28,7 @@ from service.store.models import (
 )
 
 __all__ = ["list_runs", "start_run", "add_output", "add_loss", "flows_of", "balance_of",
-           "remaining_ug", "close_run", "output_element_masses", "stock_output"]
+           "remaining_ug", "close_run", "lab_filter", "output_element_masses", "stock_output"]
 
 
 def _take(session: Session, body: DrawIn, run: Run, field: str) -> RunDraw:
@@ -209,6 +209,13 @@ class UnbalancedRun(Conflict):
     def __init__(self, balance) -> None:
         super().__init__("the mass balance does not close within the site tolerance")
         self.balance = balance
+
+
+def lab_filter(scope: set[int] | None, lab_id: int | None) -> set[int] | None:
+    """The labs a listing covers: the caller's ``scope`` (None: every lab), narrowed to ``lab_id`` if asked."""
+    if lab_id is None:
+        return scope
+    return {lab_id} & scope if scope is not None else {lab_id}
 
 
 def list_runs(session: Session, *, lab_ids: set[int] | None = None, procedure_id: int | None = None,

@@ -18,9 +18,9 @@ from service.permissions import allowed
 from service.schemas import DecisionIn, PageQuery
 from service.present.procedures import dump_procedure
 from service.present.runs import dump_run
-from service.store import inventory, procedures
+from service.store import inventory, procedures, runs
 from service.store.db import get_session
-from service.store.models import Mixture, Procedure, Run, Stock, User
+from service.store.models import Procedure, User
 from service.web import bp
 from service.web.pages import TRACKED
 
@@ -36,6 +36,7 @@ DONE = {"submit": "Submitted for review.", "withdraw": "Withdrawn: the procedure
 DECISIONS = ("approve", "request_changes", "decline")  # taken on the review page
 # The procedure page's buttons that post straight away (no comment needed).
 PAGE_ACTIONS = ("submit", "withdraw", "retire")
+RUNS_SHOWN = 20  # the procedure page lists this many of its runs; the runs page has them all
 
 
 def _visible(ident: int) -> Procedure:
@@ -59,6 +60,7 @@ def _buttons(proc: Procedure, user: User) -> dict:
         "review": (proc.state == "submitted" and allowed("web.review_procedure", user.role)
                    and proc.researcher_id != user.id),
         "actions": [a for a in PAGE_ACTIONS if may_take(proc, a, user)],
+        "start_run": proc.state == "approved" and allowed("web.run_new", user.role),
     }
 
 
@@ -77,7 +79,9 @@ def _procedure_context(proc: Procedure) -> dict:
     user = current_user()
     researcher = session.get(User, proc.researcher_id)
     family = procedures.list_procedures(session, family_id=proc.family_id, lab_ids=lab_scope(), limit=None)
+    proc_runs = runs.list_runs(session, lab_ids=lab_scope(), procedure_id=proc.id, limit=RUNS_SHOWN)
     return {"proc": dump_procedure(proc), "tracked": TRACKED, "buttons": _buttons(proc, user),
+            "runs": proc_runs, "run_rows": [dump_run(r, with_balance=False) for r in proc_runs],
             "labels": ACTION_LABELS, "decisions": _decision_rows(session, proc), "revisions": list(family),
             "researcher": researcher, "edit_url": url_for("web.procedure_edit", ident=proc.id),
             "decider": session.get(User, proc.decided_by_id) if proc.decided_by_id else None}
@@ -154,27 +158,6 @@ def review_page():
     return render_template("pages/review.html",
                            queue=[{**dump_procedure(p, with_findings=False), "highest_level": level}
                                   for p, level in rows], page=rows)
-
-
-@bp.get("/runs/<int:ident>", endpoint="run")
-def run_page(ident: int):
-    session = get_session()
-    run = inventory.get(session, Run, ident)
-    check_lab(run.lab_id)
-    return render_template("pages/run.html", run=dump_run(run),
-                           procedure_title=session.get(Procedure, run.procedure_id).title,
-                           sources=_source_labels(session, run))
-
-
-def _source_labels(session, run: Run) -> dict[str, str]:
-    """Labels of the stocks and mixtures a run drew from, keyed ``stock:<id>`` / ``mixture:<id>``."""
-    out = {}
-    for draw in run.draws:
-        if draw.stock_id is not None:
-            out[f"stock:{draw.stock_id}"] = session.get(Stock, draw.stock_id).label
-        if draw.mixture_id is not None:
-            out[f"mixture:{draw.mixture_id}"] = session.get(Mixture, draw.mixture_id).label
-    return out
 
 
 @bp.app_context_processor
