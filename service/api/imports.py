@@ -28,7 +28,10 @@ def import_stocks():
     if upload is None or not upload.filename:
         raise ApiError(422, "invalid_input", "send the spreadsheet as the multipart field 'file'",
                        [{"field": "file", "message": f"required: a {' or '.join(SUFFIXES)} file"}])
-    data = upload.stream.read(MAX_UPLOAD_BYTES + 1)  # one byte more: a larger file shows as such
+    try:
+        data = upload.stream.read(MAX_UPLOAD_BYTES + 1)  # one byte more: a larger file shows as such
+    finally:
+        upload.close()  # a large upload is spooled to a temporary file: closed at once
     frame = read_upload(upload.filename, data)
     report = import_inventory(get_session(), frame, catalogue_lookup=lookup_in(catalogue()), dry_run=query.dry_run,
                               only_valid=query.only_valid)

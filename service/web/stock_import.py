@@ -110,7 +110,10 @@ def stock_import_check():
     upload = request.files.get("file")
     if upload is None or not upload.filename:
         return _page(error=f"Choose a {' or '.join(SUFFIXES)} file to check.", status=422)
-    data = upload.stream.read(MAX_UPLOAD_BYTES + 1)  # one byte more: a larger file shows as such
+    try:
+        data = upload.stream.read(MAX_UPLOAD_BYTES + 1)  # one byte more: a larger file shows as such
+    finally:
+        upload.close()  # a large upload is spooled to a temporary file: closed at once
     try:
         report = _run(upload.filename, data, dry_run=True)
     except InvalidInput as exc:
