@@ -132,31 +132,29 @@ def serve(host: str, port: int) -> None:
 @main.command("import-inventory")
 @click.argument("file", type=click.Path(exists=True, dir_okay=False, path_type=Path))
 @click.option("--dry-run", is_flag=True, help="Check every row and report, write nothing.")
+@click.option("--only-valid", is_flag=True, help="Import the accepted rows even when others are rejected.")
 @click.option("--report", "report_path", type=click.Path(dir_okay=False, path_type=Path),
               help="Also write the rejected rows to this CSV file.")
-def import_inventory_command(file: Path, dry_run: bool, report_path: Path | None) -> None:
+def import_inventory_command(file: Path, dry_run: bool, only_valid: bool, report_path: Path | None) -> None:
     """Import stocks from a CSV or XLSX spreadsheet; rejected rows are listed with the reason.
 
-    The valid rows are written in one transaction: all of them or, on any failure, none.
+    Every row is written in one transaction, or none: a file with a rejected row imports nothing
+    unless --only-valid asks for the accepted rows alone.
     """
     from service.errors import InvalidInput
-    from service.store.importer import import_inventory, read_table
+    from service.store.importer import import_inventory, lookup_in, read_table
 
     app = _app()
     _init(app)
-    catalogue = _catalogue(app)
     try:
         frame = read_table(file)
     except InvalidInput as exc:
         raise click.ClickException(str(exc)) from None
-
-    def lookup(text: str):
-        entry = catalogue.find(text)
-        return entry.key if entry else None
-
+    lookup = lookup_in(_catalogue(app))
     with _command_session(app, "import-inventory") as session:
         with click.progressbar(length=len(frame), label="checking rows", file=sys.stderr) as bar:
-            report = import_inventory(session, frame, catalogue_lookup=lookup, dry_run=dry_run, progress=bar.update)
+            report = import_inventory(session, frame, catalogue_lookup=lookup, dry_run=dry_run,
+                                      only_valid=only_valid, progress=bar.update)
     for row in report.rejected:
         click.echo(f"line {row.line} ({row.label or 'no label'}): {row.reason}")
     if report_path is not None:
@@ -166,6 +164,9 @@ def import_inventory_command(file: Path, dry_run: bool, report_path: Path | None
         f"{report.rows} row(s) read: {verb} {report.imported}, rejected {len(report.rejected)}"
         + (f", {report.locations_created} new location(s)" if report.locations_created else "")
     )
+    if report.withheld:
+        raise click.ClickException(f"nothing imported: {len(report.rejected)} row(s) rejected; correct them, or "
+                                   f"import the {report.accepted} accepted row(s) alone with --only-valid")
 
 
 @main.command("add-user")

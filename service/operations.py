@@ -29,6 +29,7 @@ def is_api_path(path: str) -> bool:
 class Operation:
     body: Optional[type[BaseModel]] = None  # the model the view validates its JSON body with
     body_required: bool = True
+    upload: Optional[str] = None  # the multipart/form-data file field the view reads (instead of a JSON body)
     query: Optional[type[BaseModel]] = None  # the model the view validates its query string with
     response: Optional[type[BaseModel]] = None  # the shape of the success answer (of one item if paged)
     paged: bool = False  # the answer is {"items", "total", "limit", "offset"}

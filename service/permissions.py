@@ -89,6 +89,8 @@ MATRIX: dict[str, frozenset[str]] = {
     "api.ship_stock": frozenset({"researcher", "lab_manager", "admin"}),
     "api.list_stock_movements_of_stock": EVERYONE,
     "api.list_stock_movements": EVERYONE,
+    # a spreadsheet names its labs by code, over any lab: the inventory's keepers, not lab-scoped roles
+    "api.import_stocks": frozenset({"lab_manager", "admin"}),
     # waste containers: researchers add entries; the safety officer and lab manager run the containers
     "api.list_waste_containers": EVERYONE,
     "api.read_waste_containers": EVERYONE,
@@ -138,6 +140,19 @@ MATRIX: dict[str, frozenset[str]] = {
     "web.run_stock_new": frozenset({"researcher", "lab_manager", "admin"}),
     "web.run_stock_add": frozenset({"researcher", "lab_manager", "admin"}),
     "web.run_close": frozenset({"researcher", "lab_manager", "admin"}),
+    # inventory pages: the same roles as the API routes they stand for
+    "web.stock": EVERYONE,  # as api.read_stocks
+    "web.stock_new": frozenset(_INVENTORY_WRITERS["stocks"]),  # as api.create_stocks
+    "web.stock_create": frozenset(_INVENTORY_WRITERS["stocks"]),
+    "web.stock_edit": frozenset(_INVENTORY_WRITERS["stocks"]),  # as api.update_stocks
+    "web.stock_save": frozenset(_INVENTORY_WRITERS["stocks"]),
+    "web.mixture_new": frozenset(_INVENTORY_WRITERS["mixtures"]),  # as api.create_mixtures
+    "web.mixture_create": frozenset(_INVENTORY_WRITERS["mixtures"]),
+    "web.stock_move": frozenset({"researcher", "lab_manager", "admin"}),  # as api.dispose/transfer/ship_stock
+    "web.stock_move_submit": frozenset({"researcher", "lab_manager", "admin"}),
+    "web.stock_import": frozenset({"lab_manager", "admin"}),  # as api.import_stocks
+    "web.stock_import_check": frozenset({"lab_manager", "admin"}),
+    "web.stock_import_run": frozenset({"lab_manager", "admin"}),
     "web.audit": frozenset({"auditor", "admin"}),  # as api.list_audit_events
     "web.audit_verify": frozenset({"auditor", "admin"}),  # reads only: recomputes the chain
 }

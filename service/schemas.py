@@ -47,6 +47,7 @@ __all__ = [
     "WindowQuery",
     "AuditQuery",
     "MovementQuery",
+    "ImportQuery",
     "DisposeIn",
     "TransferIn",
     "ShipIn",
@@ -448,6 +449,14 @@ class MovementQuery(WindowQuery):
 
     kind: Optional[MovementKind] = None
     lab_id: Optional[Id] = None
+
+
+class ImportQuery(_Query):
+    """How a spreadsheet import runs: a dry run (the default) reports each row and writes nothing."""
+
+    dry_run: bool = Field(default=True, description="true (the default): check and report every row, write nothing")
+    only_valid: bool = Field(default=False, description="on a real run, import the accepted rows although others "
+                                                        "are rejected; false: a file with a rejected row imports nothing")
 
 
 class DisposeIn(_Body):

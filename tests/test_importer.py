@@ -80,7 +80,8 @@ def test_five_thousand_rows_with_fifty_bad(app_with_lab, catalogue, tmp_path):
     frame.to_csv(path, index=False)
     ticks = []
     with session_scope(app_with_lab.extensions["dotledger.sessions"]) as session:
-        report = import_inventory(session, read_table(path), catalogue_lookup=_lookup(catalogue), progress=ticks.append)
+        report = import_inventory(session, read_table(path), catalogue_lookup=_lookup(catalogue), only_valid=True,
+                                  progress=ticks.append)
     assert report.imported == 4950
     assert len(report.rejected) == 50
     assert sum(ticks) == 5000
@@ -97,11 +98,31 @@ def test_xlsx_import_through_the_cli(app_with_lab, tmp_path, monkeypatch):
     frame.to_excel(path, index=False)
     report_path = tmp_path / "rejected.csv"
     monkeypatch.setenv("DOTLEDGER_DATABASE_URL", app_with_lab.config["DATABASE_URL"])
-    result = CliRunner().invoke(main, ["import-inventory", str(path), "--report", str(report_path)])
+    result = CliRunner().invoke(main, ["import-inventory", str(path), "--only-valid", "--report", str(report_path)])
     assert result.exit_code == 0, result.output
     assert "40 row(s) read: imported 36, rejected 4" in result.output
     assert pd.read_csv(report_path)["line"].tolist() == [line for line, _ in expected_bad]
     assert _count(app_with_lab) == 36
+
+
+def test_a_file_with_a_rejected_row_imports_nothing_unless_the_accepted_rows_are_asked_for(
+        app_with_lab, catalogue, tmp_path, monkeypatch):
+    frame, expected_bad = _frame(10, bad_every=5)
+    assert len(expected_bad) == 2
+    with session_scope(app_with_lab.extensions["dotledger.sessions"]) as session:
+        report = import_inventory(session, frame, catalogue_lookup=_lookup(catalogue))
+    assert report.withheld and report.imported == 0 and report.accepted == 8
+    assert [(r.line, r.accepted) for r in report.lines if not r.accepted] == [(line, False) for line, _ in expected_bad]
+    assert _count(app_with_lab) == 0
+    path = tmp_path / "inventory.csv"
+    frame.to_csv(path, index=False)
+    monkeypatch.setenv("DOTLEDGER_DATABASE_URL", app_with_lab.config["DATABASE_URL"])
+    result = CliRunner().invoke(main, ["import-inventory", str(path)])
+    assert result.exit_code == 1 and "nothing imported: 2 row(s) rejected" in result.output
+    assert _count(app_with_lab) == 0
+    result = CliRunner().invoke(main, ["import-inventory", str(path), "--only-valid"])
+    assert result.exit_code == 0 and "imported 8, rejected 2" in result.output
+    assert _count(app_with_lab) == 8
 
 
 def test_dry_run_writes_nothing(app_with_lab, catalogue):
@@ -135,7 +156,7 @@ def test_duplicate_labels_in_the_file_reject_the_second(app_with_lab, catalogue)
     frame, _ = _frame(3, bad_every=None)
     frame.loc[2, "label"] = frame.loc[0, "label"]
     with session_scope(app_with_lab.extensions["dotledger.sessions"]) as session:
-        report = import_inventory(session, frame, catalogue_lookup=_lookup(catalogue))
+        report = import_inventory(session, frame, catalogue_lookup=_lookup(catalogue), only_valid=True)
     assert report.imported == 2 and report.rejected[0].line == 4 and "already used" in report.rejected[0].reason
 
 

@@ -54,9 +54,14 @@ def test_every_api_route_has_an_operation(app, document):
 def test_every_view_that_reads_a_body_declares_it(app, document):
     # Independent of the declarations: a view reads a JSON body when its code calls json_body().
     for path, method, endpoint, view in _routes(app):
-        reads_body = "json_body(" in inspect.getsource(view)
+        source = inspect.getsource(view)
+        reads_body = "json_body(" in source
+        reads_upload = "request.files" in source  # a multipart/form-data upload
         op = document["paths"][path][method]
-        assert ("requestBody" in op) == reads_body, (endpoint, reads_body)
+        assert ("requestBody" in op) == (reads_body or reads_upload), (endpoint, reads_body, reads_upload)
+        if reads_upload:
+            assert list(op["requestBody"]["content"]) == ["multipart/form-data"], endpoint
+            assert "413" in op["responses"] and "422" in op["responses"], endpoint
         if reads_body:
             assert method in ("post", "patch")
             ref = op["requestBody"]["content"]["application/json"]["schema"]["$ref"]

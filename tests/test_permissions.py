@@ -61,7 +61,7 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
         "documents.waste_container_manifest_pdf", "documents.waste_container_manifest_html",
         "documents_pages.procedure_assessment_pdf", "documents_pages.waste_container_manifest_pdf",
         "web.overview", "web.stocks", "web.mixtures", "web.procedures", "web.procedure",
-        "web.waste", "web.container", "web.run", "web.runs",
+        "web.waste", "web.container", "web.run", "web.runs", "web.stock",
     ]),
     "reports (waste leaving, inventory on hand)": (SIGNED_IN, ["api.report_waste", "api.report_inventory"]),
     # The site element ledger is site-wide: every role but the lab-scoped researcher.
@@ -79,8 +79,16 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
         frozenset({MANAGER, OFFICER, ADMIN}), _writes("locations") + _writes("substances")),
     "stocks and mixtures (researchers in their labs prepare and draw them)": (
         frozenset({RESEARCHER, MANAGER, ADMIN}), _writes("stocks") + _writes("mixtures")),
+    "stocks and mixtures by the pages' forms: as the API's writes": (
+        frozenset({RESEARCHER, MANAGER, ADMIN}), ["web.stock_new", "web.stock_create", "web.stock_edit",
+                                                  "web.stock_save", "web.mixture_new", "web.mixture_create"]),
     "stocks leaving the inventory (dispose, transfer, ship): as the stocks' writers": (
-        frozenset({RESEARCHER, MANAGER, ADMIN}), ["api.dispose_stock", "api.transfer_stock", "api.ship_stock"]),
+        frozenset({RESEARCHER, MANAGER, ADMIN}), ["api.dispose_stock", "api.transfer_stock", "api.ship_stock",
+                                                  "web.stock_move", "web.stock_move_submit"]),
+    # A spreadsheet names labs by code, any lab of the site: the lab manager keeps the inventory (and the
+    # admin); a lab-scoped researcher does not import into other labs.
+    "spreadsheet import (API and pages)": (frozenset({MANAGER, ADMIN}), [
+        "api.import_stocks", "web.stock_import", "web.stock_import_check", "web.stock_import_run"]),
     # Procedures: researchers register and submit; only the safety officer decides.
     # (withdraw: researchers their own only, which the store checks per procedure)
     "procedure create, edit, submit, withdraw": (frozenset({RESEARCHER, MANAGER, ADMIN}),

@@ -10,7 +10,7 @@ from service.operations import API_PREFIX
 
 bp = Blueprint("api", __name__, url_prefix=API_PREFIX)
 
-from service.api import areas, identity, inventory, meta, movements, procedures, reports, runs, waste  # noqa: E402,F401  (routes register on bp)
+from service.api import areas, identity, imports, inventory, meta, movements, procedures, reports, runs, waste  # noqa: E402,F401  (routes register on bp)
 from service.api import idempotency  # noqa: E402
 
 idempotency.install(bp)

@@ -239,7 +239,11 @@ def init_app(app: Flask) -> None:
     @app.errorhandler(HTTPException)
     def _http(exc: HTTPException):
         code = (exc.name or "error").lower().replace(" ", "_")
-        response = make_response(error_response(exc.code or 500, code, exc.description or exc.name))
+        details = None
+        if exc.code == 413 and request.mimetype == "multipart/form-data":  # an upload: name the file it carried
+            details = [{"field": "file", "message": f"the upload is larger than "
+                                                    f"{app.config['MAX_CONTENT_LENGTH']:,} bytes"}]
+        response = make_response(error_response(exc.code or 500, code, exc.description or exc.name, details))
         for name, value in exc.get_headers():  # Allow on a 405, and the like
             if name.lower() != "content-type":
                 response.headers[name] = value

@@ -116,7 +116,7 @@ def _operation(endpoint: str, method: str, rule: str, view: Callable, op: Operat
             codes.add(403)
     if _PATH_ARG.search(rule):
         codes.add(404)
-    if op.body is not None:
+    if op.body is not None or op.upload is not None:
         codes |= {400, 413, 422}  # not JSON or nested too deep; above MAX_CONTENT_LENGTH; does not validate
     if op.query is not None:
         codes.add(422)
@@ -137,6 +137,10 @@ def _operation(endpoint: str, method: str, rule: str, view: Callable, op: Operat
     }
     if op.body is not None:
         out["requestBody"] = {"required": op.body_required, "content": {JSON: {"schema": components.ref(op.body)}}}
+    elif op.upload is not None:
+        out["requestBody"] = {"required": True, "content": {"multipart/form-data": {"schema": {
+            "type": "object", "required": [op.upload],
+            "properties": {op.upload: {"type": "string", "format": "binary"}}}}}}
     if endpoint in public:
         out["security"] = []
     return out

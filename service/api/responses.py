@@ -14,7 +14,7 @@ from pydantic import BaseModel, ConfigDict, Field
 __all__ = [
     "Error", "Index", "Lab", "Location", "Substance", "Stock", "Mixture", "User", "Token", "IssuedToken",
     "AuditEvent", "Procedure", "ReviewItem", "Decision", "Preview", "Run", "Balance", "WasteContainer",
-    "WasteEntry", "StockMovement", "Estimate", "Report", "AccumulationArea", "GeneratorReport",
+    "WasteEntry", "StockMovement", "ImportReport", "Estimate", "Report", "AccumulationArea", "GeneratorReport",
 ]
 
 
@@ -291,6 +291,32 @@ class StockMovement(_Answer):
     note: Optional[str]
     actor_id: Optional[int]
     at: str
+
+
+class ImportLine(_Answer):
+    line: int = Field(description="spreadsheet line; the header is line 1")
+    label: str
+    substance: str
+    amount: str
+    lab: str
+    location: str = Field(description="building / room / storage as read")
+    accepted: bool
+    reason: str = Field(description="why the row was rejected; empty when accepted")
+    matched: str = Field(description="the catalogue substance an accepted row is")
+
+
+class ImportReport(_Answer):
+    file: str
+    dry_run: bool
+    only_valid: bool
+    rows: int
+    accepted: int
+    rejected: int
+    imported: int
+    withheld: bool = Field(description="a real run imported nothing because rows were rejected")
+    locations_created: int
+    lines: list[ImportLine]
+    caution: str
 
 
 class Estimate(_Answer):

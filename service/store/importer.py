@@ -1,13 +1,16 @@
 """Import of an inventory spreadsheet (CSV or XLSX) into stocks.
 
-Every row is checked first; the valid rows are then written in one transaction, so a
-file is imported whole (its valid rows) or not at all. Each rejected row is reported with
-its spreadsheet line and the reason.
+Every row is checked first and reported with its spreadsheet line: what was read, and accepted or
+the reason it was rejected. A real run then writes in one transaction: every row, or nothing. A file
+with a rejected row imports nothing unless the caller asks for the accepted rows alone
+(``only_valid``); the CLI, the API and the pages follow this one rule.
 """
 
 from __future__ import annotations
 
 import datetime as dt
+import io
+import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable, Optional
@@ -25,10 +28,17 @@ from service.store import inventory
 from service.store.ledger import to_csv_bytes
 from service.store.models import Lab, Location, Stock, Substance
 
-__all__ = ["ImportReport", "Rejected", "REQUIRED_COLUMNS", "read_table", "import_inventory"]
+__all__ = ["ImportReport", "Rejected", "ReadRow", "REQUIRED_COLUMNS", "SUFFIXES", "MAX_UPLOAD_BYTES",
+           "MAX_UPLOAD_ROWS", "read_table", "read_upload", "lookup_in", "import_inventory"]
 
 REQUIRED_COLUMNS = ("label", "substance", "amount", "lab", "building", "room", "storage")
 OPTIONAL_COLUMNS = ("cas", "purity_percent", "density_g_per_ml", "opened_on", "expires_on")
+SUFFIXES = (".csv", ".xlsx", ".xlsm")
+# A file sent over the web (a page or the API): at most 512 KiB and 5,000 rows. A lab's inventory of a few
+# thousand stocks is about 100 bytes a row as CSV (less as XLSX), and the report of each row is shown on
+# one page. Larger inventories go through `dotledger import-inventory`, which reads a file on the server.
+MAX_UPLOAD_BYTES = 512 * 1024
+MAX_UPLOAD_ROWS = 5000
 
 
 class ImportRow(BaseModel):
@@ -61,6 +71,21 @@ class Rejected:
     reason: str
 
 
+@dataclass(frozen=True)
+class ReadRow:
+    """One row as read (the cells that say what and where) and what became of it."""
+
+    line: int  # spreadsheet line: the header is line 1
+    label: str
+    substance: str
+    amount: str
+    lab: str
+    location: str  # building / room / storage as read
+    accepted: bool
+    reason: str = ""  # why it was rejected
+    matched: str = ""  # the catalogue substance an accepted row is
+
+
 @dataclass
 class ImportReport:
     rows: int = 0
@@ -68,6 +93,17 @@ class ImportReport:
     locations_created: int = 0
     rejected: list[Rejected] = field(default_factory=list)
     dry_run: bool = False
+    only_valid: bool = False  # the accepted rows were asked for alone
+    lines: list[ReadRow] = field(default_factory=list)
+
+    @property
+    def accepted(self) -> int:
+        return self.rows - len(self.rejected)
+
+    @property
+    def withheld(self) -> bool:
+        """A real run that imported nothing because rows were rejected and the accepted ones alone were not asked for."""
+        return not self.dry_run and bool(self.rejected) and not self.only_valid
 
     def to_frame(self) -> pd.DataFrame:
         return pd.DataFrame([r.__dict__ for r in self.rejected], columns=["line", "label", "reason"])
@@ -77,21 +113,56 @@ class ImportReport:
         return to_csv_bytes(self.to_frame(), caution=None)
 
 
-def read_table(path: Path | str) -> pd.DataFrame:
-    """Read a CSV or XLSX file as text cells (empty cells as "")."""
+def read_table(path: Path | str, data: Optional[bytes] = None) -> pd.DataFrame:
+    """Read a CSV or XLSX file as text cells (empty cells as ""); ``data``: its bytes, ``path`` then only names it.
+
+    A file that cannot be read as its kind is InvalidInput naming ``file``.
+    """
     path = Path(path)
     suffix = path.suffix.lower()
-    if suffix == ".csv":
-        frame = pd.read_csv(path, dtype=str, keep_default_na=False, encoding="utf-8-sig")
-    elif suffix in (".xlsx", ".xlsm"):
-        frame = pd.read_excel(path, dtype=str, keep_default_na=False)
-    else:
-        raise InvalidInput("file", f"expected a .csv or .xlsx file, got {path.name!r}")
+    source = path if data is None else io.BytesIO(data)
+    try:
+        if suffix == ".csv":
+            frame = pd.read_csv(source, dtype=str, keep_default_na=False, encoding="utf-8-sig")
+        elif suffix in (".xlsx", ".xlsm"):
+            frame = pd.read_excel(source, dtype=str, keep_default_na=False)
+        else:
+            raise InvalidInput("file", f"expected a .csv or .xlsx file, got {path.name!r}")
+    except (UnicodeDecodeError, pd.errors.ParserError, pd.errors.EmptyDataError, zipfile.BadZipFile, KeyError,
+            OSError) as exc:
+        kind = "CSV (UTF-8)" if suffix == ".csv" else "XLSX"
+        raise InvalidInput("file", f"{path.name!r} could not be read as {kind}: {str(exc)[:200]}") from None
     frame.columns = [str(c).strip().lower().replace(" ", "_") for c in frame.columns]
     missing = [c for c in REQUIRED_COLUMNS if c not in frame.columns]
     if missing:
         raise InvalidInput("columns", f"missing column(s): {', '.join(missing)}; required: {', '.join(REQUIRED_COLUMNS)}")
     return frame
+
+
+def read_upload(filename: str, data: bytes) -> pd.DataFrame:
+    """A spreadsheet sent over the web: at most MAX_UPLOAD_BYTES and MAX_UPLOAD_ROWS rows (InvalidInput naming ``file``)."""
+    if len(data) > MAX_UPLOAD_BYTES:
+        raise InvalidInput("file", f"{filename!r} is {len(data):,} bytes; a file sent here is at most "
+                                   f"{MAX_UPLOAD_BYTES:,} bytes (larger files: dotledger import-inventory)")
+    if not data:
+        raise InvalidInput("file", f"{filename!r} is empty")
+    frame = read_table(Path(filename).name or "upload", data)
+    if len(frame) > MAX_UPLOAD_ROWS:
+        raise InvalidInput("file", f"{filename!r} has {len(frame):,} rows; a file sent here has at most "
+                                   f"{MAX_UPLOAD_ROWS:,} (larger files: dotledger import-inventory)")
+    return frame
+
+
+def lookup_in(catalogue) -> Callable[[str], Optional[str]]:
+    """The importer's ``catalogue_lookup`` from the shipped catalogue: a name, synonym or CAS number -> its key."""
+    def lookup(text: str) -> Optional[str]:
+        entry = catalogue.find(text)
+        return entry.key if entry else None
+    return lookup
+
+
+def _cell(cells: dict, name: str) -> str:
+    return str(cells.get(name, "")).strip()[:200]
 
 
 def _reason(exc: Exception) -> str:
@@ -106,14 +177,16 @@ def import_inventory(
     *,
     catalogue_lookup: Callable[[str], Optional[str]],
     dry_run: bool = False,
+    only_valid: bool = False,
     progress: Callable[[int], None] = lambda n: None,
 ) -> ImportReport:
-    """Check every row, then create the valid ones as stocks in the caller's transaction.
+    """Check every row, then create the stocks in the caller's transaction.
 
-    ``catalogue_lookup`` maps a name, synonym or CAS number to a substance key (the
-    shipped catalogue's index). The caller commits, or rolls back on any exception.
+    A real run writes every row, or nothing when a row is rejected (``report.withheld``) unless
+    ``only_valid`` asks for the accepted rows alone. ``catalogue_lookup`` maps a name, synonym or
+    CAS number to a substance key (:func:`lookup_in`). The caller commits, or rolls back on any exception.
     """
-    report = ImportReport(rows=len(frame), dry_run=dry_run)
+    report = ImportReport(rows=len(frame), dry_run=dry_run, only_valid=only_valid)
     substances = {s.key: s for s in session.scalars(select(Substance).where(Substance.retired_at.is_(None)))}
     labs = {lab.code.lower(): lab for lab in session.scalars(select(Lab).where(Lab.retired_at.is_(None)))}
     locations = {(l.building, l.room, l.storage): l for l in session.scalars(select(Location))}
@@ -124,6 +197,9 @@ def import_inventory(
     for index, cells in enumerate(frame.to_dict(orient="records")):
         line = index + 2
         label = str(cells.get("label", "")).strip()
+        read = {"line": line, "label": label[:200], "substance": _cell(cells, "substance"),
+                "amount": _cell(cells, "amount"), "lab": _cell(cells, "lab"),
+                "location": " / ".join(_cell(cells, c) for c in ("building", "room", "storage"))}
         try:
             row = ImportRow.model_validate({k: v for k, v in cells.items() if str(v).strip() != ""})
             key = catalogue_lookup(row.substance) or catalogue_lookup(row.cas or "")
@@ -147,13 +223,17 @@ def import_inventory(
                 raise InvalidInput("storage", f"{' / '.join(where)} is a location of another lab")
         except (ValueError, ValidationError) as exc:
             report.rejected.append(Rejected(line, label, _reason(exc)))
+            report.lines.append(ReadRow(**read, accepted=False, reason=_reason(exc)))
         else:
             taken.add(row.label)
             accepted.append((row, substance, lab))
+            report.lines.append(ReadRow(**read, accepted=True, matched=substance.name))
         progress(1)
 
     if dry_run:
         report.imported = len(accepted)
+        return report
+    if report.withheld:
         return report
     for row, substance, lab in accepted:
         where = (row.building, row.room, row.storage)

@@ -10,6 +10,7 @@ nothing behind (the request's transaction rolls back).
 from __future__ import annotations
 
 import datetime as dt
+from dataclasses import dataclass
 from decimal import ROUND_HALF_EVEN, Decimal
 from typing import Optional
 
@@ -21,10 +22,23 @@ from service.errors import Conflict, InvalidInput
 from service.rules import LayeredRules
 from service.schemas import DisposeIn, EntryIn, ShipIn, StockIn, TransferIn
 from service.store import inventory, waste
-from service.store.models import Lab, Stock, StockMovement, WasteContainer, utcnow
+from service.store.models import (
+    HoldingChange,
+    Lab,
+    Mixture,
+    MixtureComponent,
+    RunDraw,
+    Stock,
+    StockMovement,
+    WasteContainer,
+    WasteEntry,
+    utcnow,
+)
 from service.store.paging import Page, paginate
 
-__all__ = ["dispose", "transfer", "ship", "movements_of", "list_movements"]
+__all__ = ["dispose", "transfer", "ship", "movements_of", "list_movements", "History", "history_of"]
+
+HISTORY_ROWS = 2000  # element rows of a stock's history read for its page (a few hundred changes)
 
 
 def _lock(session: Session, stock_id: int) -> Stock:
@@ -166,3 +180,51 @@ def list_movements(session: Session, *, lab_ids: Optional[set[int]] = None, kind
     if until is not None:
         query = query.where(StockMovement.at < until)
     return paginate(session, query, limit, offset)
+
+
+@dataclass(frozen=True)
+class History:
+    """What changed a stock's element content, oldest first, with what each change links to.
+
+    ``changes`` are its holding changes (one row per element); ``movements`` the movements they belong
+    to (and the one that brought a transferred stock) by id; ``amounts`` the amount text of run draws
+    (``run:<id>``) and mixture preparations (``mixture:<id>``); ``labels`` the labels of the mixtures,
+    stocks and containers named (``mixture:<id>``, ``stock:<id>``, ``entry:<id>`` -> (container id, label)).
+    """
+
+    changes: list
+    movements: dict
+    amounts: dict
+    labels: dict
+
+
+def history_of(session: Session, stock: Stock) -> History:
+    """The stock's history in a fixed number of queries (at most HISTORY_ROWS element rows, the latest)."""
+    changes = list(reversed(session.scalars(
+        select(HoldingChange).where(HoldingChange.stock_id == stock.id)
+        .order_by(HoldingChange.id.desc()).limit(HISTORY_ROWS)).all()))
+    moved = session.scalars(select(StockMovement).where(
+        or_(StockMovement.stock_id == stock.id, StockMovement.to_stock_id == stock.id))).all()
+    movements = {m.id: m for m in moved}
+    amounts: dict = {}
+    for run_id, text in session.execute(select(RunDraw.run_id, RunDraw.amount_text)
+                                        .where(RunDraw.stock_id == stock.id).order_by(RunDraw.id)):
+        amounts[f"run:{run_id}"] = f"{amounts[f'run:{run_id}']} + {text}" if f"run:{run_id}" in amounts else text
+    labels: dict = {}
+    for mixture_id, text, label in session.execute(
+            select(MixtureComponent.mixture_id, MixtureComponent.amount_text, Mixture.label)
+            .join(Mixture, Mixture.id == MixtureComponent.mixture_id)
+            .where(MixtureComponent.source_stock_id == stock.id)):
+        amounts[f"mixture:{mixture_id}"] = text
+        labels[f"mixture:{mixture_id}"] = label
+    others = {m.stock_id for m in moved} | {m.to_stock_id for m in moved if m.to_stock_id}
+    for ident, label, lab_code in session.execute(select(Stock.id, Stock.label, Lab.code)
+                                                  .join(Lab, Lab.id == Stock.lab_id).where(Stock.id.in_(others))):
+        labels[f"stock:{ident}"] = f"{label} ({lab_code})"
+    entries = [m.waste_entry_id for m in moved if m.waste_entry_id]
+    if entries:
+        for entry_id, container_id, label in session.execute(
+                select(WasteEntry.id, WasteContainer.id, WasteContainer.label)
+                .join(WasteContainer, WasteContainer.id == WasteEntry.container_id).where(WasteEntry.id.in_(entries))):
+            labels[f"entry:{entry_id}"] = (container_id, label)
+    return History(changes, movements, amounts, labels)
