@@ -8,6 +8,8 @@ the store functions the API's report routes call; the downloads write the same f
 
 from __future__ import annotations
 
+from decimal import Decimal
+
 from flask import Response, render_template, request
 
 from service import vocab
@@ -49,6 +51,15 @@ def _query() -> ElementLedgerQuery:
     return ElementLedgerQuery.model_validate({k: v.strip() for k, v in request.args.items() if v.strip()})
 
 
+def _exact_mg(value) -> str:
+    """A chart's mg as the ledger's tables write them: exact to the µg.
+
+    >>> _exact_mg(Decimal("6298") / 1000)
+    '6.298'
+    """
+    return f"{Decimal(value):,.3f}"
+
+
 def _months_back(until: str, count: int) -> str:
     """The month ``count - 1`` months before ``until`` ('YYYY-MM').
 
@@ -74,7 +85,7 @@ def ledger_page():
     waste = waste_by_stream(ledger.waste_by(session, ("element", "stream", "month"), since=start, until=end,
                                             element=query.element), months)
     charts = [bar_chart(f"{panel['element']} into waste per month by stream", panel["months"], panel["series"], "mg",
-                        stacked=True) for panel in waste]
+                        stacked=True, number=_exact_mg) for panel in waste]
     on_hand = on_hand_by_lab(ledger.inventory_on_hand(session, ("element", "lab"), element=query.element))
     # The generator category per month over the same months, at most its report's span (the latest months).
     gen_query = GeneratorQuery.model_validate({"since": max(since, _months_back(until, GENERATOR_MONTHS_MAX)),
