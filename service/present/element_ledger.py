@@ -76,7 +76,7 @@ def waste_by_stream(frame: pd.DataFrame, months: Sequence[str]) -> list[dict]:
     ...                       "month": ["2026-01", "2026-01", "2026-03"], "mass_ug": [1500, 20, 7]})
     >>> [(p["element"], p["months"], [(n, [str(v) for v in vs]) for n, vs in p["series"]])
     ...  for p in waste_by_stream(frame, ["2026-01", "2026-02", "2026-03"])]
-    [('Cd', ['2026-01', '2026-02', '2026-03'], [('aqueous_metal', ['1.5', '0', '0.007']), ('halogenated', ['0.02', '0', '0'])])]
+    [('Cd', ['2026-01', '2026-02', '2026-03'], [('aqueous metal', ['1.5', '0', '0.007']), ('halogenated', ['0.02', '0', '0'])])]
     """
     panels: dict[str, dict[str, dict[str, int]]] = {}
     for element, stream, month, ug in frame[["element", "stream", "month", "mass_ug"]].itertuples(index=False):
@@ -85,24 +85,27 @@ def waste_by_stream(frame: pd.DataFrame, months: Sequence[str]) -> list[dict]:
             by_month[month] = by_month.get(month, 0) + int(ug)
     return [{"element": element,
              "months": list(months),
-             "series": [(stream, [_mg(by_month.get(m, 0)) for m in months]) for stream, by_month in sorted(streams.items())],
+             "series": [(stream.replace("_", " "), [_mg(by_month.get(m, 0)) for m in months])
+                        for stream, by_month in sorted(streams.items())],
              "total_ug": sum(sum(by_month.values()) for by_month in streams.values())}
             for element, streams in panels.items()]
 
 
-def on_hand_by_lab(frame: pd.DataFrame) -> dict:
-    """Element mass on hand per lab: the labs (columns) and one row per element with µg per lab and the total.
+def on_hand_by_lab(frame: pd.DataFrame, elements: Sequence[str]) -> dict:
+    """Element mass on hand per lab: the labs (columns) and one row per element of ``elements`` that is on
+    hand (in that order) with µg per lab and the total.
 
     ``frame`` is ``ledger.inventory_on_hand(session, ("element", "lab"))``.
 
-    >>> frame = pd.DataFrame({"element": ["Cd", "Cd", "Se"], "lab": ["L1", "L2", "L2"], "mass_ug": [5, 7, 9]})
-    >>> on_hand_by_lab(frame)
-    {'labs': ['L1', 'L2'], 'rows': [{'element': 'Cd', 'by_lab': {'L1': 5, 'L2': 7}, 'total_ug': 12}, \
-{'element': 'Se', 'by_lab': {'L2': 9}, 'total_ug': 9}]}
+    >>> frame = pd.DataFrame({"element": ["Cd", "Cd", "Se", "H"], "lab": ["L1", "L2", "L2", "L1"], "mass_ug": [5, 7, 9, 1]})
+    >>> on_hand_by_lab(frame, ("Se", "Cd", "Te"))
+    {'labs': ['L1', 'L2'], 'rows': [{'element': 'Se', 'by_lab': {'L2': 9}, 'total_ug': 9}, \
+{'element': 'Cd', 'by_lab': {'L1': 5, 'L2': 7}, 'total_ug': 12}]}
     """
     rows: dict[str, dict[str, int]] = {}
     for element, lab, ug in frame[["element", "lab", "mass_ug"]].itertuples(index=False):
-        rows.setdefault(element, {})[lab] = rows.get(element, {}).get(lab, 0) + int(ug)
+        if element in elements:
+            rows.setdefault(element, {})[lab] = rows.get(element, {}).get(lab, 0) + int(ug)
     labs = sorted({lab for by_lab in rows.values() for lab in by_lab})
-    return {"labs": labs, "rows": [{"element": element, "by_lab": by_lab, "total_ug": sum(by_lab.values())}
-                                   for element, by_lab in rows.items()]}
+    return {"labs": labs, "rows": [{"element": element, "by_lab": rows[element], "total_ug": sum(rows[element].values())}
+                                   for element in elements if element in rows]}

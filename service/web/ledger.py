@@ -86,7 +86,8 @@ def ledger_page():
                                             element=query.element), months)
     charts = [bar_chart(f"{panel['element']} into waste per month by stream", panel["months"], panel["series"], "mg",
                         stacked=True, number=_exact_mg) for panel in waste]
-    on_hand = on_hand_by_lab(ledger.inventory_on_hand(session, ("element", "lab"), element=query.element))
+    on_hand = on_hand_by_lab(ledger.inventory_on_hand(session, ("element", "lab"), element=query.element),
+                             (query.element,) if query.element else vocab.TRACKED_ELEMENTS)
     # The generator category per month over the same months, at most its report's span (the latest months).
     gen_query = GeneratorQuery.model_validate({"since": max(since, _months_back(until, GENERATOR_MONTHS_MAX)),
                                                "until": until})
