@@ -38,6 +38,10 @@ if [ "$profile" = test ]; then
   need chromium          test -x /usr/bin/chromium
   # `dotledger backup` / `restore` on PostgreSQL run pg_dump and pg_restore (tests/test_backup.py).
   need postgresql-client command -v pg_dump
+  # The container labels' QR codes are read back from the printed page: pdftoppm draws the PDF,
+  # zbarimg decodes the codes (tests/test_labels.py, tests/browser/test_ledger_browser.py).
+  need poppler-utils     command -v pdftoppm
+  need zbar-tools        command -v zbarimg
 fi
 
 if [ "${#missing[@]}" -eq 0 ]; then

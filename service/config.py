@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import re
 import secrets
 from decimal import Decimal
 from pathlib import Path
@@ -11,7 +12,7 @@ from service import vocab
 from service.resources import RULES_DIR
 from typing import Any, Mapping, Optional
 
-__all__ = ["ConfigError", "load_config", "DEVELOPMENT_KEY", "instance_secret_key"]
+__all__ = ["ConfigError", "load_config", "DEVELOPMENT_KEY", "instance_secret_key", "check_public_url"]
 
 # Once the default; now refused outside TESTING, since anyone who reads the source can sign with it.
 DEVELOPMENT_KEY = "dev-only-change-me"
@@ -28,6 +29,9 @@ _SETTINGS: dict[str, tuple[Any, Any]] = {
     "RULE_PACKS": ("us-federal,eu,site-example", str),
     "SECRET_KEY": (None, str),  # default: a random key kept in <instance>/secret_key
     "PAGE_SIZE": ("A4", str),
+    # The address people reach the server at (e.g. https://lab.example.org), for the QR codes of the
+    # container labels; default: the address a request came to (the command line needs it set).
+    "PUBLIC_URL": (None, lambda v: check_public_url(v)),
     "SECURE_COOKIES": ("false", lambda v: str(v).lower() in ("1", "true", "yes")),
     "LOGIN_MAX_FAILURES_PER_ACCOUNT": (5, int),
     "LOGIN_MAX_FAILURES_PER_ADDRESS": (20, int),
@@ -64,6 +68,20 @@ def load_config(instance_path: str, test_config: Optional[Mapping[str, Any]] = N
     if not 0 <= config["TRUSTED_PROXIES"] <= 10:
         raise ConfigError(f"DOTLEDGER_TRUSTED_PROXIES={config['TRUSTED_PROXIES']!r}: expected 0 to 10")
     return config
+
+
+def check_public_url(value: str) -> str:
+    """An http(s) address without query or fragment, at most 200 characters; ValueError otherwise.
+
+    >>> check_public_url("https://lab.example.org/")
+    'https://lab.example.org/'
+    >>> check_public_url("lab.example.org")
+    Traceback (most recent call last):
+    ValueError: expected an address such as https://lab.example.org (http or https, no query or fragment)
+    """
+    if len(value) > 200 or not re.fullmatch(r"https?://[^\s/?#]+(/[^\s?#]*)?", value):
+        raise ValueError("expected an address such as https://lab.example.org (http or https, no query or fragment)")
+    return value
 
 
 def instance_secret_key(instance_path: str) -> str:

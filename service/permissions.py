@@ -110,6 +110,9 @@ MATRIX: dict[str, frozenset[str]] = {
     "documents.waste_container_manifest_html": EVERYONE,
     "documents_pages.procedure_assessment_pdf": EVERYONE,
     "documents_pages.waste_container_manifest_pdf": EVERYONE,
+    # a container's label: whoever may read the container prints it (researchers: their labs' containers)
+    "documents.waste_container_label_pdf": EVERYONE,
+    "documents_pages.waste_container_label_pdf": EVERYONE,
     # pages
     "web.overview": EVERYONE,
     "web.stocks": EVERYONE,
@@ -153,6 +156,10 @@ MATRIX: dict[str, frozenset[str]] = {
     "web.stock_import": frozenset({"lab_manager", "admin"}),  # as api.import_stocks
     "web.stock_import_check": frozenset({"lab_manager", "admin"}),
     "web.stock_import_run": frozenset({"lab_manager", "admin"}),
+    # the ledger page is site-wide, as api.report_elements and api.report_generator_category
+    "web.ledger": frozenset({"safety_officer", "lab_manager", "auditor", "admin"}),
+    "web.ledger_figure": frozenset({"safety_officer", "lab_manager", "auditor", "admin"}),  # as api.report_element_figure
+    "web.ledger_download": frozenset({"safety_officer", "lab_manager", "auditor", "admin"}),
     "web.audit": frozenset({"auditor", "admin"}),  # as api.list_audit_events
     "web.audit_verify": frozenset({"auditor", "admin"}),  # reads only: recomputes the chain
 }

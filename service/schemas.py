@@ -7,13 +7,15 @@ import re
 import unicodedata
 from decimal import Decimal
 from functools import lru_cache
-from typing import Annotated, Literal, Optional
+from typing import Annotated, ClassVar, Literal, Optional
 
 import unicodedata
 
-from pydantic import AfterValidator, BaseModel, BeforeValidator, ConfigDict, Field, SecretStr, field_validator, model_validator
+from pydantic import (AfterValidator, BaseModel, BeforeValidator, ConfigDict, Field, SecretStr, StringConstraints,
+                      field_validator, model_validator)
 
 from service import vocab
+from service.balance.site import FIGURES
 from service.chem.substances import Substance as CatalogueSubstance
 from service.chem.units import LIMITS, MAX_AMOUNT_CHARS, parse_amount
 from service.datafiles import load_data_file
@@ -45,6 +47,10 @@ __all__ = [
     "UserPatch",
     "TokenRequest",
     "WindowQuery",
+    "ElementLedgerQuery",
+    "LedgerFigureQuery",
+    "LedgerDownloadQuery",
+    "LabelQuery",
     "AuditQuery",
     "MovementQuery",
     "ImportQuery",
@@ -788,3 +794,52 @@ class GeneratorQuery(_Query):
         self.since = since
         self.until = until
         return self
+
+
+Month = Annotated[str, StringConstraints(pattern=r"^[0-9]{4}-(0[1-9]|1[0-2])$", max_length=7)]
+
+
+class _LedgerMonths(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+    since: Optional[Month] = None  # 'YYYY-MM'; default: the site's first month of records
+    until: Optional[Month] = None  # 'YYYY-MM'; default: the present month
+    element: Optional[ElementSymbol] = None
+
+    @model_validator(mode="after")
+    def _order(self):
+        if self.since and self.until and self.since > self.until:
+            raise ValueError(f"since ({self.since}) is after until ({self.until})")
+        return self
+
+
+class ElementLedgerQuery(_LedgerMonths):
+    """The months (UTC, ``YYYY-MM``, inclusive) and element of the site element ledger, and its format."""
+
+    report: ClassVar[str] = "elements"
+    format: Literal["json", "csv", "xlsx"] = "json"
+
+
+class LedgerDownloadQuery(_LedgerMonths):
+    """A download of the ledger page: the ledger (``elements``), metal into waste by element, stream and month
+    (``waste``) or on hand by element and lab (``inventory``), as CSV or XLSX, over the ledger's months."""
+
+    report: Literal["elements", "waste", "inventory"] = "elements"
+    format: Literal["csv", "xlsx"] = "csv"
+
+
+class LedgerFigureQuery(BaseModel):
+    """One figure of one element's month of the site element ledger."""
+
+    model_config = ConfigDict(extra="forbid")
+    element: ElementSymbol
+    month: Month
+    figure: Literal[FIGURES]  # type: ignore[valid-type]
+
+
+class LabelQuery(_Query):
+    """The size a waste container's label prints at (``vocab.LABEL_SIZES``)."""
+
+    size: Literal[vocab.LABEL_SIZES] = Field(  # type: ignore[valid-type]
+        default="single-100x150",
+        description="single-100x150: one 100 mm × 150 mm label; a4-2x4: an A4 sheet of 2 × 4 labels of "
+                    "99.1 mm × 67.7 mm; letter-2x3: a US Letter sheet of 2 × 3 labels of 4 in × 3 1/3 in")

@@ -31,6 +31,7 @@ __all__ = [
     "RUN_STATES",
     "CONTAINER_STATES",
     "MOVEMENT_KINDS",
+    "LABEL_SIZES",
     "HOLDING_CHANGE_KINDS",
     "FINDING_LEVELS",
     "WASTE_CODE_FORMATS",
@@ -81,6 +82,11 @@ CONTAINER_STATES = ("open", "full", "pickup_requested", "collected")
 # How a stock leaves the inventory other than by a run's draw: into a waste container, to another
 # lab of the site (a new stock there), or out of the site (sent to a collaborator, returned).
 MOVEMENT_KINDS = ("dispose", "transfer", "ship")
+
+# The sizes a waste container's label prints at: one label of 100 mm × 150 mm on its own page, or a
+# sheet of the common label layouts (A4 with 2 × 4 labels of 99.1 mm × 67.7 mm; US Letter with 2 × 3
+# labels of 4 in × 3 1/3 in), every label of the sheet the same. The layouts are service/documents/label.py.
+LABEL_SIZES = ("single-100x150", "a4-2x4", "letter-2x3")
 
 # Why a stock's or mixture's element content changed: one row per element of each change, signed
 # (+ into the inventory, − out of it), so that the element on hand at any moment is a sum.

@@ -60,13 +60,15 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
         "documents.procedure_assessment_pdf", "documents.procedure_assessment_html",
         "documents.waste_container_manifest_pdf", "documents.waste_container_manifest_html",
         "documents_pages.procedure_assessment_pdf", "documents_pages.waste_container_manifest_pdf",
+        "documents.waste_container_label_pdf", "documents_pages.waste_container_label_pdf",
         "web.overview", "web.stocks", "web.mixtures", "web.procedures", "web.procedure",
         "web.waste", "web.container", "web.run", "web.runs", "web.stock",
     ]),
     "reports (waste leaving, inventory on hand)": (SIGNED_IN, ["api.report_waste", "api.report_inventory"]),
     # The site element ledger is site-wide: every role but the lab-scoped researcher.
     "site element ledger": (frozenset({OFFICER, MANAGER, AUDITOR, ADMIN}),
-                            ["api.report_elements", "api.report_element_figure"]),
+                            ["api.report_elements", "api.report_element_figure",
+                             "web.ledger", "web.ledger_figure", "web.ledger_download"]),
     # The generator category is the whole site's (40 CFR 262.13): not for a lab-scoped researcher.
     "generator category of the site": (frozenset({OFFICER, MANAGER, AUDITOR, ADMIN}),
                                        ["api.report_generator_category"]),

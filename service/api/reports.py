@@ -13,25 +13,24 @@ site-wide and read by the other roles.
 from __future__ import annotations
 
 import datetime as dt
-from typing import Annotated, ClassVar, Literal, Optional
+from typing import ClassVar, Literal, Optional
 
 from flask import Response, jsonify, request
-from pydantic import BaseModel, ConfigDict, Field, StringConstraints, field_validator, model_validator
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 from service.api import bp
 from service.api.responses import ElementLedger, GeneratorReport, LedgerFigure, Report
 from service.appdata import active_rules
 from service.auth import lab_scope
-from service.balance.site import FIGURES
 from service.operations import operation
 from service.present.areas import dump_generator
 from service.present.element_ledger import dump_figure, dump_ledger, ledger_frame
 from service.present.runs import balance_tolerance
-from service.schemas import ElementSymbol, GeneratorQuery
+from service.schemas import ElementLedgerQuery, ElementSymbol, GeneratorQuery, LedgerFigureQuery
 from service.store import element_ledger, generator, ledger
 from service.store.db import end_session, get_session
 
-XLSX = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
+XLSX = ledger.XLSX
 
 
 class _ReportQuery(BaseModel):
@@ -86,12 +85,7 @@ def render(frame, query: _ReportQuery):
         return jsonify({"report": query.report, "by": list(query.by), "columns": list(frame.columns),
                         "rows": frame.to_dict(orient="records"), "count": len(frame),
                         "units": ledger.UNITS, "caution": ledger.CAUTION})
-    stamp = dt.datetime.now(dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
-    if query.format == "csv":
-        body, mimetype = ledger.to_csv_bytes(frame), "text/csv; charset=utf-8"
-    else:
-        body, mimetype = ledger.to_xlsx_bytes(frame, sheet=query.report), XLSX
-    filename = f"dotledger-{query.report}-{stamp}.{query.format}"
+    body, mimetype, filename = ledger.download(frame, query.report, query.format)
     return Response(body, content_type=mimetype, headers={"Content-Disposition": f'attachment; filename="{filename}"'})
 
 
@@ -116,31 +110,6 @@ def report_inventory():
     frame = ledger.run_report(get_session(), "inventory", query.by, lab_ids=lab_scope(), **query.filters())
     end_session()  # the frame is plain data: serialise it with no transaction open
     return render(frame, query)
-
-
-Month = Annotated[str, StringConstraints(pattern=r"^[0-9]{4}-(0[1-9]|1[0-2])$", max_length=7)]
-
-
-class ElementLedgerQuery(BaseModel):
-    model_config = ConfigDict(extra="forbid")
-    report: ClassVar[str] = "elements"
-    since: Optional[Month] = None  # 'YYYY-MM'; default: the site's first month of records
-    until: Optional[Month] = None  # 'YYYY-MM'; default: the present month
-    element: Optional[ElementSymbol] = None
-    format: Literal["json", "csv", "xlsx"] = "json"
-
-    @model_validator(mode="after")
-    def _order(self):
-        if self.since and self.until and self.since > self.until:
-            raise ValueError(f"since ({self.since}) is after until ({self.until})")
-        return self
-
-
-class LedgerFigureQuery(BaseModel):
-    model_config = ConfigDict(extra="forbid")
-    element: ElementSymbol
-    month: Month
-    figure: Literal[FIGURES]  # type: ignore[valid-type]
 
 
 @bp.get("/reports/elements", endpoint="report_elements")

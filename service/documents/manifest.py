@@ -13,7 +13,7 @@ from __future__ import annotations
 
 from service.documents.controls import TransportFile, transport_choice
 
-__all__ = ["DEFERRAL", "SHIPMENT_FIELDS", "manifest_data", "suggested_codes", "code_sections", "entry_rows"]
+__all__ = ["DEFERRAL", "SHIPMENT_FIELDS", "manifest_data", "suggested_codes", "code_sections", "entry_rows", "hazard_rows"]
 
 DEFERRAL = ("Waste codes marked suggested, hazard classes and transport descriptions on this manifest are suggestions "
             "from the records and the active rule packs, for review; codes marked confirmed are the site safety "
@@ -84,7 +84,8 @@ def entry_rows(entries: list[dict]) -> list[dict]:
             for e in entries]
 
 
-def _hazards(constituents: list[dict], text_of) -> list[dict]:
+def hazard_rows(constituents: list[dict], text_of) -> list[dict]:
+    """Each constituent's GHS data from its catalogue record (``record``; none: no hazard data), H-statements with text."""
     rows = []
     for c in constituents:
         hazard = (c.get("record") or {}).get("hazard") or {}
@@ -121,7 +122,7 @@ def manifest_data(view: dict, *, entries: list[dict], records: dict[str, dict], 
         "constituents": [{"substance": c["substance"], "key": c["key"], "volume_percent": c["volume_percent"]}
                          for c in constituents],
         "elements": elements,
-        "hazards": _hazards(constituents, text_of),
+        "hazards": hazard_rows(constituents, text_of),
         "metals_present": sorted(present),
         "codes": code_sections(view["determination"], suggested_codes(view["findings"])),
         "transport": {"rule": choice["rule"], "not_chosen": choice["not_chosen"],

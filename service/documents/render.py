@@ -17,7 +17,8 @@ from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoes
 from service.chem.figures import TEMPLATE_FILTERS
 from service.resources import TEMPLATES_DIR
 
-__all__ = ["PAGE_SIZES", "Draft", "Document", "canonical_json", "data_sha256", "render_html", "render_pdf", "page_size_css"]
+__all__ = ["PAGE_SIZES", "Draft", "Document", "canonical_json", "data_sha256", "render_html", "render_pdf", "page_size_css",
+           "qr_data_uri"]
 
 TEMPLATES = TEMPLATES_DIR / "documents"
 
@@ -75,6 +76,18 @@ def format_timestamp(value: str | None) -> str:
     return "—" if not value else f"{value[:16].replace('T', ' ')} UTC"
 
 
+def qr_data_uri(payload: str) -> str:
+    """A QR code of ``payload`` (segno; error correction level M, a quiet zone of 4 modules as ISO/IEC 18004
+    asks) as an SVG ``data:`` URI without a fixed size, so the template gives it its size in millimetres.
+
+    >>> qr_data_uri("https://lab.example.org/containers/3/entry").startswith("data:image/svg+xml")
+    True
+    """
+    import segno  # only when a label is drawn
+
+    return segno.make(payload, error="m", micro=False, boost_error=False).svg_data_uri(border=4, omitsize=True)
+
+
 def _environment() -> Environment:
     env = Environment(loader=FileSystemLoader(str(TEMPLATES)),
                       autoescape=select_autoescape(["html", "svg"], default_for_string=True),
@@ -82,6 +95,7 @@ def _environment() -> Environment:
     env.filters["mg"] = lambda ug: f"{ug / 1000:,.3f}"
     env.filters["num"] = lambda v, fmt="{:,.3g}": "—" if v is None else fmt.format(v)
     env.filters["ts"] = format_timestamp
+    env.filters["qr"] = qr_data_uri
     env.filters.update(TEMPLATE_FILTERS)  # concentrations, percentages and units as on the pages
     return env
 
@@ -92,7 +106,9 @@ _ENV = _environment()
 def render_html(template: str, data: dict, *, document_id: str, filename: str) -> Document:
     """Hash ``data``, then render ``templates/documents/<template>`` with ``data`` and the hash."""
     digest = data_sha256(data)
-    html = _ENV.get_template(template).render(doc=data, sha256=digest, page_size=page_size_css(data["page_size"]),
+    # A document on the site's paper names its PAGE_SIZE; a label sets its own page size.
+    page_size = page_size_css(data["page_size"]) if "page_size" in data else None
+    html = _ENV.get_template(template).render(doc=data, sha256=digest, page_size=page_size,
                                               stylesheet=(TEMPLATES / "print.css").read_text(encoding="utf-8"))
     return Document(document_id=document_id, sha256=digest, html=html, filename=filename)
 

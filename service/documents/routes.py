@@ -7,7 +7,7 @@ under the prefix, its requests take bearer tokens and answer JSON errors like th
 Lab-scoped like the JSON reads. The data is gathered in the request's session, which then
 ends; the HTML and the PDF are made after it (no transaction open while WeasyPrint works).
 The PDFs are also served to the pages by a second blueprint without the prefix (``pages``,
-``/procedures/<id>/assessment.pdf`` and ``/waste/<id>/manifest.pdf``), where the sign-in
+``/procedures/<id>/assessment.pdf``, ``/waste/<id>/manifest.pdf`` and ``/waste/<id>/label.pdf``), where the sign-in
 cookie authorises them. Every answer carries ``X-Document-SHA256``, the hash of the document's data that is also
 printed in its footer.
 """
@@ -18,9 +18,9 @@ from flask import Blueprint, Response, request
 
 from service.auth import check_lab
 from service.documents.render import Draft
-from service.documents.sources import assessment_for, manifest_for
+from service.documents.sources import assessment_for, label_for, manifest_for
 from service.operations import API_PREFIX, operation
-from service.schemas import ManifestQuery
+from service.schemas import LabelQuery, ManifestQuery
 from service.store import inventory
 from service.store.db import end_session, get_session
 from service.store.models import Procedure, WasteContainer
@@ -73,6 +73,10 @@ _ROUTES = (
     ("/waste_containers/<int:ident>/manifest.html", None, "waste_container_manifest_html",
      WasteContainer, manifest_for, "html", "The container's waste manifest as HTML (preview)." + _SHIPMENT,
      ManifestQuery),
+    ("/waste_containers/<int:ident>/label.pdf", "/waste/<int:ident>/label.pdf", "waste_container_label_pdf",
+     WasteContainer, label_for, "pdf", "The container's label as PDF: \"Hazardous Waste\", the hazards of its contents, "
+     "the stream, the accumulation start date, the container's id and a QR code of its entry page. `size` chooses one "
+     "100 mm × 150 mm label or a sheet of labels (A4 2 × 4, US Letter 2 × 3).", LabelQuery),
 )
 for _api_path, _page_path, _endpoint, _model, _gather, _fmt, _summary, _query in _ROUTES:
     _document_view = _view(_model, _gather, _fmt, _summary, _query)

@@ -14,15 +14,16 @@ from __future__ import annotations
 import datetime as dt
 import re
 
-from flask import Flask, current_app
+from flask import Flask, current_app, request
 
 from service.appdata import statements
 from service.documents.assessment import assessment_data
 from service.documents.controls import ControlsFile, TransportFile, load_controls, load_transport
+from service.documents.label import label_data
 from service.documents.manifest import manifest_data
 from service.documents.render import Draft
 from service.present.procedures import dump_procedure
-from service.schemas import ManifestQuery
+from service.schemas import LabelQuery, ManifestQuery
 from service.present.serialize import lab_heading, location_heading, substance_facts
 from service.present.waste import dump_container, dump_entry
 from service.store import waste
@@ -30,7 +31,7 @@ from service.store.db import get_session
 from service.store.models import Lab, Location, Procedure, Substance, User, WasteContainer
 from service.store.site import site_name
 
-__all__ = ["init_app", "assessment_for", "manifest_for"]
+__all__ = ["init_app", "assessment_for", "manifest_for", "label_for", "entry_url", "ENTRY_PATH"]
 
 _KEY = "dotledger.documents"
 
@@ -80,6 +81,12 @@ def assessment_for(proc: Procedure) -> Draft:
     return Draft("assessment.html", data, document_id, f"assessment-{proc.id}-r{proc.revision}")
 
 
+def _constituent_records(session, view: dict) -> dict[str, dict]:
+    """The catalogue records of a container's constituents, by key (for their hazards)."""
+    keys = [c["key"] for c in view["solvent_composition"] if c["key"]]
+    return {s.key: substance_facts(s) for s in session.query(Substance).filter(Substance.key.in_(keys))} if keys else {}
+
+
 def manifest_for(container: WasteContainer, shipment: ManifestQuery | None = None) -> Draft:
     """The waste manifest's data for ``container`` (the caller has checked the lab scope).
 
@@ -89,8 +96,7 @@ def manifest_for(container: WasteContainer, shipment: ManifestQuery | None = Non
     session = get_session()
     view = dump_container(container)
     entries = waste.entries_of(session, container)
-    keys = [c["key"] for c in view["solvent_composition"] if c["key"]]
-    records = {s.key: substance_facts(s) for s in session.query(Substance).filter(Substance.key.in_(keys))} if keys else {}
+    records = _constituent_records(session, view)
     location = location_heading(session.get(Location, container.location_id))
     document_id = f"WM-{container.id:05d}"
     data = manifest_data(view, entries=[dump_entry(e) for e in entries], records=records,
@@ -98,3 +104,29 @@ def manifest_for(container: WasteContainer, shipment: ManifestQuery | None = Non
                          transport=_transport(), text_of=statements().text_of,
                          shipment=(shipment or ManifestQuery()).model_dump(), **_common())
     return Draft("manifest.html", data, document_id, f"manifest-{_safe_name(container.label)}")
+
+
+# The container's page for a new entry, which the label's QR code opens.
+ENTRY_PATH = "/containers/{ident}/entry"
+
+
+def entry_url(ident: int) -> str:
+    """The absolute address of container ``ident``'s entry page: under ``PUBLIC_URL`` when it is set
+    (a server behind a proxy, and the command line), else under the address the request came to."""
+    base = current_app.config.get("PUBLIC_URL") or request.host_url
+    return base.rstrip("/") + ENTRY_PATH.format(ident=ident)
+
+
+def label_for(container: WasteContainer, query: LabelQuery | None = None) -> Draft:
+    """The label's data for ``container`` at ``query.size`` (the caller has checked the lab scope)."""
+    session = get_session()
+    query = query or LabelQuery()
+    view = dump_container(container)
+    document_id = f"WL-{container.id:05d}"
+    common = {k: v for k, v in _common().items() if k != "page_size"}  # a label sets its own page size
+    data = label_data(view, records=_constituent_records(session, view),
+                      lab=lab_heading(session.get(Lab, container.lab_id)),
+                      location=location_heading(session.get(Location, container.location_id)),
+                      document_id=document_id, entry_url=entry_url(container.id), size=query.size,
+                      text_of=statements().text_of, **common)
+    return Draft("label.html", data, document_id, f"label-{_safe_name(container.label)}-{query.size}")

@@ -34,7 +34,7 @@ from service.store.models import (
     WasteEntryElement,
 )
 
-__all__ = ["Contribution", "ledger_lines", "contributions", "month_bounds", "first_month"]
+__all__ = ["Contribution", "month_range", "ledger_lines", "contributions", "month_bounds", "first_month"]
 
 RECEIVED = ("received", "carried_over")
 CORRECTIONS = ("corrected", "retired")
@@ -141,16 +141,22 @@ def _flows(session: Session, start: dt.datetime, end: dt.datetime, elements: tup
     return [MonthFlows(month=when, element=element, **values) for (element, when), values in flows.items()]
 
 
-def ledger_lines(session: Session, *, since: Optional[str] = None, until: Optional[str] = None,
-                 element: Optional[str] = None, tolerance: Decimal) -> list[LedgerLine]:
-    """The ledger of the months ``since``..``until`` ('YYYY-MM'; default: the site's first month to the
-    present one), for ``element`` or every tracked element that occurs."""
+def month_range(session: Session, since: Optional[str] = None, until: Optional[str] = None) -> tuple[str, str]:
+    """The first and last month ('YYYY-MM') a ledger of ``since``..``until`` covers: by default the
+    site's first month of records and the present month."""
     now = _month_of(dt.datetime.now(dt.timezone.utc))
     first = since or first_month(session) or now
     last = until or now
     if last < first:
         raise InvalidInput("until", f"until ({last}) is before since ({first})", last)
-    months = months_between(first, last)
+    return first, last
+
+
+def ledger_lines(session: Session, *, since: Optional[str] = None, until: Optional[str] = None,
+                 element: Optional[str] = None, tolerance: Decimal) -> list[LedgerLine]:
+    """The ledger of the months ``since``..``until`` ('YYYY-MM'; default: the site's first month to the
+    present one), for ``element`` or every tracked element that occurs."""
+    months = months_between(*month_range(session, since, until))
     if len(months) > 600:
         raise InvalidInput("since", "a ledger covers at most 600 months (50 years)", first)
     elements = _elements(element)

@@ -31,7 +31,7 @@ from service.store.models import (
 from service.store.sheets import neutralise_frame
 
 __all__ = ["CAUTION", "UNITS", "UnknownGroupKey", "Report", "REPORTS", "waste_by", "inventory_on_hand",
-           "run_report", "to_csv_bytes", "to_xlsx_bytes"]
+           "run_report", "to_csv_bytes", "to_xlsx_bytes", "XLSX", "download"]
 
 CAUTION = ("These figures are records for the site's own use, summed from the entries as recorded. "
            "Waste classification and reporting obligations rest with local regulations and the site safety officer.")
@@ -198,3 +198,21 @@ def to_xlsx_bytes(df: pd.DataFrame, *, caution: Optional[str] = CAUTION, sheet: 
         notes += [f"{column}: {unit}" for column, unit in UNITS.items()]
         pd.DataFrame({"about": notes}).to_excel(writer, sheet_name="about", index=False)
     return buffer.getvalue()
+
+
+XLSX = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
+
+
+def download(frame: pd.DataFrame, report: str, fmt: str) -> tuple[bytes, str, str]:
+    """(body, media type, file name) of ``frame`` as a CSV or XLSX download of the report ``report``.
+
+    The one way the API's report routes and the ledger page write a report to a file.
+    """
+    stamp = dt.datetime.now(dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
+    if fmt == "csv":
+        body, mimetype = to_csv_bytes(frame), "text/csv; charset=utf-8"
+    elif fmt == "xlsx":
+        body, mimetype = to_xlsx_bytes(frame, sheet=report), XLSX
+    else:
+        raise ValueError(f"a report downloads as csv or xlsx, not {fmt!r}")
+    return body, mimetype, f"dotledger-{report}-{stamp}.{fmt}"
