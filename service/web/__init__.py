@@ -22,5 +22,6 @@ def _site():
     return {"site": site_name(get_session())}
 
 from service.web import account, audit, editor, pages, procedures, waste  # noqa: E402,F401
+from service.web import containers, entries  # noqa: E402,F401
 
 __all__ = ["bp"]
