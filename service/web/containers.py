@@ -27,8 +27,8 @@ from service.store.db import get_session
 from service.store.models import WasteContainer
 from service.web import bp
 from service.web.editor import _message as field_message
+from service.web.waste import MOVE_LABELS, container_page
 
-MOVE_LABELS = {"mark_full": "Mark full", "request_pickup": "Request pickup", "collect": "Record collection"}
 CODE_ROWS = 4
 _CODE_ROW = re.compile(r"^codes-(\d{1,2})-(system|code|description)$")
 
@@ -39,16 +39,8 @@ def _visible(ident: int) -> WasteContainer:
     return container
 
 
-def moves_for(container: WasteContainer, role: str) -> list[tuple[str, str]]:
-    """The state moves this role may take on the container now: (action, button text)."""
-    return [(action, MOVE_LABELS[action]) for action, (starts, _, _) in waste.MOVES.items()
-            if container.state in starts and allowed(f"api.{action}_waste_container", role)]
-
-
 @bp.post("/waste/<int:ident>/move/<action>", endpoint="container_move")
 def container_move(ident: int, action: str):
-    from service.web.waste import container_page
-
     if action not in waste.MOVES:
         raise NotFound("container action", action)
     container = _visible(ident)

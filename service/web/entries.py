@@ -29,9 +29,10 @@ from service.schemas import EntryIn, ReverseIn
 from service.store import inventory, runs, waste
 from service.store.amounts import mg_text
 from service.store.db import get_session
-from service.store.models import Run, Substance, WasteContainer
+from service.store.models import Substance, WasteContainer
 from service.web import bp
 from service.web.editor import _message as field_message, _number
+from service.web.waste import container_page
 
 # Units offered beside each number (the first is the default); the number and the unit become "25 mL".
 UNITS = {"volume": ("mL", "L"), "mass": ("g", "kg", "mg"), "el_mass": ("mg", "µg", "g"),
@@ -244,8 +245,6 @@ def entry_submit(ident: int):
 @bp.post("/waste/<int:ident>/entries/<int:entry_id>/reverse", endpoint="waste_entry_reverse")
 def entry_reverse(ident: int, entry_id: int):
     """Reverse an entry with a reason; a refusal shows the container page with the reason at that entry."""
-    from service.web.waste import container_page
-
     container = _open_container(ident)
     reason = request.form.get("reason", "")
     try:

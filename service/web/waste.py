@@ -21,13 +21,19 @@ from service.store.db import get_session
 from service.store.models import WasteContainer
 from service.vocab import TRACKED_ELEMENTS
 from service.web import bp
-from service.web.containers import moves_for
 
 # The one-line notice after an action taken from the container page (never the query's own text).
 DONE = {"entry": "Entry saved.", "reversed": "Entry reversed.", "mark_full": "Marked full.",
         "request_pickup": "Pickup requested.", "collect": "Collection recorded.",
         "determined": "Determination recorded."}
 LABEL_ENDPOINT = "documents_pages.waste_container_label_pdf"
+MOVE_LABELS = {"mark_full": "Mark full", "request_pickup": "Request pickup", "collect": "Record collection"}
+
+
+def moves_for(container: WasteContainer, role: str) -> list[tuple[str, str]]:
+    """The state moves this role may take on the container now: (action, button text); the server checks again."""
+    return [(action, MOVE_LABELS[action]) for action, (starts, _, _) in waste.MOVES.items()
+            if container.state in starts and allowed(f"api.{action}_waste_container", role)]
 
 
 @bp.get("/waste", endpoint="waste")
