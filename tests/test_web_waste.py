@@ -158,6 +158,7 @@ def test_solid_container_takes_a_mass_and_no_composition(demo):
     ident = _ids(app)["NG-W04"]
     html = client.get(f"/waste/{ident}/entry").get_data(as_text=True)
     assert '<label for="amount">Mass</label>' in html and "components-0-volume" not in html
+    assert client.get(f"/containers/{ident}/entry").get_data(as_text=True) == html  # the label's QR address
     assert 'inputmode="decimal"' in html
     answer = _entry(client, ident, "check", amount="35", amount_unit="g")
     assert answer.status_code == 200 and "0.035 kg" in answer.get_data(as_text=True)

@@ -214,6 +214,7 @@ def choose_container():
 
 
 @bp.get("/waste/<int:ident>/entry", endpoint="waste_entry")
+@bp.get("/containers/<int:ident>/entry", endpoint="waste_entry")  # the address a label's QR code carries
 def entry_form(ident: int):
     container = _open_container(ident)
     run_id = _run_arg()
