@@ -131,6 +131,18 @@ MATRIX: dict[str, frozenset[str]] = {
     "web.procedure_act": EVERYONE,
     "web.waste": EVERYONE,
     "web.container": EVERYONE,
+    "web.areas": EVERYONE,  # as api.list_accumulation_areas
+    "web.area": EVERYONE,
+    # waste entries from the pages: as api.add_waste_entry / api.reverse_waste_entry
+    "web.waste_entry_choose": frozenset({"researcher", "lab_manager", "safety_officer", "admin"}),
+    "web.waste_entry": frozenset({"researcher", "lab_manager", "safety_officer", "admin"}),
+    "web.waste_entry_submit": frozenset({"researcher", "lab_manager", "safety_officer", "admin"}),
+    "web.waste_entry_reverse": frozenset({"researcher", "lab_manager", "safety_officer", "admin"}),
+    # The container's state buttons: the roles that may take some move reach the route; the view checks
+    # the move's API endpoint (api.<action>_waste_container above).
+    "web.container_move": frozenset({"researcher", "lab_manager", "safety_officer", "admin"}),
+    "web.container_determination": frozenset({"safety_officer", "admin"}),  # as api.determine_waste_container
+    "web.container_determine": frozenset({"safety_officer", "admin"}),
     "web.run": EVERYONE,
     "web.runs": EVERYONE,
     # run forms: as the API's run routes (api.create_runs, add_run_output, add_run_loss, stock_run_output, close_run)

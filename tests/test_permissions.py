@@ -62,7 +62,7 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
         "documents_pages.procedure_assessment_pdf", "documents_pages.waste_container_manifest_pdf",
         "documents.waste_container_label_pdf", "documents_pages.waste_container_label_pdf",
         "web.overview", "web.stocks", "web.mixtures", "web.procedures", "web.procedure",
-        "web.waste", "web.container", "web.run", "web.runs", "web.stock",
+        "web.waste", "web.container", "web.run", "web.runs", "web.stock", "web.areas", "web.area",
     ]),
     "reports (waste leaving, inventory on hand)": (SIGNED_IN, ["api.report_waste", "api.report_inventory"]),
     # The site element ledger is site-wide: every role but the lab-scoped researcher.
@@ -114,12 +114,20 @@ POLICY: dict[str, tuple[frozenset[str], list[str]]] = {
     # Waste: researchers put each wash and solid into a container; the safety officer runs the containers.
     "waste entries (add, reverse, mark full)": (frozenset({RESEARCHER, MANAGER, OFFICER, ADMIN}),
                                                 ["api.add_waste_entry", "api.reverse_waste_entry",
-                                                 "api.mark_full_waste_container"]),
+                                                 "api.mark_full_waste_container", "web.waste_entry_choose",
+                                                 "web.waste_entry", "web.waste_entry_submit",
+                                                 "web.waste_entry_reverse"]),
+    # The container's state buttons: every role that may take some move reaches the route; the view answers
+    # 403 unless the role may take that move through its API route (tests/test_web_waste.py checks it).
+    "container state form of the pages": (frozenset({RESEARCHER, MANAGER, OFFICER, ADMIN}),
+                                          ["web.container_move"]),
     "waste containers (create, request pickup)": (frozenset({OFFICER, MANAGER, ADMIN}),
                                                   ["api.create_waste_containers", "api.request_pickup_waste_container"]),
     "collection by the contractor": (frozenset({OFFICER, ADMIN}), ["api.collect_waste_container"]),
     # The waste determination rests with the safety officer (the design); the admin may record one.
-    "waste determination (confirmed codes)": (frozenset({OFFICER, ADMIN}), ["api.determine_waste_container"]),
+    "waste determination (confirmed codes)": (frozenset({OFFICER, ADMIN}), ["api.determine_waste_container",
+                                                                            "web.container_determination",
+                                                                            "web.container_determine"]),
     "audit trail": (frozenset({AUDITOR, ADMIN}), ["api.list_audit_events", "web.audit", "web.audit_verify"]),
     "user management": (frozenset({ADMIN}), ["api.list_users", "api.read_users", *_writes("users")]),
 }

@@ -11,8 +11,11 @@ from __future__ import annotations
 
 from decimal import ROUND_HALF_EVEN, Decimal
 
+from markupsafe import Markup
+
 from service.appdata import active_rules
 from service.chem.figures import percent_text
+from service.present.charts import line_chart
 from service.present.areas import area_findings
 from service.present.serialize import element_rows_from, finding
 from service.rules import SEVERITY, highest_level
@@ -34,7 +37,8 @@ from service.store.findings import evaluate_once
 from service.store import areas
 from service.store.models import Substance, WasteContainer, WasteEntry
 
-__all__ = ["CAUTION", "dump_container", "dump_determination", "dump_entry", "basis_note", "amounts", "concentrations"]
+__all__ = ["CAUTION", "dump_container", "dump_determination", "dump_entry", "basis_note", "amounts", "concentrations",
+           "history_charts", "running_totals"]
 
 CAUTION = ("Waste codes and transport descriptions are suggestions for review. The waste determination "
            "rests with the site safety officer and local regulations; shipping papers with the licensed shipper.")
@@ -138,3 +142,35 @@ def basis_note(basis) -> str:
     if kind == "reversal":
         return f"reverses entry {basis['entry_id']}"
     return ""
+
+
+def running_totals(rows) -> dict[str, list[dict]]:
+    """Per element, the container's content after each entry that changed it: {"at", "entry_id", "ug"}.
+
+    ``rows`` are (time, entry id, element, µg) in the order the entries were made, reversals
+    (negative µg) included, so the last point of each element is the container's total.
+
+    >>> import datetime as dt
+    >>> t = dt.datetime(2026, 3, 1)
+    >>> [p["ug"] for p in running_totals([(t, 1, "Cd", 500), (t, 1, "Se", 40), (t, 2, "Cd", 250),
+    ...                                    (t, 3, "Cd", -500)])["Cd"]]
+    [500, 750, 250]
+    """
+    out: dict[str, list[dict]] = {}
+    for at, entry_id, element, ug in rows:
+        points = out.setdefault(element, [])
+        points.append({"at": at, "entry_id": entry_id, "ug": (points[-1]["ug"] if points else 0) + ug})
+    return out
+
+
+def history_charts(container: WasteContainer) -> list[Markup]:
+    """One step-line chart per element of the container's content over time, in mg, each with its table
+    (:func:`service.present.charts.line_chart`); tracked elements first, each on its own scale."""
+    from service.vocab import TRACKED_ELEMENTS
+
+    totals = running_totals(waste.element_history(get_session(), container))
+    order = {s: i for i, s in enumerate(TRACKED_ELEMENTS)}
+    return [line_chart(f"{symbol} in {container.label} after each entry",
+                       [(p["at"], Decimal(p["ug"]) / 1000) for p in totals[symbol]], "mg",
+                       when_label="after the entry of", number=lambda v: f"{v:,.3f}")
+            for symbol in sorted(totals, key=lambda s: (order.get(s, len(order)), s))]

@@ -44,8 +44,9 @@ from service.store.models import (
     utcnow,
 )
 
-__all__ = ["SOLID_STREAMS", "Contents", "create_container", "add_entry", "reverse_entry", "contents_of",
-           "subject_of", "move", "determine", "determination_of", "element_masses_ug", "list_containers", "entries_of"]
+__all__ = ["SOLID_STREAMS", "Contents", "EntryCheck", "create_container", "check_entry", "add_entry", "room_text",
+           "reverse_entry", "contents_of", "subject_of", "move", "determine", "determination_of", "element_masses_ug",
+           "list_containers", "entries_of", "element_history", "elements_held"]
 
 SOLID_STREAMS = frozenset(vocab.SOLID_STREAMS)
 _HALOGENS = frozenset({"F", "Cl", "Br", "I"})
@@ -186,19 +187,35 @@ def _lock(session: Session, container_id: int) -> WasteContainer:
     return container
 
 
-def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Optional[int], *,
-              balance_elements: tuple[str, ...] = vocab.BALANCE_ELEMENTS,
-              rules: Optional[LayeredRules] = None) -> WasteEntry:
-    """Append an entry, refusing one that would overfill the container, does not fit its form, or
-    puts more of a followed element into waste than its run leaves unaccounted.
+@dataclass(frozen=True)
+class EntryCheck:
+    """What an entry would put into its container, judged as :func:`add_entry` judges it; nothing written.
 
-    ``balance_elements`` are the elements the run balance follows (the site's setting).
-    The container's row and then the run's are locked, so concurrent entries of one run
-    are judged one after the other against the same balance. With ``rules`` the container's
-    accumulation area's clock is set when this entry takes the area over a limit
-    (:func:`service.store.areas.refresh_clock`, same transaction).
+    ``amount_micro`` is µL for a liquid container and µg for a solid one; ``room_micro`` what the
+    container has left before the entry; ``elements`` the element rows in exact µg with their basis.
     """
-    container = _lock(session, container_id)
+
+    container: WasteContainer
+    run: Optional[Run]
+    amount_micro: int
+    room_micro: int
+    components: tuple[WasteEntryComponent, ...]
+    elements: tuple[WasteEntryElement, ...]
+
+
+def room_text(micro: int, form: str) -> str:
+    """A container's room (or an amount in it) in L or kg.
+
+    >>> room_text(1_500_000, "liquid"), room_text(250_000_000, "solid")
+    ('1.5 L', '0.25 kg')
+    """
+    unit, scale = ("L", 1e6) if form == "liquid" else ("kg", 1e9)
+    return f"{micro / scale:g} {unit}"
+
+
+def _judge(session: Session, container: WasteContainer, body: EntryIn,
+           balance_elements: tuple[str, ...]) -> EntryCheck:
+    """The one judgement of an entry (form, state, run, amount, components, room, elements)."""
     if container.state != "open":
         raise Conflict(f"container {container.label} is {container.state.replace('_', ' ')}; entries go to open containers")
     liquid = container.form == "liquid"
@@ -228,21 +245,50 @@ def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Opti
         raise InvalidInput("components", "the components add up to more than the entry's volume")
     held = contents_of(session, container)
     already = held.volume_ul if liquid else held.mass_ug
-    if already + micro > container.capacity_micro:
-        unit, scale = ("L", 1e6) if liquid else ("kg", 1e9)
-        raise Conflict(f"would overfill {container.label}: it holds {already / scale:g} {unit} of "
-                       f"{container.capacity_micro / scale:g} {unit}; this entry adds {micro / scale:g} {unit}",
+    room = max(container.capacity_micro - already, 0)
+    if micro > room:
+        form = container.form
+        raise Conflict(f"would overfill {container.label}: it holds {room_text(already, form)} of "
+                       f"{room_text(container.capacity_micro, form)}; this entry adds {room_text(micro, form)}; "
+                       f"room left: {room_text(room, form)}",
                        "volume" if liquid else "mass", body.volume or body.mass)
     elements = _entry_elements(session, body, run, balance_elements)
+    return EntryCheck(container, run, micro, room, tuple(components), tuple(elements))
+
+
+def check_entry(session: Session, container_id: int, body: EntryIn, *,
+                balance_elements: tuple[str, ...] = vocab.BALANCE_ELEMENTS) -> EntryCheck:
+    """Judge an entry exactly as :func:`add_entry` would, and say what it would add; nothing is written.
+
+    The same errors as :func:`add_entry` (InvalidInput, QuantityError, Conflict) for the same input.
+    """
+    return _judge(session, get(session, WasteContainer, container_id), body, balance_elements)
+
+
+def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Optional[int], *,
+              balance_elements: tuple[str, ...] = vocab.BALANCE_ELEMENTS,
+              rules: Optional[LayeredRules] = None) -> WasteEntry:
+    """Append an entry, refusing one that would overfill the container, does not fit its form, or
+    puts more of a followed element into waste than its run leaves unaccounted.
+
+    ``balance_elements`` are the elements the run balance follows (the site's setting).
+    The container's row and then the run's are locked, so concurrent entries of one run
+    are judged one after the other against the same balance. With ``rules`` the container's
+    accumulation area's clock is set when this entry takes the area over a limit
+    (:func:`service.store.areas.refresh_clock`, same transaction).
+    """
+    container = _lock(session, container_id)
+    judged = _judge(session, container, body, balance_elements)
+    liquid, micro = container.form == "liquid", judged.amount_micro
     entry = WasteEntry(container_id=container.id, run_id=body.run_id, actor_id=actor_id, description=body.description,
                        volume_ul=micro if liquid else 0, mass_ug=0 if liquid else micro,
                        filterable_solids_percent=body.filterable_solids_percent, ph=body.ph,
-                       components=components, elements=elements, at=utcnow())
+                       components=list(judged.components), elements=list(judged.elements), at=utcnow())
     session.add(entry)
     _count(container, entry)
     if container.first_entry_at is None:
         container.first_entry_at = entry.at
-    if already + micro >= container.capacity_micro and container.full_at is None:
+    if micro >= judged.room_micro and container.full_at is None:
         container.full_at = entry.at
     session.flush()
     areas.refresh_clock(session, container.location_id, rules)
@@ -352,9 +398,12 @@ def subject_of(session: Session, container: WasteContainer, contents: Contents,
 
 
 def list_containers(session: Session, *, lab_ids: Optional[set[int]] = None,
-                    state: Optional[str] = None, limit: Optional[int] = None, offset: int = 0) -> Page:
-    """A page of containers in id order, optionally for some labs or in one state."""
+                    state: Optional[str] = None, location_id: Optional[int] = None, limit: Optional[int] = None,
+                    offset: int = 0) -> Page:
+    """A page of containers in id order, optionally for some labs, in one state or at one location."""
     query = select(WasteContainer).order_by(WasteContainer.id)
+    if location_id is not None:
+        query = query.where(WasteContainer.location_id == location_id)
     if lab_ids is not None:
         query = query.where(WasteContainer.lab_id.in_(sorted(lab_ids)))
     if state:
@@ -366,3 +415,21 @@ def entries_of(session: Session, container: WasteContainer, *, limit: Optional[i
     """A page of a container's entries in the order they were made."""
     return paginate(session, select(WasteEntry).where(WasteEntry.container_id == container.id)
                     .order_by(WasteEntry.id), limit, offset)
+
+
+def element_history(session: Session, container: WasteContainer) -> list[tuple[dt.datetime, int, str, int]]:
+    """Every element row of the container's entries, reversals included, in the order they were made:
+    (time, entry id, element, µg). Their running sum per element is the container's content over time."""
+    return [tuple(row) for row in session.execute(
+        select(WasteEntry.at, WasteEntry.id, WasteEntryElement.element, WasteEntryElement.mass_ug)
+        .join(WasteEntryElement, WasteEntryElement.entry_id == WasteEntry.id)
+        .where(WasteEntry.container_id == container.id).order_by(WasteEntry.id, WasteEntryElement.element))]
+
+
+def elements_held(session: Session, *, lab_ids: Optional[set[int]] = None) -> set[str]:
+    """The elements some container (of ``lab_ids``, or any) holds a non-zero amount of."""
+    query = (select(WasteContainerElement.element).join(WasteContainer)
+             .where(WasteContainerElement.mass_ug != 0).distinct())
+    if lab_ids is not None:
+        query = query.where(WasteContainer.lab_id.in_(sorted(lab_ids)))
+    return set(session.scalars(query))

@@ -25,5 +25,6 @@ from service.web import account, audit, editor, pages, procedures, waste  # noqa
 from service.web import runs  # noqa: E402,F401
 from service.web import mixture_form, stock_import, stock_moves, stock_pages  # noqa: E402,F401
 from service.web import ledger  # noqa: E402,F401
+from service.web import containers, entries  # noqa: E402,F401
 
 __all__ = ["bp"]
