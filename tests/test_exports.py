@@ -101,7 +101,7 @@ def _import(app, tmp_path, monkeypatch, rows: list[dict], suffix: str) -> tuple[
         _write_text_xlsx(path, rows)
     monkeypatch.setenv("DOTLEDGER_DATABASE_URL", app.config["DATABASE_URL"])
     runner = CliRunner()
-    done = runner.invoke(main, ["import-inventory", str(path), "--report", str(report)])
+    done = runner.invoke(main, ["import-inventory", str(path), "--only-valid", "--report", str(report)])
     assert done.exit_code == 0, done.output
     return runner, report.read_bytes()
 
