@@ -9,8 +9,6 @@ from decimal import Decimal
 from functools import lru_cache
 from typing import Annotated, ClassVar, Literal, Optional
 
-import unicodedata
-
 from pydantic import (AfterValidator, BaseModel, BeforeValidator, ConfigDict, Field, SecretStr, StringConstraints,
                       field_validator, model_validator)
 

@@ -360,3 +360,5 @@ def test_months_chain_one_closing_to_the_next_opening(month, app):
     assert later[0]["opening_ug"] == expected["Se"]["closing"]
     error = month["officer"].call("GET", "/reports/elements?since=2026-13", expect=422)["error"]
     assert "since" in str(error["details"])
+    error = month["officer"].call("GET", "/reports/elements?since=0326-08", expect=422)["error"]
+    assert "at most 600 months" in error["message"] and "since" in str(error["details"])

@@ -158,7 +158,7 @@ def ledger_lines(session: Session, *, since: Optional[str] = None, until: Option
     present one), for ``element`` or every tracked element that occurs."""
     months = months_between(*month_range(session, since, until))
     if len(months) > 600:
-        raise InvalidInput("since", "a ledger covers at most 600 months (50 years)", first)
+        raise InvalidInput("since", "a ledger covers at most 600 months (50 years)", months[0])
     elements = _elements(element)
     start, _ = month_bounds(months[0])
     _, end = month_bounds(months[-1])
