@@ -3,12 +3,13 @@
 from __future__ import annotations
 
 from decimal import Decimal
-from typing import Iterable, Sequence
-
-import pandas as pd
+from typing import TYPE_CHECKING, Iterable, Sequence
 
 from service.balance.site import FIGURES, LedgerLine
 from service.store.element_ledger import Contribution
+
+if TYPE_CHECKING:  # pandas is imported where a table is made (a slow import; most commands make none)
+    import pandas as pd
 
 __all__ = ["CAUTION", "COLUMNS", "ledger_frame", "dump_ledger", "dump_figure", "ledger_tables", "waste_by_stream",
            "on_hand_by_lab"]
@@ -26,6 +27,8 @@ COLUMNS = ("month", "element", "opening_ug", "received_ug", "into_products_ug", 
 
 def ledger_frame(lines: Iterable[LedgerLine]) -> pd.DataFrame:
     """One row per element and month, columns :data:`COLUMNS` (masses in µg)."""
+    import pandas as pd
+
     frame = pd.DataFrame([line.to_dict() for line in lines], columns=list(COLUMNS))
     for column in COLUMNS:
         if column.endswith("_ug"):
@@ -72,6 +75,7 @@ def waste_by_stream(frame: pd.DataFrame, months: Sequence[str]) -> list[dict]:
     ``frame`` is ``ledger.waste_by(session, ("element", "stream", "month"), ...)``; every month of
     ``months`` is a category (a month without entries reads 0), each stream a series.
 
+    >>> import pandas as pd
     >>> frame = pd.DataFrame({"element": ["Cd", "Cd", "Cd"], "stream": ["aqueous_metal", "halogenated", "aqueous_metal"],
     ...                       "month": ["2026-01", "2026-01", "2026-03"], "mass_ug": [1500, 20, 7]})
     >>> [(p["element"], p["months"], [(n, [str(v) for v in vs]) for n, vs in p["series"]])
@@ -97,6 +101,7 @@ def on_hand_by_lab(frame: pd.DataFrame, elements: Sequence[str]) -> dict:
 
     ``frame`` is ``ledger.inventory_on_hand(session, ("element", "lab"))``.
 
+    >>> import pandas as pd
     >>> frame = pd.DataFrame({"element": ["Cd", "Cd", "Se", "H"], "lab": ["L1", "L2", "L2", "L1"], "mass_ug": [5, 7, 9, 1]})
     >>> on_hand_by_lab(frame, ("Se", "Cd", "Te"))
     {'labs': ['L1', 'L2'], 'rows': [{'element': 'Se', 'by_lab': {'L2': 9}, 'total_ug': 9}, \

@@ -13,9 +13,8 @@ import io
 import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable, Optional
+from typing import TYPE_CHECKING, Callable, Optional
 
-import pandas as pd
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 from sqlalchemy import select
 from sqlalchemy.orm import Session
@@ -27,6 +26,9 @@ from service.schemas import Density, Label, LocationIn, MassOrVolume, StockIn
 from service.store import inventory
 from service.store.ledger import to_csv_bytes
 from service.store.models import Lab, Location, Stock, Substance
+
+if TYPE_CHECKING:  # pandas is imported where a table is made (a slow import; most commands make none)
+    import pandas as pd
 
 __all__ = ["ImportReport", "Rejected", "ReadRow", "REQUIRED_COLUMNS", "SUFFIXES", "MAX_UPLOAD_BYTES",
            "MAX_UPLOAD_ROWS", "read_table", "read_upload", "lookup_in", "import_inventory"]
@@ -106,6 +108,8 @@ class ImportReport:
         return not self.dry_run and bool(self.rejected) and not self.only_valid
 
     def to_frame(self) -> pd.DataFrame:
+        import pandas as pd
+
         return pd.DataFrame([r.__dict__ for r in self.rejected], columns=["line", "label", "reason"])
 
     def to_csv_bytes(self) -> bytes:
@@ -118,6 +122,8 @@ def read_table(path: Path | str, data: Optional[bytes] = None) -> pd.DataFrame:
 
     A file that cannot be read as its kind is InvalidInput naming ``file``.
     """
+    import pandas as pd
+
     path = Path(path)
     suffix = path.suffix.lower()
     source = path if data is None else io.BytesIO(data)

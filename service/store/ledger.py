@@ -11,9 +11,8 @@ from __future__ import annotations
 import datetime as dt
 import io
 from dataclasses import dataclass
-from typing import Callable, Iterable, Optional, Sequence
+from typing import TYPE_CHECKING, Callable, Iterable, Optional, Sequence
 
-import pandas as pd
 from sqlalchemy import BigInteger, String, cast, func, literal_column, select, union_all
 from sqlalchemy.orm import Session
 
@@ -29,6 +28,9 @@ from service.store.models import (
     WasteEntryElement,
 )
 from service.store.sheets import neutralise_frame
+
+if TYPE_CHECKING:  # pandas is imported where a table is made (a slow import; most commands make none)
+    import pandas as pd
 
 __all__ = ["CAUTION", "UNITS", "UnknownGroupKey", "Report", "REPORTS", "waste_by", "inventory_on_hand",
            "run_report", "to_csv_bytes", "to_xlsx_bytes", "XLSX", "download"]
@@ -67,6 +69,8 @@ def _start_of(day: dt.date | dt.datetime) -> dt.datetime:
 
 
 def _frame(session: Session, query, columns: list[str]) -> pd.DataFrame:
+    import pandas as pd
+
     frame = pd.DataFrame.from_records(session.execute(query).all(), columns=[*columns, "mass_ug"])
     frame["mass_ug"] = frame["mass_ug"].astype("int64")
     frame["mass_mg"] = frame["mass_ug"] / 1000
@@ -191,6 +195,8 @@ def to_xlsx_bytes(df: pd.DataFrame, *, caution: Optional[str] = CAUTION, sheet: 
     Text cells are neutralised as in the CSV: openpyxl stores any text that starts with ``=`` as a
     formula, and after ``neutralise_frame`` none does, so every text cell is stored as text.
     """
+    import pandas as pd
+
     buffer = io.BytesIO()
     with pd.ExcelWriter(buffer, engine="openpyxl") as writer:
         neutralise_frame(df).to_excel(writer, sheet_name=sheet, index=False)

@@ -10,9 +10,10 @@ numbers (and text that is just a plain number, like a basement room "-1") are le
 from __future__ import annotations
 
 import re
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-import pandas as pd
+if TYPE_CHECKING:  # pandas is imported where a table is made (a slow import; most commands make none)
+    import pandas as pd
 
 __all__ = ["FORMULA_STARTS", "neutralise_cell", "neutralise_frame"]
 
@@ -39,6 +40,8 @@ def neutralise_cell(value: Any) -> Any:
 
 def neutralise_frame(frame: pd.DataFrame) -> pd.DataFrame:
     """A copy of ``frame`` with every text cell (and column name) passed through ``neutralise_cell``."""
+    import pandas as pd
+
     safe = frame.rename(columns=neutralise_cell)
     for column in safe.columns:
         if not pd.api.types.is_numeric_dtype(safe[column]):
