@@ -16,6 +16,10 @@ __all__ = ["DataFileError", "load_data_file", "key_path"]
 
 M = TypeVar("M", bound=BaseModel)
 
+# libyaml's parser where PyYAML was built with it (several times faster on the rule packs), else the
+# pure-Python one; both are "safe" (plain data only) and both report a syntax error with its line.
+YAML_LOADER = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
+
 
 class DataFileError(ValueError):
     """A data file that cannot be used; carries the file, the key path and the reason."""
@@ -60,7 +64,7 @@ def load_data_file(path: Path | str, model: type[M]) -> M:
     """
     path = Path(path)
     try:
-        document = yaml.safe_load(path.read_text(encoding="utf-8"))
+        document = yaml.load(path.read_text(encoding="utf-8"), Loader=YAML_LOADER)
     except OSError as exc:
         raise DataFileError(path, [("", f"cannot read: {exc.strerror}")]) from None
     except yaml.YAMLError as exc:

@@ -184,3 +184,43 @@ def test_threshold_conversion_is_exact(text, unit, value, shown):
 def test_bad_thresholds(text, unit, phrase):
     with pytest.raises(QuantityError, match=phrase):
         parse_threshold(text, unit)
+
+
+# Both YAML loaders PyYAML offers (libyaml's C parser, used where PyYAML was built with it, and the
+# pure-Python one it falls back to) must read every shipped data file the same, and name the line of
+# a syntax error. The expected line numbers are counted by hand in the texts below.
+LOADERS = [pytest.param(yaml.SafeLoader, id="pure-python")] + (
+    [pytest.param(yaml.CSafeLoader, id="libyaml")] if hasattr(yaml, "CSafeLoader") else [])
+
+
+@pytest.mark.parametrize("loader", LOADERS)
+def test_each_yaml_loader_reads_the_shipped_files_alike(loader, rules_dir):
+    files = sorted(rules_dir.glob("*.yaml"))
+    assert len(files) >= 5, files
+    for path in files:
+        text = path.read_text(encoding="utf-8")
+        assert yaml.load(text, Loader=loader) == yaml.load(text, Loader=yaml.SafeLoader), path
+
+
+@pytest.mark.parametrize("loader", LOADERS)
+@pytest.mark.parametrize("text, line", [
+    ("pack: site\nrules: [1, 2\nversion: '1'\n", 3),  # the flow list is still open when line 3 starts a key
+    ("pack: site\nversion: '1'\n  rules: []\n", 3),  # a mapping value where none may start
+    ("pack: site\nrules:\n\t- id: x\n", 3),  # a tab cannot start a token
+])
+def test_a_yaml_syntax_error_names_its_line_with_either_loader(loader, text, line, tmp_path, monkeypatch):
+    from service import datafiles
+
+    monkeypatch.setattr(datafiles, "YAML_LOADER", loader)
+    path = tmp_path / "site.yaml"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(DataFileError) as info:
+        load_pack(path)
+    assert str(info.value).startswith(f"{path}: line {line}: not valid YAML: "), str(info.value)
+
+
+def test_the_loader_refuses_python_objects(tmp_path):
+    path = tmp_path / "site.yaml"
+    path.write_text("pack: !!python/object/apply:os.getcwd []\n", encoding="utf-8")
+    with pytest.raises(DataFileError, match=r"line 1: not valid YAML"):
+        load_pack(path)
