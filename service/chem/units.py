@@ -19,6 +19,7 @@ __all__ = [
     "QuantityError",
     "MissingDensityError",
     "ureg",
+    "unit_registry",
     "parse_quantity",
     "kind_of",
     "mass_g",
@@ -40,7 +41,27 @@ MAX_AMOUNT_CHARS = 40
 # A number, then a unit made of letters, "/", "*", "^", digits and spaces: no arithmetic.
 _AMOUNT = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?(\s*[A-Za-z°%][A-Za-z0-9°%/*^ ]*)?$")
 
-ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+
+
+def unit_registry(non_int_type: type = float) -> pint.UnitRegistry:
+    """A pint registry of the default unit definitions (offset units converted to base units when multiplied).
+
+    Parsing pint's definition file is most of the cost of a registry (about 0.2 s); pint keeps the
+    parsed definitions in its cache folder (``pint`` in the user's cache directory, keyed by the file's
+    content and the magnitude type) and reads them from there on the next start. Where that folder
+    cannot be made or written, or a cached file cannot be read (two processes writing it at once), the
+    registry parses the definition file as it would without a cache.
+    ``non_int_type`` is the type of non-integer magnitudes: float here (:data:`ureg`), Decimal for
+    the exact threshold conversions of ``service.rules.loader``.
+    """
+    options = {"non_int_type": non_int_type, "autoconvert_offset_to_baseunit": True}
+    try:
+        return pint.UnitRegistry(cache_folder=":auto:", **options)
+    except Exception:  # noqa: BLE001 - any failure of the cache only costs the parse it would have saved
+        return pint.UnitRegistry(**options)
+
+
+ureg = unit_registry()
 Quantity = ureg.Quantity
 
 _KINDS = {

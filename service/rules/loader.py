@@ -17,7 +17,7 @@ from typing import Optional
 import pint
 
 from service.chem.figures import unit_text
-from service.chem.units import QuantityError, kind_of, parse_quantity
+from service.chem.units import QuantityError, kind_of, parse_quantity, unit_registry
 from service.datafiles import DataFileError, load_data_file
 from service.rules.measures import Measure, MeasureNameError, resolve_measure
 from service.rules.model import SCOPES, Rule, RulePack, WasteCounting
@@ -39,7 +39,7 @@ _DIGITS = Context(prec=20)  # round away the tails of repeating fractions (°F),
 @lru_cache(maxsize=1)
 def _exact() -> pint.UnitRegistry:
     """A pint registry with Decimal magnitudes, for exact unit conversion."""
-    return pint.UnitRegistry(non_int_type=Decimal, autoconvert_offset_to_baseunit=True)
+    return unit_registry(Decimal)
 
 
 def convert_exact(value: Decimal, from_unit: str, to_unit: str) -> Decimal:
