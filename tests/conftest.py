@@ -3,14 +3,25 @@
 The ``backend`` fixture runs a test once on SQLite and once on PostgreSQL (each in
 its own schema of the ``test`` database). Without a reachable PostgreSQL the second run
 is skipped, except under CI (``CI=true``), where a missing server is an error.
+
+``make_app`` on a fresh database starts from a template made once per session and backend by
+the same steps (alembic upgrade from an empty database, then the catalogue sync): on SQLite the
+template file is copied; on PostgreSQL a schema is taken from a pool of schemas in the template's
+state, which a finished test's schema rejoins after its tables are emptied and refilled from the
+template (only when its structure still matches the template's; else it is dropped). Tests that
+call ``upgrade`` themselves (the migration tests) still start from an empty database.
 """
 
 from __future__ import annotations
 
+import atexit
 import os
+import shutil
+import tempfile
 import threading
 import uuid
 from pathlib import Path
+from urllib.parse import unquote
 
 import pytest
 from sqlalchemy import create_engine, text
@@ -78,8 +89,7 @@ def _postgres_schema_url() -> tuple[str, str]:
         if os.environ.get("CI") == "true":
             raise RuntimeError(f"PostgreSQL at {POSTGRES_URL} is needed under CI: {exc}") from exc
         pytest.skip(f"PostgreSQL not reachable at {POSTGRES_URL}: {exc}")
-    separator = "&" if "?" in POSTGRES_URL else "?"
-    return f"{POSTGRES_URL}{separator}options=-csearch_path%3D{schema}", schema
+    return _schema_url(schema), schema
 
 
 @pytest.fixture(params=["sqlite", pytest.param("postgres", marks=pytest.mark.postgres)])
@@ -89,10 +99,7 @@ def database_url(request, tmp_path):
         return
     url, schema = _postgres_schema_url()
     yield url
-    engine = create_engine(POSTGRES_URL)
-    with engine.begin() as conn:
-        conn.execute(text(f'DROP SCHEMA "{schema}" CASCADE'))
-    engine.dispose()
+    _PG_TEMPLATE.release(schema)
 
 
 @pytest.fixture
@@ -100,12 +107,215 @@ def sqlite_url(tmp_path):
     return f"sqlite:///{tmp_path / 'test.sqlite'}"
 
 
-def make_app(url: str, rules_dir: Path):
+def _build(url: str, rules_dir: Path):
+    """What a fresh database needs before the app serves: the migrations, then the catalogue."""
     upgrade(url)
     app = create_app({"DATABASE_URL": url, "TESTING": True, "RULES_DIR": str(rules_dir)})
     with session_scope(app.extensions["dotledger.sessions"]) as session:
         inventory.sync_catalogue(session, load_catalogue(rules_dir)[0])
     return app
+
+
+class _SqliteTemplate:
+    """A migrated, catalogue-synced SQLite file per rules folder, made once and copied per test."""
+
+    def __init__(self) -> None:
+        self.files: dict[str, Path] = {}
+        self.folder: Path | None = None
+
+    def file_for(self, rules_dir: Path) -> Path:
+        key = str(Path(rules_dir).resolve())
+        if key not in self.files:
+            if self.folder is None:
+                self.folder = Path(tempfile.mkdtemp(prefix="dotledger-template-"))
+                atexit.register(shutil.rmtree, self.folder, True)
+            path = self.folder / f"template-{len(self.files)}.sqlite"
+            app = _build(f"sqlite:///{path}", rules_dir)
+            engine = app.extensions["dotledger.engine"]
+            with engine.connect() as conn:  # everything into the main file: the copy takes no -wal file
+                conn.exec_driver_sql("PRAGMA wal_checkpoint(TRUNCATE)")
+            engine.dispose()
+            self.files[key] = path
+        return self.files[key]
+
+    def restore(self, url: str, rules_dir: Path) -> bool:
+        """Copy the template to the file of ``url`` if that database is new (no file yet)."""
+        if "///" not in url or "?" in url or url.endswith(":memory:"):
+            return False
+        path = Path(url.split("///", 1)[1])
+        if path.exists() or Path(f"{path}-wal").exists():
+            return False
+        template = self.file_for(rules_dir)
+        path.parent.mkdir(parents=True, exist_ok=True)
+        shutil.copyfile(template, path)
+        return True
+
+
+# The structure of a schema: its tables' columns, constraints, indexes, triggers, functions and the
+# alembic revision. A schema whose test changed any of them is dropped, not reused. Run with the
+# schema as the search path, so that names print unqualified and two schemas compare equal.
+_STRUCTURE = text("""
+    SELECT md5(coalesce(string_agg(item, ';' ORDER BY item), '')) FROM (
+        SELECT c.relname || '.' || a.attname || ':' || format_type(a.atttypid, a.atttypmod)
+               || ':' || a.attnotnull || ':' || coalesce(pg_get_expr(d.adbin, d.adrelid), '') AS item
+          FROM pg_attribute a JOIN pg_class c ON c.oid = a.attrelid
+          JOIN pg_namespace n ON n.oid = c.relnamespace
+          LEFT JOIN pg_attrdef d ON d.adrelid = a.attrelid AND d.adnum = a.attnum
+         WHERE n.nspname = :schema AND a.attnum > 0 AND NOT a.attisdropped
+      UNION ALL
+        SELECT t.relname || '#' || co.conname || ':' || pg_get_constraintdef(co.oid)
+          FROM pg_constraint co JOIN pg_class t ON t.oid = co.conrelid
+          JOIN pg_namespace n ON n.oid = co.connamespace WHERE n.nspname = :schema
+      UNION ALL
+        SELECT 'index:' || replace(pg_get_indexdef(i.indexrelid), ' ON ' || :schema || '.', ' ON ')
+          FROM pg_index i JOIN pg_class c ON c.oid = i.indexrelid
+          JOIN pg_namespace n ON n.oid = c.relnamespace WHERE n.nspname = :schema
+      UNION ALL
+        SELECT 'trigger:' || t.tgname || ':' || c.relname FROM pg_trigger t JOIN pg_class c ON c.oid = t.tgrelid
+          JOIN pg_namespace n ON n.oid = c.relnamespace WHERE n.nspname = :schema AND NOT t.tgisinternal
+      UNION ALL
+        SELECT 'object:' || c.relkind::text || ':' || c.relname FROM pg_class c
+          JOIN pg_namespace n ON n.oid = c.relnamespace WHERE n.nspname = :schema
+      UNION ALL
+        SELECT 'function:' || p.proname || ':' || md5(p.prosrc) FROM pg_proc p
+          JOIN pg_namespace n ON n.oid = p.pronamespace WHERE n.nspname = :schema
+      UNION ALL
+        SELECT 'revision:' || version_num FROM alembic_version
+    ) AS parts
+""")
+
+
+def _schema_url(schema: str) -> str:
+    separator = "&" if "?" in POSTGRES_URL else "?"
+    return f"{POSTGRES_URL}{separator}options=-csearch_path%3D{schema}"
+
+
+def _schema_of(url: str) -> str | None:
+    marker = "options=-csearch_path%3D"
+    return unquote(url.split(marker, 1)[1].split("&", 1)[0]) if marker in url else None
+
+
+class _PostgresTemplate:
+    """Schemas in a template's state (migrated from empty, catalogue synced), per rules folder.
+
+    The template schema is made once per session and never handed out; a test gets a schema of
+    the pool (a copy made by the same steps the first time) renamed to its own schema's name.
+    When the test ends its schema, if its structure still matches the template's, is emptied
+    (every table but alembic_version), refilled from the template's rows, its
+    sequences set to the template's, and returned to the pool; otherwise it is dropped.
+    """
+
+    def __init__(self) -> None:
+        self.templates: dict[str, tuple[str, str]] = {}  # rules folder -> (template schema, structure)
+        self.pools: dict[str, list[str]] = {}
+        self.handed_out: dict[str, str] = {}  # test schema -> rules folder
+        self._engine = None
+
+    @property
+    def engine(self):
+        if self._engine is None:
+            self._engine = create_engine(POSTGRES_URL)
+            atexit.register(self._drop_all)
+        return self._engine
+
+    def _structure(self, conn, schema: str) -> str:
+        conn.execute(text(f'SET LOCAL search_path = "{schema}"'))
+        return conn.execute(_STRUCTURE, {"schema": schema}).scalar_one()
+
+    def _new_schema(self, rules_dir: Path) -> str:
+        schema = f"p_{uuid.uuid4().hex[:12]}"
+        with self.engine.begin() as conn:
+            conn.execute(text(f'CREATE SCHEMA "{schema}"'))
+        _build(_schema_url(schema), rules_dir).extensions["dotledger.engine"].dispose()
+        return schema
+
+    def _template(self, key: str, rules_dir: Path) -> tuple[str, str]:
+        if key not in self.templates:
+            schema = self._new_schema(rules_dir)
+            with self.engine.begin() as conn:
+                self.templates[key] = (schema, self._structure(conn, schema))
+            self.pools[key] = []
+        return self.templates[key]
+
+    def restore(self, url: str, rules_dir: Path) -> bool:
+        """Put a schema in the template's state under the name in ``url`` if that schema is empty."""
+        schema = _schema_of(url)
+        if schema is None or not url.startswith(POSTGRES_URL):
+            return False
+        with self.engine.begin() as conn:
+            objects = conn.execute(text("SELECT count(*) FROM pg_class c JOIN pg_namespace n ON n.oid = c.relnamespace "
+                                        "WHERE n.nspname = :schema"), {"schema": schema}).scalar_one()
+            if objects:
+                return False
+        key = str(Path(rules_dir).resolve())
+        self._template(key, rules_dir)
+        pooled = self.pools[key].pop() if self.pools[key] else self._new_schema(rules_dir)
+        with self.engine.begin() as conn:
+            conn.execute(text(f'DROP SCHEMA "{schema}"'))
+            conn.execute(text(f'ALTER SCHEMA "{pooled}" RENAME TO "{schema}"'))
+        self.handed_out[schema] = key
+        return True
+
+    def release(self, schema: str) -> None:
+        """The end of a test's schema: back to the pool in the template's state, or dropped."""
+        key = self.handed_out.pop(schema, None)
+        try:
+            if key is not None and self._reset(schema, key):
+                return
+        except Exception:  # noqa: BLE001 - a schema that cannot be reset is dropped like any other
+            pass
+        with self.engine.begin() as conn:
+            conn.execute(text(f'DROP SCHEMA "{schema}" CASCADE'))
+
+    def _reset(self, schema: str, key: str) -> bool:
+        template, structure = self.templates[key]
+        with self.engine.begin() as conn:
+            conn.execute(text("SET LOCAL lock_timeout = '10s'"))
+            if self._structure(conn, schema) != structure:
+                return False
+            tables = conn.execute(text("SELECT tablename FROM pg_tables WHERE schemaname = :schema "
+                                       "AND tablename <> 'alembic_version'"), {"schema": template}).scalars().all()
+            # No trigger fires while the tables are emptied and refilled (the audit trail's guards, the foreign
+            # keys: the rows are the template's, which kept them), so the tables go in any order. DELETE, not
+            # TRUNCATE: a test leaves few rows, and TRUNCATE makes every table's files anew.
+            conn.execute(text("SET LOCAL session_replication_role = replica"))
+            conn.execute(text("; ".join(f'DELETE FROM "{schema}"."{t}"; INSERT INTO "{schema}"."{t}" '
+                                        f'SELECT * FROM "{template}"."{t}"' for t in tables)))
+            sequences = conn.execute(text("SELECT sequencename, last_value FROM pg_sequences WHERE schemaname = :schema"),
+                                     {"schema": template}).all()
+            for name, last_value in sequences:
+                if last_value is None:  # never used: back to its start
+                    conn.execute(text(f'ALTER SEQUENCE "{schema}"."{name}" RESTART'))
+                else:
+                    conn.execute(text("SELECT setval(CAST(:name AS regclass), :value, true)"),
+                                 {"name": f'"{schema}"."{name}"', "value": last_value})
+            pooled = f"p_{uuid.uuid4().hex[:12]}"
+            conn.execute(text(f'ALTER SCHEMA "{schema}" RENAME TO "{pooled}"'))
+        self.pools[key].append(pooled)
+        return True
+
+    def _drop_all(self) -> None:
+        schemas = [schema for schema, _ in self.templates.values()] + [s for pool in self.pools.values() for s in pool]
+        try:
+            with self._engine.begin() as conn:
+                for schema in schemas:
+                    conn.execute(text(f'DROP SCHEMA IF EXISTS "{schema}" CASCADE'))
+            self._engine.dispose()
+        except Exception:  # the server went away: nothing left to tidy
+            pass
+
+
+_SQLITE_TEMPLATE = _SqliteTemplate()
+_PG_TEMPLATE = _PostgresTemplate()
+
+
+def make_app(url: str, rules_dir: Path):
+    """An app on ``url``, migrated and with the catalogue synced (from the session's template when ``url``
+    names a database that is still empty)."""
+    template = _SQLITE_TEMPLATE if url.startswith("sqlite") else _PG_TEMPLATE
+    if not template.restore(url, rules_dir):
+        return _build(url, rules_dir)
+    return create_app({"DATABASE_URL": url, "TESTING": True, "RULES_DIR": str(rules_dir)})
 
 
 @pytest.fixture
