@@ -1,0 +1,36 @@
+"""Timing commands as fresh subprocesses, interleaved, for the start-up benchmarks (cli_start, print_document)."""
+
+from __future__ import annotations
+
+import statistics
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+PYTHON = sys.executable
+DOTLEDGER = [PYTHON, "-c", "from service.console import main; main()"]  # what the `dotledger` script runs
+
+
+def timed(command: list[str], env: dict) -> float:
+    """Wall time of one run of ``command`` (from the checkout, output discarded); fails on a non-zero exit."""
+    started = time.perf_counter()
+    subprocess.run(command, env=env, cwd=ROOT, check=True, stdout=subprocess.DEVNULL)
+    return time.perf_counter() - started
+
+
+def interleaved_medians(runs: dict[str, list[str]], env: dict, repeats: int) -> dict[str, float]:
+    """Run each command once to warm the caches, then ``repeats`` rounds of all of them in turn (so that a
+    change in the machine's load hits all alike); the median wall time of each, printed and returned."""
+    for command in runs.values():
+        timed(command, env)
+    times: dict[str, list[float]] = {name: [] for name in runs}
+    for _ in range(repeats):
+        for name, command in runs.items():
+            times[name].append(timed(command, env))
+    medians = {name: statistics.median(values) for name, values in times.items()}
+    width = max(len(name) for name in runs)
+    for name, median in medians.items():
+        print(f"{name:<{width}}  median {median * 1000:7.0f} ms over {repeats} runs")
+    return medians
