@@ -40,7 +40,7 @@ __all__ = [
 GENESIS = "0" * 64
 NOT_AUDITED = frozenset({"audit_events", "audit_head", "login_attempts", "stock_elements", "mixture_elements",
                          "idempotency_keys", "waste_container_totals", "waste_container_elements",
-                         "waste_container_components"})
+                         "waste_container_components", "waste_month_totals", "ledger_month_totals"})
 SECRETS = {"password_hash": "password_changed", "token_hash": "token_changed"}
 # A change to these alone is bookkeeping, not an event worth a link in the chain
 # (``last_used_at`` would otherwise add one per token-authenticated request).

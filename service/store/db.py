@@ -63,11 +63,12 @@ def make_engine(url: str) -> Engine:
 
 
 def make_sessionmaker(engine: Engine) -> sessionmaker[Session]:
-    """Sessions whose every flush is recorded in the hash-chained audit trail."""
-    from service.store import audit
+    """Sessions whose every flush is recorded in the hash-chained audit trail and kept in the monthly totals."""
+    from service.store import audit, month_totals
 
     factory = sessionmaker(bind=engine, expire_on_commit=False)
     audit.install(factory)
+    month_totals.install(factory)
     event.listen(factory, "before_flush", _refuse_writes_when_reading)
     return factory
 

@@ -1,7 +1,9 @@
 """The site element ledger from the records: monthly figures and the records behind each.
 
-The on-hand figures are sums of holding changes (``service.store.holdings``); the flows are summed
-from the records of runs (draws, outputs, losses), waste entries and stock movements. The pure
+The on-hand figures are sums of holding changes (``service.store.holdings``); the flows are those of
+the records of runs (draws, outputs, losses), waste entries and stock movements. Both are read from
+the monthly totals kept with every record (``service.store.month_totals``), so a ledger costs what
+its months hold, not what the history holds; the drill-down lists the records themselves. The pure
 arithmetic, and the check that the two agree, is ``service.balance.site``. Months are UTC calendar
 months ('YYYY-MM'). The ledger is site-wide: transfers between labs move nothing in or out of it.
 """
@@ -12,7 +14,7 @@ import datetime as dt
 from collections import defaultdict
 from dataclasses import dataclass
 from decimal import Decimal
-from typing import Iterable, Optional
+from typing import Optional
 
 from sqlalchemy import BigInteger, cast, func, select
 from sqlalchemy.orm import Session
@@ -20,9 +22,9 @@ from sqlalchemy.orm import Session
 from service import vocab
 from service.balance.site import FIGURES, LedgerLine, MonthFlows, months_between, site_ledger
 from service.errors import InvalidInput
-from service.store.ledger import _month
 from service.store.models import (
     HoldingChange,
+    LedgerMonthTotal,
     Mixture,
     Run,
     RunDraw,
@@ -32,10 +34,12 @@ from service.store.models import (
     StockMovement,
     WasteEntry,
     WasteEntryElement,
+    WasteMonthTotal,
 )
 
 __all__ = ["Contribution", "month_range", "ledger_lines", "contributions", "month_bounds", "first_month"]
 
+HOLDING = "holding:"  # the kept flows of holding changes: holding:<kind>
 RECEIVED = ("received", "carried_over")
 CORRECTIONS = ("corrected", "retired")
 
@@ -82,62 +86,42 @@ def _elements(element: Optional[str]) -> tuple[str, ...]:
     return (element,) if element else vocab.TRACKED_ELEMENTS
 
 
-def _opening(session: Session, before: dt.datetime, elements: tuple[str, ...]) -> dict[str, int]:
-    query = (select(HoldingChange.element, cast(func.sum(HoldingChange.mass_ug), BigInteger))
-             .where(HoldingChange.at < before, HoldingChange.element.in_(elements)).group_by(HoldingChange.element))
+def _opening(session: Session, before: str, elements: tuple[str, ...]) -> dict[str, int]:
+    """Each element's on hand at the start of the month ``before``: its holding changes of the months before."""
+    query = (select(LedgerMonthTotal.element, cast(func.sum(LedgerMonthTotal.mass_ug), BigInteger))
+             .where(LedgerMonthTotal.month < before, LedgerMonthTotal.flow.startswith(HOLDING),
+                    LedgerMonthTotal.element.in_(elements))
+             .group_by(LedgerMonthTotal.element))
     return {element: int(ug) for element, ug in session.execute(query)}
 
 
-def _add(flows: dict, element: str, month: str, field: str, ug: int) -> None:
-    flows[(element, month)][field] += int(ug)
+# Where each kept flow goes in a month's figures (besides the holding changes' sum).
+_HOLDING_FIELDS = {**{f"{HOLDING}{k}": ("received_ug", 1) for k in RECEIVED},
+                   f"{HOLDING}product": ("products_kept_ug", 1),
+                   **{f"{HOLDING}{k}": ("corrections_ug", -1) for k in CORRECTIONS}}
+_RECORD_FIELDS = {"run_draw": "drawn_ug", "run_output": "outputs_ug", "run_loss": "losses_ug", "shipment": "shipped_ug"}
 
 
-def _json_rows(session: Session, query, elements: tuple[str, ...]) -> Iterable[tuple[str, str, int, object]]:
-    """(element, month, µg, row) of records whose element masses are a JSON mapping."""
-    for row, at, masses in session.execute(query):
-        for element, ug in (masses or {}).items():
-            if element in elements and ug:
-                yield element, _month_of(at), int(ug), row
-
-
-def _flows(session: Session, start: dt.datetime, end: dt.datetime, elements: tuple[str, ...]) -> list[MonthFlows]:
+def _flows(session: Session, first: str, last: str, elements: tuple[str, ...]) -> list[MonthFlows]:
+    """The months ``first``..``last`` of the elements, from the monthly totals (``store.month_totals``)."""
     flows: dict = defaultdict(lambda: defaultdict(int))
-    month = _month(session, HoldingChange.at)
-    held = (select(HoldingChange.element, month, HoldingChange.kind, cast(func.sum(HoldingChange.mass_ug), BigInteger))
-            .where(HoldingChange.at >= start, HoldingChange.at < end, HoldingChange.element.in_(elements))
-            .group_by(HoldingChange.element, month, HoldingChange.kind))
-    for element, when, kind, ug in session.execute(held):
-        _add(flows, element, when, "holdings_change_ug", ug)
-        if kind in RECEIVED:
-            _add(flows, element, when, "received_ug", ug)
-        elif kind == "product":
-            _add(flows, element, when, "products_kept_ug", ug)
-        elif kind in CORRECTIONS:
-            _add(flows, element, when, "corrections_ug", -ug)
-    month = _month(session, WasteEntry.at)
-    disposal = select(StockMovement.waste_entry_id).where(StockMovement.waste_entry_id.is_not(None))
-    for field, only_disposals in (("waste_ug", False), ("disposed_ug", True)):
-        query = (select(WasteEntryElement.element, month, cast(func.sum(WasteEntryElement.mass_ug), BigInteger))
-                 .join(WasteEntry, WasteEntry.id == WasteEntryElement.entry_id)
-                 .where(WasteEntry.at >= start, WasteEntry.at < end, WasteEntryElement.element.in_(elements))
-                 .group_by(WasteEntryElement.element, month))
-        if only_disposals:
-            query = query.where(WasteEntry.id.in_(disposal))
-        for element, when, ug in session.execute(query):
-            _add(flows, element, when, field, ug)
-    for field, model, at_column, extra in (
-        ("drawn_ug", RunDraw, Run.started_at, None),
-        ("outputs_ug", RunOutput, RunOutput.at, None),
-        ("losses_ug", RunLoss, RunLoss.at, None),
-        ("shipped_ug", StockMovement, StockMovement.at, StockMovement.kind == "ship"),
-    ):
-        query = select(model.id, at_column, model.element_mass_ug).where(at_column >= start, at_column < end)
-        if model is RunDraw:
-            query = query.join(Run, Run.id == RunDraw.run_id)
-        if extra is not None:
-            query = query.where(extra)
-        for element, when, ug, _ in _json_rows(session, query, elements):
-            _add(flows, element, when, field, ug)
+    kept = select(LedgerMonthTotal.element, LedgerMonthTotal.month, LedgerMonthTotal.flow, LedgerMonthTotal.mass_ug).where(
+        LedgerMonthTotal.month >= first, LedgerMonthTotal.month <= last, LedgerMonthTotal.element.in_(elements))
+    for element, month, flow, ug in session.execute(kept):
+        if flow.startswith(HOLDING):
+            flows[(element, month)]["holdings_change_ug"] += int(ug)
+            field, sign = _HOLDING_FIELDS.get(flow, (None, 0))
+        else:
+            field, sign = _RECORD_FIELDS[flow], 1
+        if field:
+            flows[(element, month)][field] += sign * int(ug)
+    waste = (select(WasteMonthTotal.element, WasteMonthTotal.month, cast(func.sum(WasteMonthTotal.mass_ug), BigInteger),
+                    cast(func.sum(WasteMonthTotal.disposed_ug), BigInteger))
+             .where(WasteMonthTotal.month >= first, WasteMonthTotal.month <= last, WasteMonthTotal.element.in_(elements))
+             .group_by(WasteMonthTotal.element, WasteMonthTotal.month))
+    for element, month, ug, disposed in session.execute(waste):
+        flows[(element, month)]["waste_ug"] += int(ug)
+        flows[(element, month)]["disposed_ug"] += int(disposed)
     return [MonthFlows(month=when, element=element, **values) for (element, when), values in flows.items()]
 
 
@@ -160,10 +144,9 @@ def ledger_lines(session: Session, *, since: Optional[str] = None, until: Option
     if len(months) > 600:
         raise InvalidInput("since", "a ledger covers at most 600 months (50 years)", months[0])
     elements = _elements(element)
-    start, _ = month_bounds(months[0])
-    _, end = month_bounds(months[-1])
-    opening = _opening(session, start, elements)
-    flows = _flows(session, start, end, elements)
+    month_bounds(months[0])  # a month written YYYY-MM, or InvalidInput
+    opening = _opening(session, months[0], elements)
+    flows = _flows(session, months[0], months[-1], elements)
     lines = site_ledger(flows, months, opening, tolerance)
     if element:
         return lines

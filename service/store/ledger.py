@@ -1,9 +1,11 @@
 """Ledger reports: element mass leaving as waste and on hand, as pandas DataFrames.
 
-Every figure is summed in SQL (GROUP BY with SUM over the stored integer µg), so a report
-over a million waste entries moves only its groups, never the entries, into Python.
-Entries are signed (a reversal is negative), so the sums are net. Months are the UTC
-calendar month of the entry's ``at``, bucketed in SQL as ``'YYYY-MM'``.
+Every figure is summed in SQL (GROUP BY with SUM over the stored integer µg), so a report moves
+only its groups, never the entries, into Python. The waste report reads the monthly totals kept
+with every entry (``store.month_totals``), so it costs what its answer holds, not what the history
+holds; only the days of a range that do not fill a month are summed from their entries. Entries
+are signed (a reversal is negative), so the sums are net. Months are the UTC calendar month of the
+entry's ``at``, bucketed in SQL as ``'YYYY-MM'``.
 """
 
 from __future__ import annotations
@@ -26,7 +28,9 @@ from service.store.models import (
     WasteContainer,
     WasteEntry,
     WasteEntryElement,
+    WasteMonthTotal,
 )
+from service.store import month_totals
 from service.store.sheets import neutralise_frame
 
 if TYPE_CHECKING:  # pandas is imported where a table is made (a slow import; most commands make none)
@@ -53,13 +57,7 @@ class UnknownGroupKey(ValueError):
 
 def _month(session: Session, column):
     """'YYYY-MM' of a (naive UTC) timestamp column, in the session's SQL dialect."""
-    dialect = session.get_bind().dialect.name
-    # Literal format strings (not bound parameters), so SELECT and GROUP BY hold the same expression.
-    if dialect == "sqlite":
-        return func.strftime(literal_column("'%Y-%m'"), column, type_=String)
-    if dialect == "postgresql":
-        return func.to_char(column, literal_column("'YYYY-MM'"), type_=String)
-    raise NotImplementedError(f"month bucketing is written for SQLite and PostgreSQL, not {dialect!r}")
+    return month_totals.sql_month(session.get_bind().dialect.name, column)
 
 
 def _start_of(day: dt.date | dt.datetime) -> dt.datetime:
@@ -77,6 +75,47 @@ def _frame(session: Session, query, columns: list[str]) -> pd.DataFrame:
     return frame
 
 
+def _month_floor(moment: dt.datetime) -> dt.datetime:
+    return moment.astimezone(dt.timezone.utc).replace(day=1, hour=0, minute=0, second=0, microsecond=0)
+
+
+def _month_ceiling(moment: dt.datetime) -> dt.datetime:
+    floor = _month_floor(moment)
+    return floor if floor == moment else month_totals.next_month(floor)
+
+
+def _waste_part(session: Session, by: tuple[str, ...], start: Optional[dt.datetime], end: Optional[dt.datetime],
+                lab_ids: Optional[Iterable[int]], element: Optional[str], *, kept: bool):
+    """The waste groups of ``by`` over [start, end): from the monthly totals (``kept``; the bounds are then
+    whole months) or from the entries themselves."""
+    if kept:
+        rows, mass = WasteMonthTotal, WasteMonthTotal.mass_ug
+        keys = {"element": rows.element, "month": rows.month}
+        query = select().select_from(rows).join(WasteContainer, WasteContainer.id == rows.container_id)
+        if start is not None:
+            query = query.where(rows.month >= start.strftime("%Y-%m"))
+        if end is not None:
+            query = query.where(rows.month < end.strftime("%Y-%m"))
+    else:
+        rows, mass = WasteEntryElement, WasteEntryElement.mass_ug
+        keys = {"element": rows.element, "month": _month(session, WasteEntry.at)}
+        query = (select().select_from(rows).join(WasteEntry, WasteEntry.id == rows.entry_id)
+                 .join(WasteContainer, WasteContainer.id == WasteEntry.container_id))
+        if start is not None:
+            query = query.where(WasteEntry.at >= start)
+        if end is not None:
+            query = query.where(WasteEntry.at < end)
+    keys |= {"stream": WasteContainer.stream, "lab": Lab.code, "container": WasteContainer.label}
+    if "lab" in by:  # every container has a lab: the join only adds the code
+        query = query.join(Lab, Lab.id == WasteContainer.lab_id)
+    if lab_ids is not None:
+        query = query.where(WasteContainer.lab_id.in_(sorted(lab_ids)))
+    if element is not None:
+        query = query.where(rows.element == element)
+    return (query.add_columns(*[keys[k].label(k) for k in by], func.sum(mass).label("mass_ug"))
+            .group_by(*[keys[k] for k in by]))
+
+
 def waste_by(session: Session, by: Sequence[str], *, since: dt.date | dt.datetime | None = None,
              until: dt.date | dt.datetime | None = None, lab_ids: Optional[Iterable[int]] = None,
              element: Optional[str] = None) -> pd.DataFrame:
@@ -85,30 +124,28 @@ def waste_by(session: Session, by: Sequence[str], *, since: dt.date | dt.datetim
     ``since`` is inclusive; ``until`` is inclusive of the whole day when it is a date (a
     datetime is an exclusive bound). Columns: the keys (lab code, container label, stream,
     'YYYY-MM') in the order given, then ``mass_ug`` (int) and ``mass_mg`` (float).
+
+    Whole months come from the monthly totals (``store.month_totals``); the days of a range that do
+    not fill a month come from the entries of those days alone.
     """
     by = REPORTS["waste"].check_by(by)
-    keys = {"element": WasteEntryElement.element, "stream": WasteContainer.stream, "lab": Lab.code,
-            "container": WasteContainer.label, "month": _month(session, WasteEntry.at)}
-    groups = [keys[k].label(k) for k in by]
-    query = (
-        select(*groups, cast(func.coalesce(func.sum(WasteEntryElement.mass_ug), 0), BigInteger))
-        .select_from(WasteEntryElement)
-        .join(WasteEntry, WasteEntry.id == WasteEntryElement.entry_id)
-        .join(WasteContainer, WasteContainer.id == WasteEntry.container_id)
-    )
-    if "lab" in by:  # every container has a lab: the join only adds the code
-        query = query.join(Lab, Lab.id == WasteContainer.lab_id)
-    if since is not None:
-        query = query.where(WasteEntry.at >= _start_of(since))
-    if until is not None:
-        end = _start_of(until) if isinstance(until, dt.datetime) else _start_of(until + dt.timedelta(days=1))
-        query = query.where(WasteEntry.at < end)
-    if lab_ids is not None:
-        query = query.where(WasteContainer.lab_id.in_(sorted(lab_ids)))
-    if element is not None:
-        query = query.where(WasteEntryElement.element == element)
-    if groups:
-        query = query.group_by(*[keys[k] for k in by]).order_by(*[keys[k] for k in by])
+    start = None if since is None else _start_of(since)
+    end = None if until is None else (
+        _start_of(until) if isinstance(until, dt.datetime) else _start_of(until + dt.timedelta(days=1)))
+    whole_from = None if start is None else _month_ceiling(start)
+    whole_to = None if end is None else _month_floor(end)
+    if whole_from is not None and whole_to is not None and whole_from >= whole_to:  # no whole month inside
+        parts = [_waste_part(session, by, start, end, lab_ids, element, kept=False)]
+    else:
+        parts = [_waste_part(session, by, whole_from, whole_to, lab_ids, element, kept=True)]
+        if start is not None and start < whole_from:
+            parts.append(_waste_part(session, by, start, whole_from, lab_ids, element, kept=False))
+        if end is not None and whole_to < end:
+            parts.append(_waste_part(session, by, whole_to, end, lab_ids, element, kept=False))
+    groups = union_all(*parts).subquery("groups") if len(parts) > 1 else parts[0].subquery("groups")
+    keys = [groups.c[k] for k in by]
+    query = (select(*keys, cast(func.coalesce(func.sum(groups.c.mass_ug), 0), BigInteger))
+             .group_by(*keys).order_by(*keys))
     return _frame(session, query, list(by))
 
 

@@ -59,6 +59,9 @@ __all__ = [
     "WasteContainerElement",
     "WasteContainerComponent",
     "StockMovement",
+    "HoldingChange",
+    "WasteMonthTotal",
+    "LedgerMonthTotal",
     "IdempotencyKey",
     "utcnow",
 ]
@@ -607,6 +610,31 @@ class HoldingChange(Base):
     run: Mapped[Optional["Run"]] = relationship(foreign_keys=[run_id], lazy="raise")
     movement: Mapped[Optional["StockMovement"]] = relationship(foreign_keys=[movement_id], lazy="raise")
     into_mixture: Mapped[Optional[Mixture]] = relationship(foreign_keys=[into_mixture_id], lazy="raise")
+
+
+# --- monthly totals of the records (derived rows, kept by store/month_totals.py) ------
+
+class WasteMonthTotal(Base):
+    """Net element mass put into one container in one UTC month ('YYYY-MM'), and of it what disposals put."""
+
+    __tablename__ = "waste_month_totals"
+    __table_args__ = (_one_of("element", vocab.ELEMENT_SYMBOLS),)
+    month: Mapped[str] = mapped_column(String(7), primary_key=True)
+    container_id: Mapped[int] = mapped_column(ForeignKey("waste_containers.id"), primary_key=True)
+    element: Mapped[str] = mapped_column(String(3), primary_key=True)
+    mass_ug: Mapped[int] = mapped_column(BigInteger)
+    disposed_ug: Mapped[int] = mapped_column(BigInteger)
+
+
+class LedgerMonthTotal(Base):
+    """One element's sum of one flow in one UTC month: ``holding:<kind>``, run_draw, run_output, run_loss, shipment."""
+
+    __tablename__ = "ledger_month_totals"
+    __table_args__ = (_one_of("element", vocab.ELEMENT_SYMBOLS),)
+    month: Mapped[str] = mapped_column(String(7), primary_key=True)
+    element: Mapped[str] = mapped_column(String(3), primary_key=True)
+    flow: Mapped[str] = mapped_column(String(40), primary_key=True)
+    mass_ug: Mapped[int] = mapped_column(BigInteger)
 
 
 # --- retried requests -------------------------------------------------------------
