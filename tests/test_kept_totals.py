@@ -14,7 +14,10 @@ afterwards; then the site goes through ``dotledger backup`` and ``restore`` and 
 from __future__ import annotations
 
 import datetime as dt
+import json
 import random
+import urllib.error
+import urllib.request
 from collections import defaultdict
 from decimal import Decimal
 
@@ -41,7 +44,7 @@ from service.store.models import (
     WasteEntryElement,
     WasteMonthTotal,
 )
-from tests.conftest import Api, make_app, make_user
+from tests.conftest import Api, make_app, make_user, threads_against_server
 from tests.test_backup import empty_target  # noqa: F401 - a fixture
 from tests.test_site_ledger import _approve, _entry, _work_the_month, month  # noqa: F401 - month is a fixture
 
@@ -329,3 +332,43 @@ def test_an_empty_site_reports_nothing(app):
         assert ledger.waste_by(session, ["element"], since=dt.date(2026, 1, 5), until=dt.date(2026, 3, 2)).empty
         assert month_totals.recount(session.connection()) == ({}, {})
         assert element_ledger.ledger_lines(session, since="2026-01", until="2026-02", tolerance=TOLERANCE) == []
+
+
+def test_concurrent_writers_lose_no_total(app, month):
+    """Eight threads over real HTTP add entries to two containers and ship from one stock at once: every
+    thread adds to the same month's rows (same container, element, flow), so a lost update would show."""
+    _work_the_month(month)
+    token = month["manager"].token
+    answers: list[int] = []
+
+    def post(port: int, path: str, body: dict) -> None:
+        request = urllib.request.Request(f"http://127.0.0.1:{port}/api/v1{path}", data=json.dumps(body).encode(),
+                                         method="POST", headers={"Content-Type": "application/json",
+                                                                 "Authorization": f"Bearer {token}"})
+        try:
+            with urllib.request.urlopen(request, timeout=60) as response:
+                answers.append(response.status)
+        except urllib.error.HTTPError as exc:
+            answers.append(exc.code)
+
+    def worker(port: int, n: int) -> None:
+        for k in range(3):
+            post(port, f"/waste_containers/{month['liquid' if (n + k) % 2 else 'solid']}/entries", {
+                "description": f"rinse {n}.{k}", **({"volume": "2 mL"} if (n + k) % 2 else {"mass": "2 g"}),
+                "elements": [{"element": "Cd", "mass": f"{n + 1}{k} ug"}, {"element": "Se", "mass": "1 ug"}]})
+        post(port, f"/stocks/{month['stocks']['Se']['id']}/ship", {"destination": f"partner {n}", "amount": "1 mg"})
+
+    threads_against_server(app, worker, 8, timeout=240)
+    assert answers == [201] * 32
+    sessions = app.extensions["dotledger.sessions"]
+    _check(sessions)
+    with session_scope(sessions, write=False) as session:  # Σ over n < 8, k < 3 of the number "{n+1}{k}" µg
+        this = _month(dt.datetime.now(UTC))
+        added = sum(int(f"{n + 1}{k}") for n in range(8) for k in range(3))
+        assert added == 3 * 10 * 36 + 8 * 3  # 10 × (n + 1) + k: 10 × 3 × 36 + 8 × (0 + 1 + 2)
+        cd = session.scalars(select(WasteEntryElement.mass_ug).join(WasteEntry).where(
+            WasteEntry.description.like("rinse %"), WasteEntryElement.element == "Cd")).all()
+        assert sum(cd) == added
+        kept = _kept(session)[1]
+        # 1 mg of selenium (100 %) = 1 000 µg Se per thread, and the 3 000 µg of the cores the worked month shipped
+        assert kept[(this, "Se", "shipment")] == 8 * 1000 + 3_000

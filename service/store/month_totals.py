@@ -188,10 +188,12 @@ class _Flush:
         self.waste: dict = defaultdict(lambda: [0, 0])
         self.flows: dict = defaultdict(int)
         self.stale: dict[str, set] = {"waste": set(), "ledger": set()}
+        # Records inserted by this flush are not in the identity map until the flush ends.
+        self.inserted = {(type(obj), obj.id): obj for obj in session.new if isinstance(obj, (WasteEntry, Run))}
 
     def _find(self, model, ident):
         """The object of ``model`` with id ``ident``: from this session when held, else None."""
-        return self.session.identity_map.get(identity_key(model, ident))
+        return self.inserted.get((model, ident)) or self.session.identity_map.get(identity_key(model, ident))
 
     def entry(self, entry_id: int) -> Optional[tuple[dt.datetime, int]]:
         """(at, container id) of a waste entry."""
