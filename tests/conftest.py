@@ -375,6 +375,22 @@ def api(app, client) -> Api:
     return Api(client, make_user(app, "admin@test.example", "admin"))
 
 
+def http_post(port: int, path: str, body: dict, token: str) -> int:
+    """POST ``body`` as JSON to ``/api/v1<path>`` of a server on 127.0.0.1:``port``; the answer's status."""
+    import json
+    import urllib.error
+    import urllib.request
+
+    request = urllib.request.Request(f"http://127.0.0.1:{port}/api/v1{path}", data=json.dumps(body).encode(),
+                                     method="POST", headers={"Content-Type": "application/json",
+                                                             "Authorization": f"Bearer {token}"})
+    try:
+        with urllib.request.urlopen(request, timeout=60) as response:
+            return response.status
+    except urllib.error.HTTPError as exc:
+        return exc.code
+
+
 def threads_against_server(app, worker, count: int, *, timeout: float = 300) -> None:
     """Serve ``app`` over real HTTP (waitress, 8 threads) and run ``worker(port, n)`` for n < count in
     as many threads at once; returns when every thread is done (or ``timeout`` seconds passed)."""

@@ -8,9 +8,6 @@ the run of ``tests.test_runs`` draws 0.2 mmol CdO, holding 0.2 mmol × 112.414 g
 
 from __future__ import annotations
 
-import json
-import urllib.error
-import urllib.request
 from decimal import ROUND_HALF_EVEN, Decimal
 
 import pytest
@@ -18,7 +15,7 @@ from sqlalchemy import func, select
 
 from service.store.audit import AuditEvent
 from service.store.db import session_scope
-from tests.conftest import threads_against_server
+from tests.conftest import http_post, threads_against_server
 from tests.test_cli import sign_in
 from tests.test_runs import approved  # noqa: F401 - the fixture: an approved CdSe procedure, stocks, two containers
 
@@ -177,17 +174,9 @@ def test_concurrent_shares_of_one_run_in_two_containers_take_the_remainder_once(
     answers: list[int] = []
 
     def worker(port: int, n: int) -> None:
-        body = json.dumps({"description": f"supernatant {n}", "volume": "10 mL", "run_id": run["id"],
-                           "elements": [{"element": "Cd", "share_percent": 100}]}).encode()
-        request = urllib.request.Request(
-            f"http://127.0.0.1:{port}/api/v1/waste_containers/{containers[n % 2]}/entries",
-            data=body, method="POST", headers={"Content-Type": "application/json",
-                                               "Authorization": f"Bearer {approved['researcher'].token}"})
-        try:
-            with urllib.request.urlopen(request, timeout=60) as response:
-                answers.append(response.status)
-        except urllib.error.HTTPError as exc:
-            answers.append(exc.code)
+        answers.append(http_post(port, f"/waste_containers/{containers[n % 2]}/entries", {
+            "description": f"supernatant {n}", "volume": "10 mL", "run_id": run["id"],
+            "elements": [{"element": "Cd", "share_percent": 100}]}, approved["researcher"].token))
 
     threads_against_server(app, worker, 8, timeout=120)
     assert sorted(answers) == [201] + [422] * 7

@@ -14,10 +14,7 @@ afterwards; then the site goes through ``dotledger backup`` and ``restore`` and 
 from __future__ import annotations
 
 import datetime as dt
-import json
 import random
-import urllib.error
-import urllib.request
 from collections import defaultdict
 from decimal import Decimal
 
@@ -44,7 +41,7 @@ from service.store.models import (
     WasteEntryElement,
     WasteMonthTotal,
 )
-from tests.conftest import Api, make_app, make_user, threads_against_server
+from tests.conftest import Api, make_app, make_user, http_post, threads_against_server
 from tests.test_backup import empty_target  # noqa: F401 - a fixture
 from tests.test_site_ledger import _approve, _entry, _work_the_month, month  # noqa: F401 - month is a fixture
 
@@ -342,14 +339,7 @@ def test_concurrent_writers_lose_no_total(app, month):
     answers: list[int] = []
 
     def post(port: int, path: str, body: dict) -> None:
-        request = urllib.request.Request(f"http://127.0.0.1:{port}/api/v1{path}", data=json.dumps(body).encode(),
-                                         method="POST", headers={"Content-Type": "application/json",
-                                                                 "Authorization": f"Bearer {token}"})
-        try:
-            with urllib.request.urlopen(request, timeout=60) as response:
-                answers.append(response.status)
-        except urllib.error.HTTPError as exc:
-            answers.append(exc.code)
+        answers.append(http_post(port, path, body, token))
 
     def worker(port: int, n: int) -> None:
         for k in range(3):
