@@ -14,7 +14,8 @@ A flush adds its new records with one UPSERT per table (``INSERT … ON CONFLICT
 mass_ug = mass_ug + excluded.mass_ug``, on SQLite and PostgreSQL alike), rows in key order so that
 concurrent transactions take the row locks in one order. The records are append-only; a flush that
 changes or deletes one (the service never does; a repair or a test may) recomputes the months it
-touched from the records instead. Rows written around the ORM (bulk SQL) bypass this: call
+touched from the records instead, and an ORM bulk UPDATE or DELETE of them recounts every month.
+Rows written around the ORM session (Core or plain SQL on a connection) bypass this: call
 :func:`rebuild` after them. :func:`recount` is the full recomputation from the records.
 """
 
@@ -320,8 +321,23 @@ def _after_flush(session: Session, _context) -> None:
     flush.write()
 
 
+def _bulk(execute_state):
+    """An ORM bulk UPDATE or DELETE of records the totals sum (``session.execute(update(HoldingChange)…)``;
+    the service writes none): run it, then recount every month, since which rows it changed is not known."""
+    if not (execute_state.is_update or execute_state.is_delete):
+        return None
+    mapper = execute_state.bind_mapper
+    if mapper is None or mapper.class_ not in _WATCHED:
+        return None
+    result = execute_state.invoke_statement()
+    rebuild(execute_state.session.connection())
+    return result
+
+
 def install(factory: sessionmaker) -> None:
-    """Keep the monthly totals in every flush of sessions made by ``factory`` (once, however often called)."""
+    """Keep the monthly totals in every flush of sessions made by ``factory``, and after an ORM bulk
+    UPDATE or DELETE of the records (once, however often called)."""
     if not event.contains(factory, "after_flush", _after_flush):
         event.listen(factory, "after_flush", _after_flush)
+        event.listen(factory, "do_orm_execute", _bulk)
 
