@@ -38,7 +38,7 @@ BATCH = 20_000
 ENTRY = {"description": "bench wash", "volume": "1 mL", "elements": [{"element": "Cd", "mass": "0.01 mg"}]}
 
 
-def fill(engine) -> dict[int, int]:
+def fill(engine, sizes: tuple[int, ...] = SIZES) -> dict[int, int]:
     """One container per size, its entries and their Cd rows; returns {size: container id}."""
     now = dt.datetime(2026, 1, 1, tzinfo=dt.timezone.utc)
     with engine.begin() as conn:
@@ -49,9 +49,9 @@ def fill(engine) -> dict[int, int]:
             {"id": n, "label": f"B-W{size}", "lab_id": 1, "location_id": 1,
              "stream": "non_halogenated_solvent_heavy_metals", "form": "liquid", "capacity_text": "1000 L",
              "capacity_micro": 1_000_000_000, "acute_hazardous": False, "state": "open", "created_at": now,
-             "updated_at": now} for n, size in enumerate(SIZES, start=1)])
+             "updated_at": now} for n, size in enumerate(sizes, start=1)])
         next_id = 1
-        for container_id, size in enumerate(SIZES, start=1):
+        for container_id, size in enumerate(sizes, start=1):
             for first in range(0, size, BATCH):
                 ids = range(next_id + first, next_id + min(first + BATCH, size))
                 conn.execute(insert(WasteEntry), [{"id": i, "container_id": container_id, "description": "bench",
@@ -74,10 +74,10 @@ def fill(engine) -> dict[int, int]:
     if engine.dialect.name == "postgresql":  # planner statistics, as autovacuum would gather them
         with engine.connect().execution_options(isolation_level="AUTOCOMMIT") as conn:
             conn.execute(text("ANALYZE"))
-    return {size: n for n, size in enumerate(SIZES, start=1)}
+    return {size: n for n, size in enumerate(sizes, start=1)}
 
 
-def _medians(calls: dict[int, object], repeats: int) -> dict[int, float]:
+def medians(calls: dict[int, object], repeats: int) -> dict[int, float]:
     """Median seconds of each call; the calls take turns, so a busy moment of the machine hits all alike."""
     times: dict[int, list[float]] = {key: [] for key in calls}
     for call in calls.values():
@@ -90,17 +90,23 @@ def _medians(calls: dict[int, object], repeats: int) -> dict[int, float]:
     return {key: statistics.median(values) for key, values in times.items()}
 
 
-def measure(url: str, repeats: int) -> dict[int, tuple[float, float]]:
-    """{size: (median read s, median add s)} on the database at ``url``."""
+def filled_app(url: str, filler=fill):
+    """The app on a migrated database that ``filler(engine)`` filled, and an administrator's bearer token:
+    (app, what ``filler`` returned, test client, headers)."""
     upgrade(url)
     app = create_app({"DATABASE_URL": url, "TESTING": True})
-    engine = app.extensions["dotledger.engine"]
-    ids = fill(engine)
+    ids = filler(app.extensions["dotledger.engine"])
     with session_scope(app.extensions["dotledger.sessions"]) as session:
         admin = identity.create_user(session, UserIn(email="bench@example.org", display_name="bench", role="admin",
                                                      password="correct horse battery"))
         token = identity.issue_token(session, admin, "bench").secret
-    client, headers = app.test_client(), {"Authorization": f"Bearer {token}"}
+    return app, ids, app.test_client(), {"Authorization": f"Bearer {token}"}
+
+
+def measure(url: str, repeats: int) -> dict[int, tuple[float, float]]:
+    """{size: (median read s, median add s)} on the database at ``url``."""
+    app, ids, client, headers = filled_app(url)
+    engine = app.extensions["dotledger.engine"]
 
     def call(method: str, path: str, expect: int, **body):
         def timed() -> None:
@@ -115,8 +121,8 @@ def measure(url: str, repeats: int) -> dict[int, tuple[float, float]]:
     def add(cid: int):
         return call("POST", f"/api/v1/waste_containers/{cid}/entries", 201, json=ENTRY)
 
-    reads = _medians({size: read(cid) for size, cid in ids.items()}, repeats)
-    adds = _medians({size: add(cid) for size, cid in ids.items()}, repeats)
+    reads = medians({size: read(cid) for size, cid in ids.items()}, repeats)
+    adds = medians({size: add(cid) for size, cid in ids.items()}, repeats)
     results = {size: (reads[size], adds[size]) for size in ids}
     engine.dispose()
     return results

@@ -103,7 +103,8 @@ def _seed(app) -> dict[str, int]:
                 researcher.id)
         for n in range(ROWS):  # ROWS shipments out of one stock
             movements.ship(s, stocks[1].id, ShipIn(destination=f"collaborator {n}", amount="1 mg"), researcher.id)
-        return {"container": containers[0].id, "procedure": procs[0].id, "stock": stocks[1].id}
+        return {"container": containers[0].id, "procedure": procs[0].id, "stock": stocks[1].id,
+                "small_container": containers[1].id, "acetone": acetone}
 
 
 @pytest.fixture(scope="module")
@@ -184,3 +185,28 @@ def test_list_pages_cost_a_fixed_handful_of_statements(seeded, path):
     count, _ = _count(seeded, seeded["pages"], path)
     budget = {"/": HOME_HANDFUL, "/waste/{container}": CONTAINER_HANDFUL}.get(path, HANDFUL)
     assert count <= budget, f"{path}: {count} statements\n{_summary(seeded['statements'])}"
+
+
+# Adding an entry: BEGIN; the caller (token, user and memberships in one); the container locked and read
+# with its running totals; the component's substance; the entry, its element and component rows; the
+# running totals (entry count and volume, element, component); the accumulation area locked and its
+# containers summed; the audit chain (head locked, events, head); COMMIT. Nothing re-sums the entries.
+ENTRY_STATEMENTS = 16
+
+
+def test_adding_an_entry_costs_a_fixed_few_statements_whatever_the_container_holds(seeded):
+    client = seeded["app"].test_client()
+    headers = {"Authorization": f"Bearer {seeded['token']}"}
+    ids = seeded["ids"]
+    body = {"description": "statement count", "volume": "2 mL",
+            "components": [{"substance_id": ids["acetone"], "volume": "1 mL"}],
+            "elements": [{"element": "Cd", "mass": "0.01 mg"}]}
+    counts, seen = {}, {}
+    for key in ("small_container", "container"):  # 1 entry before, then ROWS + 1 entries before
+        del seeded["statements"][:]
+        response = client.post(f"/api/v1/waste_containers/{ids[key]}/entries", json=body, headers=headers)
+        assert response.status_code == 201, response.get_data(as_text=True)[:500]
+        counts[key], seen[key] = len(seeded["statements"]), _summary(seeded["statements"])
+    assert counts["container"] == counts["small_container"], seen
+    assert counts["container"] <= ENTRY_STATEMENTS, f"{counts['container']} statements\n{seen['container']}"
+    assert not any("sum(" in text.lower() for text in seeded["statements"]), seen["container"]

@@ -75,9 +75,8 @@ def add_entry(ident: int):
     goes beyond what the run's balance leaves unaccounted). An element is given as a mass, an assay
     (concentration × volume) or a share in percent of what the run leaves unaccounted."""
     body = json_body(schemas.EntryIn)
-    _visible(ident)
     entry = waste.add_entry(get_session(), ident, body, current_user().id, balance_elements=balance_elements(),
-                            rules=active_rules())
+                            rules=active_rules(), check=lambda container: check_lab(container.lab_id))
     return jsonify(dump_entry(entry)), 201
 
 

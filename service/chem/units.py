@@ -8,6 +8,7 @@ that names the substance.
 
 from __future__ import annotations
 
+import functools
 import math
 import re
 from decimal import Decimal
@@ -33,6 +34,8 @@ __all__ = [
     "LIMITS",
     "check_bounds",
     "parse_amount",
+    "exact_micro",
+    "micro_text",
 ]
 
 # Longer text is refused before any parsing: pint's preprocessing grows with the square of the length.
@@ -121,15 +124,13 @@ def parse_quantity(text: str, *, expect: str | tuple[str, ...] | None = None, fi
     if not _AMOUNT.match(normalised):
         raise QuantityError(raw, "not an amount with a unit, e.g. '250 mg', '5 mL' or '0.2 mol/L'", field)
     try:
-        quantity = ureg.Quantity(normalised)
+        quantity = ureg.Quantity(*_parsed(normalised))
     except (pint.errors.UndefinedUnitError, pint.errors.DefinitionSyntaxError) as exc:
         names = getattr(exc, "unit_names", None)
         label = ", ".join(names) if isinstance(names, (list, tuple)) else str(names or exc)
         raise QuantityError(raw, f"unknown unit {label!r}", field) from None
     except Exception:  # pint/tokenize raise various errors for garbage text
         raise QuantityError(raw, "not an amount with a unit", field) from None
-    if not isinstance(quantity, ureg.Quantity):
-        quantity = ureg.Quantity(quantity)
     kinds = (expect,) if isinstance(expect, str) else tuple(expect or ())
     if kinds:
         kind = kind_of(quantity)
@@ -142,6 +143,19 @@ def parse_quantity(text: str, *, expect: str | tuple[str, ...] | None = None, fi
     if quantity.magnitude < 0:
         raise QuantityError(raw, "must not be negative", field)
     return quantity
+
+
+@functools.lru_cache(maxsize=4096)
+def _parsed(normalised: str) -> tuple:
+    """(magnitude, units) of an amount text, parsed by pint once per process for each distinct text.
+
+    Each caller gets a quantity of its own built from these (a cheap constructor call); a text
+    pint refuses raises every time (errors are not cached).
+    """
+    quantity = ureg.Quantity(normalised)
+    if not isinstance(quantity, ureg.Quantity):
+        quantity = ureg.Quantity(quantity)
+    return quantity.magnitude, quantity.units
 
 
 # Physical sense of one amount entered: the one bound check, applied where text from outside becomes a
@@ -182,11 +196,11 @@ def check_bounds(quantity, *, text: str = "", field: Optional[str] = None):
     if kind not in LIMITS:
         return quantity
     largest, smallest = LIMITS[kind]
-    top = ureg.Quantity(largest)
+    top = ureg.Quantity(*_parsed(largest))
     # the bound converted to the unit as entered, so "1e12 ug" meets "1000 kg" without a float residue
-    if quantity.magnitude > top.to(quantity.units).magnitude:
+    if quantity.magnitude > magnitude_in(top, quantity.units):
         raise QuantityError(text, f"must be at most {largest}", field)
-    if smallest and 0 < quantity.to(smallest).magnitude < 1:
+    if smallest and 0 < magnitude_in(quantity, smallest) < 1:
         shown = smallest.replace("u", "µ")
         raise QuantityError(text, f"below 1 {shown}, the smallest amount kept; give 0 or at least 1 {shown}", field)
     return quantity
@@ -210,9 +224,23 @@ def kind_of(quantity) -> Optional[str]:
     return next((name for name, d in _KINDS.items() if d == dims), None)
 
 
+@functools.lru_cache(maxsize=1024)
+def _factor(units, target) -> float:
+    """pint's factor from ``units`` to ``target`` (multiplicative units), worked out once per pair."""
+    return ureg.Quantity(1, units).to(target).magnitude
+
+
+def magnitude_in(quantity, unit) -> float:
+    """``quantity.to(unit).magnitude``, with the conversion factor worked out once per pair of units
+    (the same product pint forms; units with an offset, such as °C, convert through pint itself)."""
+    if not quantity._is_multiplicative:
+        return quantity.to(unit).magnitude
+    return quantity.magnitude * _factor(quantity.units, unit)
+
+
 def to_decimal(quantity, unit: str) -> Decimal:
     """The magnitude of ``quantity`` in ``unit`` as a Decimal (via its shortest repr)."""
-    return Decimal(repr(float(quantity.to(unit).magnitude)))
+    return Decimal(repr(float(magnitude_in(quantity, unit))))
 
 
 def mass_g(quantity, *, density_g_per_ml: Optional[float], substance: str, field: Optional[str] = None) -> Decimal:
@@ -231,3 +259,35 @@ def mass_g(quantity, *, density_g_per_ml: Optional[float], substance: str, field
             raise MissingDensityError(f"{quantity:~P}", substance, field)
         return to_decimal(quantity, "mL") * Decimal(repr(float(density_g_per_ml)))
     raise QuantityError(f"{quantity:~P}", "expected a mass or a volume", field)
+
+
+_MICRO_UNIT = {"mass": "ug", "volume": "uL"}
+
+
+@functools.lru_cache(maxsize=256)
+def _micro_factor(units: str, micro_unit: str) -> Decimal:
+    """How many µg (µL) one of ``units`` is, as the shortest decimal of pint's factor (exact for SI prefixes)."""
+    return Decimal(repr(float(_factor(units, micro_unit))))
+
+
+def exact_micro(quantity) -> tuple[str, Decimal]:
+    """A mass or volume as ("mass", exact µg) or ("volume", exact µL): the amount as entered times the
+    unit's factor in Decimal, so "15.8 mg" is 15800 µg and "0.5 uL" 0.5 µL (no float residue, no rounding).
+
+    >>> exact_micro(parse_quantity("15.8 mg")), exact_micro(parse_quantity("0.25 L"))
+    (('mass', Decimal('15800')), ('volume', Decimal('250000')))
+    """
+    kind = kind_of(quantity)
+    if kind not in _MICRO_UNIT:
+        raise QuantityError(f"{quantity:~P}", "expected a mass or a volume")
+    value = Decimal(repr(float(quantity.magnitude))) * _micro_factor(quantity.units, _MICRO_UNIT[kind])
+    return kind, value.normalize() + 0  # + 0: no exponent on whole numbers (1.58E+4 -> 15800)
+
+
+def micro_text(kind: str, micro: Decimal) -> str:
+    """An exact µg (µL) amount as text pint reads back to the same amount.
+
+    >>> micro_text("mass", Decimal("15800")), micro_text("volume", Decimal("0.5"))
+    ('15800 ug', '0.5 uL')
+    """
+    return f"{micro.normalize():f} {_MICRO_UNIT[kind]}"

@@ -198,11 +198,24 @@ def _stored(session: Session, state) -> dict[str, Any]:
     return values
 
 
-def _current(session: Session, state) -> dict[str, Any]:
-    """Column values after the flush; expired or server-made values are read back."""
+def _stored_null(column) -> bool:
+    """True when an INSERT that leaves ``column`` out stores NULL: nothing on the server fills it in."""
+    return (column.server_default is None and column.server_onupdate is None and column.computed is None
+            and column.identity is None and not column.primary_key)
+
+
+def _current(session: Session, state, created: bool = False) -> dict[str, Any]:
+    """Column values after the flush; expired or server-made values are read back.
+
+    A row just inserted is not read back for a column the INSERT left out when no server default
+    fills it in: it holds NULL (SQLAlchemy sends no value, the database stores none).
+    """
     columns = _columns(state.mapper)
-    if all(key in state.dict for key, _ in columns):
+    missing = [key for key, _ in columns if key not in state.dict]
+    if not missing:
         return {name: state.dict[key] for key, name in columns}
+    if created and all(_stored_null(state.mapper.get_property(key).columns[0]) for key in missing):
+        return {name: state.dict.get(key) for key, name in columns}
     return _row(session, state)
 
 
@@ -210,7 +223,7 @@ def _change(session: Session, state, captured: dict, new: set, isdelete: bool) -
     if isdelete:
         before, after, action = captured.get(state) or _stored(session, state), None, "delete"
     elif state in new:
-        before, after, action = None, _current(session, state), "create"
+        before, after, action = None, _current(session, state, created=True), "create"
     else:
         before, after = captured.get(state) or _stored(session, state), _current(session, state)
         before, after = json_safe(before), json_safe(after)

@@ -10,7 +10,7 @@ from functools import lru_cache
 from typing import Optional
 
 from sqlalchemy import func, select
-from sqlalchemy.orm import Session
+from sqlalchemy.orm import Session, joinedload
 from werkzeug.security import check_password_hash, generate_password_hash
 
 from service.errors import Conflict, InvalidInput, NotFound
@@ -220,8 +220,8 @@ def user_for_token(session: Session, secret: str) -> Optional[User]:
     """The active user owning an unrevoked token, or None."""
     if not secret.startswith(TOKEN_PREFIX):
         return None
-    token = session.scalar(select(ApiToken).where(ApiToken.token_hash == _digest(secret)))
-    if token is None or token.revoked_at is not None:
-        return None
-    user = session.get(User, token.user_id)
-    return user if user is not None and user.retired_at is None else None
+    # One statement: the token's user with its memberships (what the request's lab scope reads).
+    return session.scalars(select(User).join(ApiToken, ApiToken.user_id == User.id)
+                           .where(ApiToken.token_hash == _digest(secret), ApiToken.revoked_at.is_(None),
+                                  User.retired_at.is_(None))
+                           .options(joinedload(User.memberships))).unique().one_or_none()

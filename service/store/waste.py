@@ -12,10 +12,10 @@ from __future__ import annotations
 import datetime as dt
 from dataclasses import dataclass
 from decimal import ROUND_HALF_EVEN, Decimal
-from typing import Optional
+from typing import Callable, Optional
 
 from sqlalchemy import func, select
-from sqlalchemy.orm import Session
+from sqlalchemy.orm import Session, joinedload, lazyload
 
 from service import vocab
 from service.chem.formula import parse_formula
@@ -180,8 +180,12 @@ def _count(container: WasteContainer, entry: WasteEntry) -> None:
 
 
 def _lock(session: Session, container_id: int) -> WasteContainer:
-    container = session.scalar(select(WasteContainer).where(WasteContainer.id == container_id)
-                               .with_for_update(of=WasteContainer).execution_options(populate_existing=True))
+    """The container, locked, read afresh with its running totals in one statement (the lock is on its row only)."""
+    container = session.scalars(
+        select(WasteContainer).where(WasteContainer.id == container_id)
+        .options(joinedload(WasteContainer.totals), joinedload(WasteContainer.element_totals),
+                 joinedload(WasteContainer.component_totals), lazyload(WasteContainer.determinations))
+        .with_for_update(of=WasteContainer).execution_options(populate_existing=True)).unique().one_or_none()
     if container is None:
         get(session, WasteContainer, container_id)  # raises NotFound
     return container
@@ -267,7 +271,8 @@ def check_entry(session: Session, container_id: int, body: EntryIn, *,
 
 def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Optional[int], *,
               balance_elements: tuple[str, ...] = vocab.BALANCE_ELEMENTS,
-              rules: Optional[LayeredRules] = None) -> WasteEntry:
+              rules: Optional[LayeredRules] = None,
+              check: Optional[Callable[[WasteContainer], None]] = None) -> WasteEntry:
     """Append an entry, refusing one that would overfill the container, does not fit its form, or
     puts more of a followed element into waste than its run leaves unaccounted.
 
@@ -275,9 +280,12 @@ def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Opti
     The container's row and then the run's are locked, so concurrent entries of one run
     are judged one after the other against the same balance. With ``rules`` the container's
     accumulation area's clock is set when this entry takes the area over a limit
-    (:func:`service.store.areas.refresh_clock`, same transaction).
+    (:func:`service.store.areas.refresh_clock`, same transaction). ``check`` is called with the
+    locked container before anything is judged (the caller's own refusal, e.g. of another lab's container).
     """
     container = _lock(session, container_id)
+    if check is not None:
+        check(container)
     judged = _judge(session, container, body, balance_elements)
     liquid, micro = container.form == "liquid", judged.amount_micro
     entry = WasteEntry(container_id=container.id, run_id=body.run_id, actor_id=actor_id, description=body.description,
