@@ -316,3 +316,48 @@ def test_a_new_revision_keeps_the_draw_steps(lab):
     officer.call("POST", f"/procedures/{proc['id']}/approve", {"comment": "Argon line and controller checked."})
     revision = researcher.call("PATCH", f"/procedures/{proc['id']}", {"title": "CdSe cores, revision 2"}, 201)
     assert revision["revision"] == 2 and [d["step"] for d in revision["draws"]] == [None] * 5 + [5]
+
+
+def test_draw_amounts_are_stored_parsed_and_the_migration_fills_them_alike(app, lab, monkeypatch):
+    """Each planned draw keeps its amount parsed at write time, in exact µg (a mass) or µL (a volume);
+    revision 0021 computes the same for draws written before it. Expected values by the SI prefixes
+    (1 mg = 1000 µg, 1 mL = 1000 µL; BIPM SI Brochure, 9th ed., Table 7), computed here by hand."""
+    from alembic import command
+    from alembic.config import Config
+    from sqlalchemy import select
+
+    from service.store.db import MIGRATIONS, upgrade
+    from service.store.models import ReagentDraw
+
+    proc = lab["researcher"].call("POST", "/procedures", cdse_core(lab, cdo="25.75 mg"), 201)
+    expected = {"25.75 mg": ("mass", Decimal("25750")), "0.6 mL": ("volume", Decimal("600")),
+                "10 mL": ("volume", Decimal("10000")), "15.8 mg": ("mass", Decimal("15800")),
+                "1 mL": ("volume", Decimal("1000"))}
+
+    def stored() -> dict:
+        with session_scope(app.extensions["dotledger.sessions"]) as s:
+            return {d.amount_text: (d.amount_kind, d.amount_micro) for d in
+                    s.scalars(select(ReagentDraw).where(ReagentDraw.procedure_id == proc["id"]))}
+
+    assert stored() == expected
+    url = app.config["DATABASE_URL"]
+    app.extensions["dotledger.engine"].dispose()
+    config = Config()
+    config.set_main_option("script_location", str(MIGRATIONS))
+    config.set_main_option("sqlalchemy.url", url.replace("%", "%%"))
+    command.downgrade(config, "0019_holding_changes")  # the draws as stored before the revision: text only
+    upgrade(url)
+    assert stored() == expected
+    # a read parses no amount text and answers the same masses as at write time: 25.75 mg CdO × 112.414/128.413
+    # (CIAAW 2021), the stock's rows shared in proportion (a µg of rounding either way)
+    from service.chem import content
+    from service.store import inventory, procedures
+
+    def refused(*args, **kwargs):
+        raise AssertionError(f"an amount text was parsed on a read: {args}")
+
+    for module in (inventory, procedures, content):
+        monkeypatch.setattr(module, "parse_quantity", refused)
+    again = lab["researcher"].call("GET", f"/procedures/{proc['id']}")
+    cd = next(e for e in again["element_masses_per_batch"] if e["element"] == "Cd")
+    assert cd["mass_ug"] == pytest.approx(float(Decimal("25750") * Decimal("112.414") / Decimal("128.413")), abs=1)

@@ -46,7 +46,7 @@ def dump_procedure(proc: Procedure, *, with_findings: bool = True) -> dict:
         "element_masses_per_batch": element_rows_from(procedures.element_totals_ug(subject)),
     }
     if with_findings:
-        findings = procedures.findings_of(session, proc, active_rules())
+        findings = procedures.findings_of(session, proc, active_rules(), reagents=subject.reagents)
         out["findings"] = [finding(f) for f in findings]
         out["highest_level"] = procedures.highest_level(findings)
         out["rule_packs"] = [{"pack": n, "version": v} for n, v in active_rules().packs]

@@ -23,7 +23,7 @@ from service.chem.content import (
 )
 from service.chem.formula import parse_formula
 from service.chem.substances import SubstanceCatalogue
-from service.chem.units import kind_of, parse_quantity, to_decimal
+from service.chem.units import exact_micro, kind_of, micro_text, parse_quantity, to_decimal
 from service.errors import Conflict, InvalidInput, NotFound
 from service.schemas import MixtureIn, MixturePatch, StockIn, StockPatch
 from service.store import holdings
@@ -346,11 +346,15 @@ def update_stock(session: Session, stock: Stock, patch: StockPatch) -> Stock:
 # --- draws --------------------------------------------------------------------
 
 
-def source_element_masses(stock: Optional[Stock], mixture: Optional[Mixture], amount_text: str,
+# An amount as text ("2.5 mg"), or already parsed as (kind, exact µg or µL) (``units.exact_micro``).
+Amount = Union[str, tuple[str, Decimal]]
+
+
+def source_element_masses(stock: Optional[Stock], mixture: Optional[Mixture], amount: Amount,
                           field: str = "amount") -> dict[str, int]:
-    """Element masses (µg) in ``amount_text`` of a stock or a mixture (:func:`draw_of`): what a planned
+    """Element masses (µg) in ``amount`` of a stock or a mixture (:func:`draw_of`): what a planned
     draw would carry; :func:`draw_from` takes it out of the source."""
-    return draw_of(stock if stock is not None else mixture, amount_text, field).element_mass_ug
+    return draw_of(stock if stock is not None else mixture, amount, field).element_mass_ug
 
 
 @dataclass(frozen=True)
@@ -530,8 +534,10 @@ def held_of(source: Union[Stock, Mixture]) -> tuple[str, int]:
     return (source.quantity_kind, source.quantity_micro) if isinstance(source, Stock) else ("volume", source.volume_ul)
 
 
-def draw_of(source: Union[Stock, Mixture], amount: str, field: str = "amount") -> Draw:
+def draw_of(source: Union[Stock, Mixture], amount: Amount, field: str = "amount") -> Draw:
     """THE element masses of drawing ``amount`` from a stock or mixture (run draws and planned draws alike).
+
+    ``amount`` is text, or the (kind, exact µg or µL) a planned draw stores, which is not parsed again.
 
     The amount is put in the source's own unit (a density converts between mass and volume: the
     stock's own, or for a catalogue stock its substance's; a product stock has only its own), and
@@ -541,17 +547,20 @@ def draw_of(source: Union[Stock, Mixture], amount: str, field: str = "amount") -
     then gives the content its formula or composition would have; a product stock nothing.
     """
     stock = source if isinstance(source, Stock) else None
-    quantity = parse_quantity(amount, expect=("mass", "volume") if stock is not None else "volume", field=field)
+    if isinstance(amount, str):
+        given, exact = exact_micro(parse_quantity(amount, expect=("mass", "volume") if stock is not None else "volume",
+                                                  field=field))
+    else:
+        (given, exact), amount = amount, micro_text(*amount)
     kind, held = held_of(source)
-    if kind_of(quantity) == kind:
-        wanted = to_decimal(quantity, "ug" if kind == "mass" else "uL")
+    if given == kind:
+        wanted = exact
     else:
         density = stock.density_g_per_ml if is_product(stock) else (stock.density_g_per_ml
                                                                      or stock.substance.density_g_per_ml)
         if density is None:
             raise InvalidInput(field, f"{stock.label} is kept by {kind}; give the draw as a {kind}", amount)
-        grams = (to_decimal(quantity, "g") if kind_of(quantity) == "mass"
-                 else to_decimal(quantity, "mL") * Decimal(repr(density)))
+        grams = exact / 1_000_000 if given == "mass" else exact / 1000 * Decimal(repr(density))
         wanted = grams * 1_000_000 if kind == "mass" else grams / Decimal(repr(density)) * 1000
     micro = int(wanted.to_integral_value())
     if held > 0:

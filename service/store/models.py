@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import datetime as dt
+from decimal import Decimal
 from typing import Any, Optional
 
 from sqlalchemy import (
@@ -86,6 +87,19 @@ class UTCDateTime(TypeDecorator):
 
     def process_result_value(self, value: Optional[dt.datetime], dialect) -> Optional[dt.datetime]:
         return None if value is None else value.replace(tzinfo=dt.timezone.utc)
+
+
+class ExactDecimal(TypeDecorator):
+    """A Decimal kept exactly on every backend, as its plain decimal text (SQLite has no exact numeric type)."""
+
+    impl = String(48)
+    cache_ok = True
+
+    def process_bind_param(self, value: Optional[Decimal], dialect) -> Optional[str]:
+        return None if value is None else f"{Decimal(value).normalize():f}"
+
+    def process_result_value(self, value: Optional[str], dialect) -> Optional[Decimal]:
+        return None if value is None else Decimal(value)
 
 
 NAMING = {
@@ -347,12 +361,17 @@ class ReagentDraw(Base):
     """A planned draw from a stock or a mixture, at scale 1."""
 
     __tablename__ = "reagent_draws"
+    __table_args__ = (_one_of("amount_kind", ("mass", "volume")),)
     id: Mapped[int] = mapped_column(primary_key=True)
     procedure_id: Mapped[int] = mapped_column(ForeignKey("procedures.id"), index=True)
     position: Mapped[int] = mapped_column(Integer)
     stock_id: Mapped[Optional[int]] = mapped_column(ForeignKey("stocks.id"))
     mixture_id: Mapped[Optional[int]] = mapped_column(ForeignKey("mixtures.id"))
     amount_text: Mapped[str] = mapped_column(String(60))
+    # The amount as parsed when the draw was written: "mass" in exact µg or "volume" in exact µL
+    # (``service.chem.units.exact_micro``), so reading a procedure parses no amount text.
+    amount_kind: Mapped[str] = mapped_column(String(10))
+    amount_micro: Mapped[Decimal] = mapped_column(ExactDecimal)
     # 0-based position of the step it is added at; None: in the vessel from the start
     step: Mapped[Optional[int]] = mapped_column(Integer)
     stock: Mapped[Optional[Stock]] = relationship(lazy="joined")

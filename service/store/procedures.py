@@ -13,7 +13,7 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from service import vocab
-from service.chem.units import QuantityError, parse_quantity
+from service.chem.units import QuantityError, exact_micro, parse_quantity
 from service.errors import Blocked, Conflict, Forbidden, InvalidInput
 from service.rules import LayeredRules, evaluate, highest_level
 from service.rules.subjects import ProcedureSubject, ReagentFacts, StepFacts
@@ -75,11 +75,14 @@ def _draw(session: Session, lab_id: int, position: int, body: PlannedDrawIn) -> 
     field = f"draws[{position}]"
     model, kind = (Stock, "stock") if body.stock_id is not None else (Mixture, "mixture")
     source = inventory.reference(session, model, body.stock_id or body.mixture_id, f"{field}.{kind}_id", lab_id=lab_id)
+    # parsed once, here: reads take the stored kind and exact amount
+    amount_kind, amount_micro = exact_micro(parse_quantity(body.amount, expect=("mass", "volume") if kind == "stock"
+                                                           else "volume", field=f"{field}.amount"))
     draw = ReagentDraw(position=position, stock_id=body.stock_id, mixture_id=body.mixture_id, amount_text=body.amount,
-                       step=body.step)
+                       amount_kind=amount_kind, amount_micro=amount_micro, step=body.step)
     draw.stock, draw.mixture = (source, None) if kind == "stock" else (None, source)
     try:
-        _reagent(draw, 1.0, field)  # checks the amount now: unit, kind, density
+        _reagent(draw, 1.0, field)  # checks the amount now: density
     except QuantityError as exc:
         if exc.field and exc.field.startswith(field):
             raise
@@ -169,7 +172,8 @@ def _new_revision(session: Session, old: Procedure) -> Procedure:
     new.steps = [ProcedureStep(position=s.position, operation=s.operation, temperature_c=s.temperature_c,
                                atmosphere=s.atmosphere, duration_min=s.duration_min, note=s.note) for s in old.steps]
     new.draws = [ReagentDraw(position=d.position, stock_id=d.stock_id, mixture_id=d.mixture_id,
-                             amount_text=d.amount_text, step=d.step, stock=d.stock, mixture=d.mixture)
+                             amount_text=d.amount_text, amount_kind=d.amount_kind, amount_micro=d.amount_micro,
+                             step=d.step, stock=d.stock, mixture=d.mixture)
                  for d in old.draws]
     new.waste_plan = [WastePlanItem(position=w.position, stream=w.stream, contents=w.contents,
                                     expected_amount=w.expected_amount) for w in old.waste_plan]
@@ -195,8 +199,9 @@ def scaled_amount(amount_text: str, scale: float) -> str:
 
 
 def _reagent(draw: ReagentDraw, scale: float, field: str = "draws") -> ReagentFacts:
-    amount = draw.amount_text if scale == 1 else scaled_amount(draw.amount_text, scale)
-    masses = inventory.source_element_masses(draw.stock, draw.mixture, amount, f"{field}.amount")
+    # the amount as stored when the draw was written (no text parsed), × scale exactly
+    micro = draw.amount_micro if scale == 1 else draw.amount_micro * Decimal(repr(float(scale)))
+    masses = inventory.source_element_masses(draw.stock, draw.mixture, (draw.amount_kind, micro), f"{field}.amount")
     if draw.stock is not None:
         stock, substance = draw.stock, draw.stock.substance
         classes = (substance.hazard or {}).get("classes", [])
@@ -254,12 +259,14 @@ def last_approved_scale(session: Session, proc: Procedure) -> Optional[float]:
     return max(earlier)[2] if earlier else None
 
 
-def subject_of(proc: Procedure, *, scale: Optional[float] = None, approved_scale: Optional[float] = None) -> ProcedureSubject:
-    """The facts the rules evaluate, at the procedure's scale or another one."""
+def subject_of(proc: Procedure, *, scale: Optional[float] = None, approved_scale: Optional[float] = None,
+               reagents: Optional[tuple[ReagentFacts, ...]] = None) -> ProcedureSubject:
+    """The facts the rules evaluate, at the procedure's scale or another one (``reagents``: those of
+    another subject of the same procedure at the same scale, not computed again)."""
     scale = proc.scale if scale is None else scale
     return ProcedureSubject(
         title=proc.title,
-        reagents=tuple(_reagent(d, scale) for d in proc.draws),
+        reagents=tuple(_reagent(d, scale) for d in proc.draws) if reagents is None else reagents,
         steps=tuple(StepFacts(position=s.position, operation=s.operation, temperature_c=s.temperature_c,
                               atmosphere=s.atmosphere, duration_min=s.duration_min) for s in proc.steps),
         scale=scale,
@@ -282,8 +289,10 @@ def reference_scale(session: Session, proc: Procedure) -> Optional[float]:
     return last_approved_scale(session, proc)
 
 
-def findings_of(session: Session, proc: Procedure, rules: LayeredRules, *, scale: Optional[float] = None) -> list:
-    subject = subject_of(proc, scale=scale, approved_scale=reference_scale(session, proc))
+def findings_of(session: Session, proc: Procedure, rules: LayeredRules, *, scale: Optional[float] = None,
+                reagents: Optional[tuple[ReagentFacts, ...]] = None) -> list:
+    """The findings at ``scale`` (default the procedure's); ``reagents`` as :func:`subject_of` takes them."""
+    subject = subject_of(proc, scale=scale, approved_scale=reference_scale(session, proc), reagents=reagents)
     return evaluate_once(session, rules, "procedure", (proc.id, scale), subject)
 
 
