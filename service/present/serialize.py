@@ -177,7 +177,7 @@ def location_heading(record: Location | None) -> dict[str, Any]:
 
 def finding(record) -> dict[str, Any]:
     """A rule finding as JSON: Decimals as numbers, the suggested code as a plain object."""
-    out = dataclasses.asdict(record)
+    out = {field.name: getattr(record, field.name) for field in dataclasses.fields(record)}  # plain values: no deep copy
     code = record.suggested_code
     out["suggested_code"] = code.model_dump() if code is not None else None
     out["threshold_value"] = float(record.threshold_value)

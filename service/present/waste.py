@@ -35,7 +35,7 @@ from service.store.amounts import mg_text
 from service.store.db import get_session
 from service.store.findings import evaluate_once
 from service.store import areas
-from service.store.models import Substance, WasteContainer, WasteEntry
+from service.store.models import WasteContainer, WasteEntry
 
 __all__ = ["CAUTION", "dump_container", "dump_determination", "dump_entry", "basis_note", "amounts", "concentrations",
            "history_charts", "running_totals"]
@@ -109,13 +109,12 @@ def _iso(value):
 
 
 def dump_entry(entry: WasteEntry) -> dict:
-    session = get_session()
     return {
         "id": entry.id, "container_id": entry.container_id, "run_id": entry.run_id, "actor_id": entry.actor_id,
         "at": entry.at.isoformat(), "description": entry.description, "volume_ml": entry.volume_ul / 1000,
         "mass_g": entry.mass_ug / 1e6, "filterable_solids_percent": entry.filterable_solids_percent,
         "ph": entry.ph, "reverses_entry_id": entry.reverses_entry_id,
-        "components": [{"substance_id": c.substance_id, "substance": session.get(Substance, c.substance_id).name,
+        "components": [{"substance_id": c.substance_id, "substance": c.substance.name,
                         "volume_ml": c.volume_ul / 1000} for c in entry.components],
         "elements": [{**row, "basis": e.basis, "basis_note": basis_note(e.basis)}
                      for e in sorted(entry.elements, key=lambda e: e.element)

@@ -42,17 +42,32 @@ def _exact() -> pint.UnitRegistry:
     return unit_registry(Decimal)
 
 
+@lru_cache(maxsize=1024)
+def _exact_factor(from_unit: str, to_unit: str) -> Optional[Decimal]:
+    """The Decimal factor pint converts ``from_unit`` to ``to_unit`` by, worked out once per pair;
+    None when either unit has an offset zero (°C, °F), which converts through pint each time."""
+    source, target = (_exact().Quantity(Decimal(1), unit or "dimensionless") for unit in (from_unit, to_unit))
+    if not (source._is_multiplicative and target._is_multiplicative):
+        return None
+    return source.to(target.units).magnitude
+
+
 def convert_exact(value: Decimal, from_unit: str, to_unit: str) -> Decimal:
     """Convert ``value`` between pint units in Decimal arithmetic ("" means dimensionless).
 
     >>> convert_exact(Decimal("1.1"), "mg", "ug")
     Decimal('1100')
     """
-    quantity = _exact().Quantity(value, from_unit or "dimensionless")
-    converted = _DIGITS.plus(quantity.to(to_unit or "dimensionless").magnitude)
+    factor = _exact_factor(from_unit, to_unit)
+    if factor is None:
+        quantity = _exact().Quantity(value, from_unit or "dimensionless")
+        converted = _DIGITS.plus(quantity.to(to_unit or "dimensionless").magnitude)
+    else:
+        converted = _DIGITS.plus(value * factor)
     return Decimal(int(converted)) if converted == converted.to_integral_value() else converted.normalize()
 
 
+@lru_cache(maxsize=256)
 def unit_symbol(unit: str) -> str:
     """A short symbol for a pint unit, in the one spelling of :func:`service.chem.figures.unit_text`:
     "ug" -> "µg", "mg/l" -> "mg/L"; a temperature difference reads as °C / °F.
@@ -65,6 +80,7 @@ def unit_symbol(unit: str) -> str:
     return unit_text(f"{_exact().Unit(unit):~P}".replace("Δ", ""))
 
 
+@lru_cache(maxsize=256)
 def is_concentration(unit: str) -> bool:
     """True for a mass per volume (mg/L, µg/mL): shown to 3 significant figures.
 
@@ -79,6 +95,7 @@ def _has_offset(unit: str) -> bool:
     return convert_exact(Decimal(0), unit, "kelvin") != 0 if _is_temperature(unit) else False
 
 
+@lru_cache(maxsize=256)
 def _is_temperature(unit: str) -> bool:
     return bool(unit) and _exact().Unit(unit).dimensionality == _exact().kelvin.dimensionality
 

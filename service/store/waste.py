@@ -241,10 +241,10 @@ def _judge(session: Session, container: WasteContainer, body: EntryIn,
         raise QuantityError(body.volume or body.mass or "", "must be above zero", "volume" if liquid else "mass")
     components = []
     for i, comp in enumerate(body.components):
-        reference(session, Substance, comp.substance_id, f"components[{i}].substance_id", active=False)
+        substance = reference(session, Substance, comp.substance_id, f"components[{i}].substance_id", active=False)
         ul = int(to_decimal(parse_quantity(comp.volume, expect="volume", field=f"components[{i}].volume"),
                             "uL").to_integral_value())
-        components.append(WasteEntryComponent(substance_id=comp.substance_id, volume_ul=ul))
+        components.append(WasteEntryComponent(substance_id=comp.substance_id, volume_ul=ul, substance=substance))
     if sum(c.volume_ul for c in components) > micro:
         raise InvalidInput("components", "the components add up to more than the entry's volume")
     held = contents_of(session, container)
