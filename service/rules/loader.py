@@ -45,8 +45,10 @@ def _exact() -> pint.UnitRegistry:
 @lru_cache(maxsize=1024)
 def _exact_factor(from_unit: str, to_unit: str) -> Optional[Decimal]:
     """The Decimal factor pint converts ``from_unit`` to ``to_unit`` by, worked out once per pair;
-    None when either unit has an offset zero (°C, °F), which converts through pint each time."""
+    None when either unit has an offset zero (°C, °F) and they differ, which converts through pint each time."""
     source, target = (_exact().Quantity(Decimal(1), unit or "dimensionless") for unit in (from_unit, to_unit))
+    if source.units == target.units:  # two spellings of one unit ("degC", "degree_Celsius")
+        return Decimal(1)
     if not (source._is_multiplicative and target._is_multiplicative):
         return None
     return source.to(target.units).magnitude

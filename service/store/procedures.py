@@ -10,7 +10,7 @@ from decimal import Decimal
 from typing import Iterable, Optional
 
 from sqlalchemy import select
-from sqlalchemy.orm import Session
+from sqlalchemy.orm import Session, selectinload
 
 from service import vocab
 from service.chem.units import QuantityError, exact_micro, parse_quantity
@@ -393,6 +393,9 @@ def list_procedures(session: Session, *, state: Optional[str] = None, lab_id: Op
         query = query.where(Procedure.lab_id.in_(sorted(lab_ids)))
     if family_id is not None:
         query = query.where(Procedure.family_id == family_id)
+    # the draws' sources once each (a source drawn by many procedures is one row, not one per draw)
+    query = query.options(selectinload(Procedure.draws).selectinload(ReagentDraw.stock),
+                          selectinload(Procedure.draws).selectinload(ReagentDraw.mixture))
     found = paginate(session, query.order_by(Procedure.id), limit, offset)
     _load_approved_revisions(session, {p.family_id for p in found})  # for their findings, in one query
     return found
