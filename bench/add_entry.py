@@ -105,9 +105,9 @@ def measure(name: str, url: str, repeats: int) -> None:
     for size, cid in ids.items():
         calls[f"bare {size}"] = posting(bare_client, f"/entries/{cid}")
         calls[f"dotledger {size}"] = posting(client, f"/api/v1/waste_containers/{cid}/entries", headers=headers)
-    counted = {"bare": statements(bare.extensions["engine"], calls[f"bare {SIZES[0]}"]),
-               "dotledger": statements(engine, calls[f"dotledger {SIZES[0]}"])}
     times = scaling.medians(calls, repeats)
+    counted = {"bare": statements(bare.extensions["engine"], calls[f"bare {SIZES[0]}"]),  # after the warm-up
+               "dotledger": statements(engine, calls[f"dotledger {SIZES[0]}"])}
     print(f"{name}: add-entry as a ratio to the bare insert of the same rows, medians of {repeats} interleaved calls "
           f"(goal ≤ 2×); statements per request: dotledger {counted['dotledger']}, bare {counted['bare']}")
     for size in SIZES:

@@ -12,6 +12,7 @@ import secrets
 from typing import Optional
 
 from flask import Flask, current_app, g, redirect, request, session, url_for
+from sqlalchemy.orm import joinedload
 
 from service.errors import CsrfFailed, Forbidden, Unauthenticated
 from service.operations import is_api_path
@@ -71,7 +72,8 @@ def _identify() -> Optional[User]:
             return None
         return identity.user_for_token(db, secret.strip())
     user_id = session.get("user_id")
-    user = db.get(User, user_id) if isinstance(user_id, int) else None
+    # one statement: the user with the memberships the lab scope reads
+    user = db.get(User, user_id, options=[joinedload(User.memberships)]) if isinstance(user_id, int) else None
     if user is None or user.retired_at is not None or session.get("session_version") != user.session_version:
         return None
     return user

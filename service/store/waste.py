@@ -180,15 +180,20 @@ def _count(container: WasteContainer, entry: WasteEntry) -> None:
 
 
 def _lock(session: Session, container_id: int) -> WasteContainer:
-    """The container, locked, read afresh with its running totals in one statement (the lock is on its row only)."""
-    container = session.scalars(
+    """The container, locked, then read afresh with its running totals.
+
+    Two statements, in this order: PostgreSQL (READ COMMITTED) gives each statement its own snapshot,
+    so totals read in the statement that waits for the lock would be those from before the lock
+    holder's commit (only the locked row itself is re-read); read after the lock, they are current.
+    """
+    if session.scalar(select(WasteContainer.id).where(WasteContainer.id == container_id)
+                      .with_for_update(of=WasteContainer)) is None:
+        get(session, WasteContainer, container_id)  # raises NotFound
+    return session.scalars(
         select(WasteContainer).where(WasteContainer.id == container_id)
         .options(joinedload(WasteContainer.totals), joinedload(WasteContainer.element_totals),
                  joinedload(WasteContainer.component_totals), lazyload(WasteContainer.determinations))
-        .with_for_update(of=WasteContainer).execution_options(populate_existing=True)).unique().one_or_none()
-    if container is None:
-        get(session, WasteContainer, container_id)  # raises NotFound
-    return container
+        .execution_options(populate_existing=True)).unique().one()
 
 
 @dataclass(frozen=True)
