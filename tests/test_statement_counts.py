@@ -187,7 +187,7 @@ def test_list_pages_cost_a_fixed_handful_of_statements(seeded, path):
     assert count <= budget, f"{path}: {count} statements\n{_summary(seeded['statements'])}"
 
 
-# Adding an entry (issue 17 counted 21 before): BEGIN; the caller (token, user and memberships in one);
+# Adding an entry: BEGIN; the caller (token, user and memberships in one);
 # the container locked, then read with its running totals (and their substances) once the lock is held;
 # the entry, its element and component rows; the running totals (entry count and volume, element,
 # component); the audit chain (head locked, events, head); the accumulation area locked and its
