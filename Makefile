@@ -47,7 +47,7 @@ _compile:
 	$(VENV)-lock/bin/pip install --quiet --disable-pip-version-check pip-tools
 	CUSTOM_COMPILE_COMMAND="make lock" $(VENV)-lock/bin/pip-compile --quiet $(COMPILE_FLAGS) --strip-extras \
 	  --allow-unsafe --all-build-deps --no-emit-index-url --no-emit-find-links \
-	  --extra test --extra postgres -o $(LOCK) pyproject.toml
+	  --extra test --extra postgres --extra server -o $(LOCK) pyproject.toml
 	rm -rf $(VENV)-lock
 
 clean:

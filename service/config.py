@@ -12,7 +12,8 @@ from service import vocab
 from service.resources import RULES_DIR
 from typing import Any, Mapping, Optional
 
-__all__ = ["ConfigError", "load_config", "DEVELOPMENT_KEY", "instance_secret_key", "check_public_url"]
+__all__ = ["ConfigError", "load_config", "DEVELOPMENT_KEY", "instance_secret_key", "check_public_url",
+           "check_worker_processes"]
 
 # Once the default; now refused outside TESTING, since anyone who reads the source can sign with it.
 DEVELOPMENT_KEY = "dev-only-change-me"
@@ -45,8 +46,13 @@ _SETTINGS: dict[str, tuple[Any, Any]] = {
 }
 
 
-def load_config(instance_path: str, test_config: Optional[Mapping[str, Any]] = None) -> dict[str, Any]:
-    """Build the configuration mapping (keys without the ``DOTLEDGER_`` prefix)."""
+def load_config(instance_path: str, test_config: Optional[Mapping[str, Any]] = None, *,
+                workers: int = 1) -> dict[str, Any]:
+    """Build the configuration mapping (keys without the ``DOTLEDGER_`` prefix).
+
+    ``workers`` is the number of server processes that will share this configuration; above 1,
+    :func:`check_worker_processes` must accept it.
+    """
     config: dict[str, Any] = {}
     for name, (default, parse) in _SETTINGS.items():
         raw = os.environ.get(f"DOTLEDGER_{name}")
@@ -58,6 +64,7 @@ def load_config(instance_path: str, test_config: Optional[Mapping[str, Any]] = N
     if config["DATABASE_URL"] is None:
         config["DATABASE_URL"] = f"sqlite:///{Path(instance_path) / 'dotledger.sqlite'}"
     config.update(test_config or {})
+    check_worker_processes(config, workers)
     if config["SECRET_KEY"] is None:
         # Tests without a key get a fresh one; a server keeps one per instance folder.
         config["SECRET_KEY"] = secrets.token_hex(32) if config.get("TESTING") else instance_secret_key(instance_path)
@@ -68,6 +75,31 @@ def load_config(instance_path: str, test_config: Optional[Mapping[str, Any]] = N
     if not 0 <= config["TRUSTED_PROXIES"] <= 10:
         raise ConfigError(f"DOTLEDGER_TRUSTED_PROXIES={config['TRUSTED_PROXIES']!r}: expected 0 to 10")
     return config
+
+
+def check_worker_processes(config: Mapping[str, Any], workers: int) -> None:
+    """Refuse settings that several server processes cannot share (ConfigError naming the setting).
+
+    Several processes need PostgreSQL (row locks, no single file lock that every writer of every
+    process queues on) and one session key given to all of them (a key each process would make or
+    read on its own machine signs sessions the others reject).
+
+    >>> check_worker_processes({"DATABASE_URL": "postgresql+psycopg://u@h/db", "SECRET_KEY": "k" * 64}, 4)
+    >>> check_worker_processes({"DATABASE_URL": "sqlite:///x.sqlite", "SECRET_KEY": "k" * 64}, 4)
+    Traceback (most recent call last):
+    service.config.ConfigError: DOTLEDGER_DATABASE_URL is SQLite, which serves one process: 4 worker processes need PostgreSQL (postgresql+psycopg://user@host/db); or run one process (`dotledger serve`)
+    """
+    if not 1 <= workers <= 64:
+        raise ConfigError(f"{workers} worker processes: expected 1 to 64")
+    if workers == 1:
+        return
+    if str(config["DATABASE_URL"]).startswith("sqlite"):
+        raise ConfigError(f"DOTLEDGER_DATABASE_URL is SQLite, which serves one process: {workers} worker processes "
+                          "need PostgreSQL (postgresql+psycopg://user@host/db); or run one process (`dotledger serve`)")
+    if config["SECRET_KEY"] is None:
+        raise ConfigError(f"DOTLEDGER_SECRET_KEY is not set: {workers} worker processes must all sign sessions with "
+                          "one key; set it to the same long random value for every process, e.g. the output of "
+                          "python3 -c 'import secrets; print(secrets.token_hex(32))'")
 
 
 def check_public_url(value: str) -> str:

@@ -18,10 +18,20 @@ import atexit
 import os
 import shutil
 import tempfile
+import secrets
+import signal
+import socket
+import subprocess
+import sys
 import threading
+import time
+import urllib.error
+import urllib.request
 import uuid
+from contextlib import contextmanager
 from pathlib import Path
 from urllib.parse import unquote
+from typing import Iterator
 
 import pytest
 from sqlalchemy import create_engine, text
@@ -78,18 +88,32 @@ def catalogue(rules_dir):
     return load_catalogue(rules_dir)[0]
 
 
-def _postgres_schema_url() -> tuple[str, str]:
+def _postgres_schema_url(base: str = POSTGRES_URL) -> tuple[str, str]:
     try:
-        engine = create_engine(POSTGRES_URL)
+        engine = create_engine(base)
         schema = f"t_{uuid.uuid4().hex[:12]}"
         with engine.begin() as conn:
             conn.execute(text(f'CREATE SCHEMA "{schema}"'))
         engine.dispose()
     except Exception as exc:  # no server, no driver, no rights
         if os.environ.get("CI") == "true":
-            raise RuntimeError(f"PostgreSQL at {POSTGRES_URL} is needed under CI: {exc}") from exc
-        pytest.skip(f"PostgreSQL not reachable at {POSTGRES_URL}: {exc}")
-    return _schema_url(schema), schema
+            raise RuntimeError(f"PostgreSQL at {base} is needed under CI: {exc}") from exc
+        pytest.skip(f"PostgreSQL not reachable at {base}: {exc}")
+    return _schema_url(schema, base), schema
+
+
+@contextmanager
+def postgres_schema(base: str = POSTGRES_URL) -> Iterator[str]:
+    """The URL of a fresh schema of the PostgreSQL database at ``base``, dropped afterwards (skips, or fails
+    under CI, without a server)."""
+    url, schema = _postgres_schema_url(base)
+    try:
+        yield url
+    finally:
+        engine = create_engine(base)
+        with engine.begin() as conn:
+            conn.execute(text(f'DROP SCHEMA "{schema}" CASCADE'))
+        engine.dispose()
 
 
 @pytest.fixture(params=["sqlite", pytest.param("postgres", marks=pytest.mark.postgres)])
@@ -185,9 +209,9 @@ _STRUCTURE = text("""
 """)
 
 
-def _schema_url(schema: str) -> str:
-    separator = "&" if "?" in POSTGRES_URL else "?"
-    return f"{POSTGRES_URL}{separator}options=-csearch_path%3D{schema}"
+def _schema_url(schema: str, base: str = POSTGRES_URL) -> str:
+    separator = "&" if "?" in base else "?"
+    return f"{base}{separator}options=-csearch_path%3D{schema}"
 
 
 def _schema_of(url: str) -> str | None:
@@ -410,11 +434,73 @@ def threads_against_server(app, worker, count: int, *, timeout: float = 300) -> 
     loop = threading.Thread(target=serve, name="waitress-loop", daemon=True)
     loop.start()
     try:
-        workers = [threading.Thread(target=worker, args=(server.effective_port, n)) for n in range(count)]
-        for w in workers:
-            w.start()
-        for w in workers:
-            w.join(timeout=timeout)
+        threads_against_port(server.effective_port, worker, count, timeout=timeout)
     finally:
         stop.set()
         loop.join(timeout=30)
+
+
+def gunicorn_workers(master: int) -> set[int]:
+    """The worker processes of the gunicorn master ``master`` (Linux: its children in /proc)."""
+    try:
+        return {int(p) for p in Path(f"/proc/{master}/task/{master}/children").read_text().split()}
+    except OSError:
+        return set()
+
+
+@contextmanager
+def gunicorn_server(database_url: str, workers: int, folder: Path, *, timeout: float = 60) -> Iterator[tuple[int, int]]:
+    """Serve dotledger as README's "Running several worker processes" says: ``gunicorn -c
+    python:service.gunicorn_conf -w WORKERS`` on a free port of 127.0.0.1, the database (migrated and
+    filled by the caller) and a fresh session key in the environment, the log in ``folder``.
+
+    Yields (port, master pid) once every worker is up and the server answers; then stops the master
+    with SIGTERM (gunicorn's graceful shutdown) and fails unless it exits with status 0.
+    """
+    with socket.socket() as probe:
+        probe.bind(("127.0.0.1", 0))
+        port = probe.getsockname()[1]
+    env = {k: v for k, v in os.environ.items() if not k.startswith("DOTLEDGER_")}
+    env.update(DOTLEDGER_DATABASE_URL=database_url, DOTLEDGER_SECRET_KEY=secrets.token_hex(32),
+               DOTLEDGER_INSTANCE_PATH=str(folder / "instance"), DOTLEDGER_RULES_DIR=str(ROOT / "rules"))
+    log = folder / f"gunicorn-{port}.log"
+    with open(log, "wb") as output:
+        server = subprocess.Popen([sys.executable, "-m", "gunicorn", "-c", "python:service.gunicorn_conf",
+                                   "-w", str(workers), "-b", f"127.0.0.1:{port}"],
+                                  cwd=ROOT, env=env, stdout=output, stderr=subprocess.STDOUT)
+    try:
+        deadline = time.monotonic() + timeout
+        while True:
+            if server.poll() is not None:
+                raise RuntimeError(f"gunicorn exited with status {server.returncode}:\n{log.read_text()[-3000:]}")
+            if time.monotonic() > deadline:
+                raise RuntimeError(f"gunicorn did not answer within {timeout} s:\n{log.read_text()[-3000:]}")
+            if len(gunicorn_workers(server.pid)) == workers:
+                try:
+                    with urllib.request.urlopen(f"http://127.0.0.1:{port}/api/v1/", timeout=5):
+                        break
+                except urllib.error.HTTPError:
+                    break  # an answer, even a refusal, means the server is up
+                except OSError:
+                    pass
+            time.sleep(0.1)
+        yield port, server.pid
+    finally:
+        server.send_signal(signal.SIGTERM)
+        try:
+            status = server.wait(timeout=30)
+        except subprocess.TimeoutExpired:
+            server.kill()
+            server.wait()
+            raise RuntimeError(f"gunicorn did not stop within 30 s of SIGTERM:\n{log.read_text()[-3000:]}") from None
+    if status != 0:
+        raise RuntimeError(f"gunicorn stopped with status {status}:\n{log.read_text()[-3000:]}")
+
+
+def threads_against_port(port: int, worker, count: int, *, timeout: float = 300) -> None:
+    """Run ``worker(port, n)`` for n < count in as many threads at once; returns when every thread is done."""
+    threads = [threading.Thread(target=worker, args=(port, n)) for n in range(count)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join(timeout=timeout)

@@ -10,7 +10,8 @@ The layers, lowest first (../shared/DESIGN.md "Layering", DEVELOPERS.md "Layout"
     app        appdata (rule packs, catalogue), auth               what every request needs
     present    present/                                            records -> what people see
     top        api/, web/, documents/, cli                         the ways in; none imports another
-    root       app (create_app), console (the console script)      wires everything; only the CLI imports app
+    root       app (create_app), console (the console script),     wires everything; only the CLI imports app
+               gunicorn_conf (several worker processes)
 
 A module may import from its own layer and the layers below, never from one above. The top
 four never import each other. The pure modules of documents (assessment, manifest, render,
@@ -34,7 +35,7 @@ LAYERS = {
     "app": {"appdata", "auth"},
     "present": {"present"},
     "top": {"api", "web", "documents", "cli"},
-    "root": {"app", "console"},
+    "root": {"app", "console", "gunicorn_conf"},
 }
 ORDER = list(LAYERS)
 PURE_DOCUMENTS = {"service.documents.assessment", "service.documents.manifest", "service.documents.render",

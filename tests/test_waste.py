@@ -13,9 +13,10 @@ import urllib.request
 from decimal import Decimal
 
 import pytest
-from sqlalchemy import insert, text
+from sqlalchemy import insert, select, text
 
-from service.store.db import make_engine, upgrade
+from service.store.audit import AuditEvent, verify_chain
+from service.store.db import make_engine, session_scope, upgrade
 from service.store.models import Lab, Location, Substance, WasteContainer, WasteEntry, WasteEntryComponent, WasteEntryElement
 from tests.conftest import Api, make_user, threads_against_server
 
@@ -122,6 +123,17 @@ def test_bad_entries(site, body, field):
 
 def test_concurrent_additions_over_http_are_never_lost(app, site):
     """16 threads × 50 entries of 10 mL into a 5 L container, through a real HTTP server."""
+    concurrent_additions_are_never_lost(app, site, lambda worker, count: threads_against_server(app, worker, count))
+
+
+def concurrent_additions_are_never_lost(app, site, run_threads) -> None:
+    """16 threads × 50 entries of 10 mL into a 5 L container over HTTP; ``run_threads(worker, 16)`` runs
+    ``worker(port, n)`` for n < 16 at once against a server of ``app``'s database.
+
+    Exactly 5 L / 10 mL = 500 additions are acknowledged and the other 300 refused as overfill (409);
+    the container, its running totals, a fresh SUM over its entries and the audit trail (one create
+    event per acknowledged entry, the chain intact) all agree.
+    """
     container = _container(site, capacity="5 L")
     token = site["researcher"].token
     acknowledged, refused, other = [], [], []
@@ -139,7 +151,7 @@ def test_concurrent_additions_over_http_are_never_lost(app, site):
             except urllib.error.HTTPError as exc:
                 (refused if exc.code == 409 else other).append(exc.code)
 
-    threads_against_server(app, worker, 16)
+    run_threads(worker, 16)
     assert other == []
     assert len(acknowledged) + len(refused) == 800
     assert len(acknowledged) == 500  # exactly the capacity: 5 L / 10 mL
@@ -149,6 +161,12 @@ def test_concurrent_additions_over_http_are_never_lost(app, site):
     assert read["entries"] == len(acknowledged)
     stored, summed = _stored_and_summed(app.extensions["dotledger.engine"], container["id"])
     assert stored == summed and summed["totals"] == [(len(acknowledged), 10_000 * len(acknowledged), 0)]
+    with session_scope(app.extensions["dotledger.sessions"], write=False) as session:
+        created = set(session.scalars(select(AuditEvent.entity_id).where(
+            AuditEvent.entity == "waste_entries", AuditEvent.action == "create")))
+        assert len(set(acknowledged)) == 500 and created == {str(i) for i in acknowledged}
+        report = verify_chain(session)
+    assert report.ok, report
 
 
 # The running totals against a fresh SUM over the entries, in plain SQL (what the totals replace).
