@@ -6,7 +6,8 @@ Starts three servers as README's "Running several worker processes" does (``guni
 python:service.gunicorn_conf -w N``; 1, 2 and 4 workers) on one database, a PostgreSQL schema of its
 own (DOTLEDGER_BENCH_POSTGRES_URL, default the test database at 127.0.0.1:5432), dropped afterwards.
 Each round sends a burst to each server in turn: 8 client threads, each with its own token and its own
-container, 30 ``POST /api/v1/waste_containers/<id>/entries`` each over HTTP; throughput is the burst's
+container in an accumulation area of its own (additions into one area queue on the area's row, which
+carries its limit clock), 30 ``POST /api/v1/waste_containers/<id>/entries`` each over HTTP; throughput is the burst's
 additions per second of wall time. Prints the median of each server's bursts as a ratio to the 1-worker
 server. The clients run on the same machine and take CPU from the workers: on a machine with fewer
 cores than 4 workers plus the clients, the 4-worker figure says how far the CPUs go, not the design.
@@ -41,7 +42,7 @@ ENTRY = {"description": "bench wash", "volume": "1 mL", "elements": [{"element":
 
 
 def prepare(url: str) -> list[tuple[str, int]]:
-    """Schema, a lab, a storage area, and per client a token and a 1000 L container: [(token, container id)]."""
+    """Schema, a lab, and per client a token, an accumulation area and a 1000 L container in it: [(token, container id)]."""
     upgrade(url)
     app = create_app({"DATABASE_URL": url, "TESTING": True})
     client = app.test_client()
@@ -57,11 +58,13 @@ def prepare(url: str) -> list[tuple[str, int]]:
         return response.get_json()
 
     lab = post("/labs", {"code": "B-1", "name": "Bench lab"})["id"]
-    area = post("/locations", {"lab_id": lab, "building": "B", "room": "B-1", "storage": "hood SAA",
-                               "kind": "satellite_accumulation_area"})["id"]
-    containers = [post("/waste_containers", {"label": f"B-W{n}", "lab_id": lab, "location_id": area,
-                                             "stream": "non_halogenated_solvent_heavy_metals",
-                                             "capacity": "1000 L"})["id"] for n in range(CLIENTS)]
+    containers = []
+    for n in range(CLIENTS):
+        area = post("/locations", {"lab_id": lab, "building": "B", "room": f"B-{n}", "storage": "hood SAA",
+                                   "kind": "satellite_accumulation_area"})["id"]
+        containers.append(post("/waste_containers", {"label": f"B-W{n}", "lab_id": lab, "location_id": area,
+                                                     "stream": "non_halogenated_solvent_heavy_metals",
+                                                     "capacity": "1000 L"})["id"])
     app.extensions["dotledger.engine"].dispose()
     return list(zip(tokens, containers))
 

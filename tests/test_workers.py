@@ -9,11 +9,16 @@ process would read or make on its own.
 
 from __future__ import annotations
 
+import json
 import os
 import subprocess
 import sys
+import urllib.error
+import urllib.request
 
 import pytest
+
+from service.store.db import upgrade
 
 from tests.conftest import ROOT, gunicorn_server, gunicorn_workers, postgres_schema, threads_against_port
 from tests.test_waste import concurrent_additions_are_never_lost, site  # noqa: F401  (site: the fixture)
@@ -62,3 +67,16 @@ def test_several_workers_without_a_session_key_are_refused(tmp_path):
     assert "DOTLEDGER_SECRET_KEY is not set: 4 worker processes" in result.stderr
     assert "Booting worker" not in result.stderr
     assert not (tmp_path / "instance" / "secret_key").exists()  # no key made that one process alone would know
+
+
+def test_one_worker_on_sqlite_is_allowed(tmp_path):
+    # Beside the boundary: one process is what SQLite serves; the sign-in reads and writes the file.
+    url = f"sqlite:///{tmp_path / 'one.sqlite'}"
+    upgrade(url)
+    with gunicorn_server(url, 1, tmp_path) as (port, _master):
+        body = json.dumps({"email": "nobody@example.org", "password": "not the password", "name": "x"}).encode()
+        request = urllib.request.Request(f"http://127.0.0.1:{port}/api/v1/auth/tokens", data=body, method="POST",
+                                         headers={"Content-Type": "application/json"})
+        with pytest.raises(urllib.error.HTTPError) as refused:
+            urllib.request.urlopen(request, timeout=30)
+        assert refused.value.code == 401 and "error" in json.loads(refused.value.read())
