@@ -345,7 +345,7 @@ def test_draw_amounts_are_stored_parsed_and_the_migration_fills_them_alike(app, 
     config = Config()
     config.set_main_option("script_location", str(MIGRATIONS))
     config.set_main_option("sqlalchemy.url", url.replace("%", "%%"))
-    command.downgrade(config, "0019_holding_changes")  # the draws as stored before the revision: text only
+    command.downgrade(config, "0020_monthly_totals")  # the draws as stored before the revision: text only
     upgrade(url)
     assert stored() == expected
     # a read parses no amount text and answers the same masses as at write time: 25.75 mg CdO × 112.414/128.413

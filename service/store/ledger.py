@@ -15,7 +15,7 @@ import io
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Callable, Iterable, Optional, Sequence
 
-from sqlalchemy import BigInteger, String, cast, func, literal_column, select, union_all
+from sqlalchemy import BigInteger, cast, func, select, union_all
 from sqlalchemy.orm import Session
 
 from service.store.models import (

@@ -12,7 +12,7 @@ import sqlalchemy as sa
 
 
 revision = '0021_parsed_amounts'
-down_revision = '0019_holding_changes'
+down_revision = '0020_monthly_totals'
 branch_labels = None
 depends_on = None
 
