@@ -13,16 +13,16 @@ from pathlib import Path
 import click
 
 from service import vocab
-from service.app import create_app
-from service.config import ConfigError
 
 __all__ = ["main"]
 
 
 def _app():
+    from service.app import create_app
+
     try:
         app = create_app()
-    except ConfigError as exc:
+    except ValueError as exc:  # a ConfigError, or a setting that does not parse
         raise click.ClickException(str(exc)) from None
     # Close the pooled connections when the command ends (a long-lived caller, such as a test
     # runner invoking many commands, would otherwise leave them to the garbage collector).
@@ -30,6 +30,35 @@ def _app():
     if context is not None:
         context.call_on_close(app.extensions["dotledger.engine"].dispose)
     return app
+
+
+class _Store:
+    """What a command that only reads or writes the database needs: the configuration and sessions, without
+    the web application (whose start costs the command line most of its time)."""
+
+    def __init__(self) -> None:
+        from service.config import load_config
+        from service.resources import default_instance_path
+        from service.store.db import make_engine
+
+        self._sessions = None
+        try:
+            self.config = load_config(str(default_instance_path()))
+        except ValueError as exc:  # as in _app
+            raise click.ClickException(str(exc)) from None
+        self.engine = make_engine(self.config["DATABASE_URL"])
+        context = click.get_current_context(silent=True)
+        if context is not None:
+            context.call_on_close(self.engine.dispose)
+
+    @property
+    def sessions(self):
+        """The session factory (the ORM, the audit hook and the monthly totals are loaded on first use)."""
+        from service.store.db import make_sessionmaker
+
+        if self._sessions is None:
+            self._sessions = make_sessionmaker(self.engine)
+        return self._sessions
 
 
 def _catalogue(app):
@@ -210,14 +239,14 @@ def add_user(email: str, display_name: str, role: str, lab_codes: tuple[str, ...
                    "intact chain still holds it.")
 def audit_verify(expected_hash: str | None) -> None:
     """Recompute the audit trail's hash chain; name the first broken event (exit status 1)."""
-    from service.store import audit
-    from service.store.db import session_scope
+    from service.store import audit_chain
 
-    app = _app()
-    with session_scope(_sessions(app), write=False) as session:
-        head = session.get(audit.AuditHead, 1)
-        report = audit.verify_chain(session)
-        anchor = audit.find_hash(session, expected_hash.strip().lower()) if report.ok and expected_hash else None
+    store = _Store()  # Core tables and one connection: no ORM, no web application
+    with store.engine.connect() as connection:
+        head = audit_chain.read_head(connection)
+        report = audit_chain.verify_chain(connection)
+        anchor = (audit_chain.find_hash(connection, expected_hash.strip().lower())
+                  if report.ok and expected_hash else None)
     if not report.ok:
         click.echo(f"audit chain BROKEN at event {report.first_broken_id}: {report.reason} "
                    f"({report.events_checked} event(s) before it verified)", err=True)
@@ -246,9 +275,9 @@ def backup(path: Path, force: bool) -> None:
     """
     from service.store.backup import BackupError, backup as run_backup, head_file
 
-    app = _app()
+    store = _Store()
     try:
-        done = run_backup(app.config["DATABASE_URL"], path, force=force)
+        done = run_backup(store.config["DATABASE_URL"], path, force=force)
     except BackupError as exc:
         raise click.ClickException(str(exc)) from None
     click.echo(f"backup written to {path}: audit head event {done.last_event_id}, hash {done.head_hash}")
@@ -263,17 +292,17 @@ def restore(path: Path, force: bool) -> None:
     """Load the backup at PATH into the configured database (an empty one unless --force)."""
     from service.store.backup import BackupError, head_file, restore as run_restore
 
-    app = _app()
-    app.extensions["dotledger.engine"].dispose()  # no pooled connection of ours holds the target open
+    store = _Store()
+    store.engine.dispose()  # no pooled connection of ours holds the target open
     try:
-        report = run_restore(path, app.config["DATABASE_URL"], force=force)
+        report = run_restore(path, store.config["DATABASE_URL"], force=force)
     except BackupError as exc:
         raise click.ClickException(str(exc)) from None
     if not report.ok:
         click.echo(f"restored, but the audit chain is BROKEN at event {report.first_broken_id}: {report.reason}",
                    err=True)
         sys.exit(1)
-    click.echo(f"restored {path} into {app.config['DATABASE_URL']}; audit chain intact: "
+    click.echo(f"restored {path} into {store.config['DATABASE_URL']}; audit chain intact: "
                f"{report.events_checked} event(s)")
     kept = head_file(path)
     if kept.is_file():
@@ -329,8 +358,8 @@ def _report_frame(name: str, by: str | None, since, until, element: str | None):
         keys = ledger.REPORTS[name].check_by(keys)
     except ledger.UnknownGroupKey as exc:
         raise click.BadParameter(str(exc), param_hint="--by") from None
-    app = _app()
-    with session_scope(_sessions(app), write=False) as session:
+    store = _Store()
+    with session_scope(store.sessions, write=False) as session:
         return ledger.run_report(session, name, keys, **filters)
 
 
@@ -345,11 +374,11 @@ def _element_ledger_frame(by: str | None, since, until, element: str | None):
         raise click.UsageError("--by does not apply to the element ledger (one row per element and month)")
     if element is not None and element not in vocab.ELEMENT_SYMBOLS:
         raise click.BadParameter(f"{element!r} is not an element symbol", param_hint="--element")
-    app = _app()
-    with session_scope(_sessions(app), write=False) as session:
+    store = _Store()
+    with session_scope(store.sessions, write=False) as session:
         lines = element_ledger.ledger_lines(
             session, since=since.strftime("%Y-%m") if since else None, until=until.strftime("%Y-%m") if until else None,
-            element=element, tolerance=app.config["BALANCE_TOLERANCE"])
+            element=element, tolerance=store.config["BALANCE_TOLERANCE"])
     return ledger_frame(lines)
 
 

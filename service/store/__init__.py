@@ -1,4 +1,5 @@
-"""Persistence: SQLAlchemy 2 models, sessions, queries and alembic migrations."""
+"""Persistence: SQLAlchemy 2 models, sessions, queries and alembic migrations.
 
-# Importing both puts every table (the audit trail's too) on Base.metadata.
-from service.store import audit, models  # noqa: E402,F401
+Nothing is imported here: ``service.store.models`` puts every table (the audit trail's too) on the
+metadata, and a module that needs only Core (``service.store.audit_chain``) does not pay for the ORM.
+"""

@@ -9,16 +9,15 @@ breaks the chain that ``verify_chain`` walks.
 from __future__ import annotations
 
 import datetime as dt
-import hashlib
-import json
 import math
-from dataclasses import dataclass
 from decimal import Decimal
 from typing import Any, NamedTuple, Optional
 
-from sqlalchemy import JSON, CheckConstraint, Index, String, Text, event, func, insert, inspect, or_, select, update
-from sqlalchemy.orm import Mapped, Session, mapped_column
+from sqlalchemy import event, func, insert, inspect, or_, select, update
+from sqlalchemy.orm import Session
 
+from service.store import audit_chain
+from service.store.audit_chain import GENESIS, ChainReport, event_digest, find_hash, verify_chain  # noqa: F401
 from service.store.models import Base, utcnow
 from service.store.paging import Page, paginate
 
@@ -37,7 +36,6 @@ __all__ = [
     "list_events",
 ]
 
-GENESIS = "0" * 64
 NOT_AUDITED = frozenset({"audit_events", "audit_head", "login_attempts", "stock_elements", "mixture_elements",
                          "idempotency_keys", "waste_container_totals", "waste_container_elements",
                          "waste_container_components", "waste_month_totals", "ledger_month_totals"})
@@ -51,67 +49,15 @@ _INSTALLED = "_dotledger_audit_installed"
 
 
 class AuditEvent(Base):
-    """One recorded change; ascending ``id`` is chain order."""
+    """One recorded change; ascending ``id`` is chain order (the table: ``audit_chain.events``)."""
 
-    __tablename__ = "audit_events"
-    __table_args__ = (Index("ix_audit_events_entity_entity_id", "entity", "entity_id"),)
-    id: Mapped[int] = mapped_column(primary_key=True, autoincrement=False)  # taken from the head
-    at: Mapped[dt.datetime] = mapped_column(index=True)
-    actor_user_id: Mapped[Optional[int]] = mapped_column(index=True)
-    actor_label: Mapped[str] = mapped_column(Text)
-    entity: Mapped[str] = mapped_column(String(80))
-    entity_id: Mapped[str] = mapped_column(String(80))
-    action: Mapped[str] = mapped_column(String(80))
-    before: Mapped[Optional[dict[str, Any]]] = mapped_column(JSON(none_as_null=True))
-    after: Mapped[Optional[dict[str, Any]]] = mapped_column(JSON(none_as_null=True))
-    prev_hash: Mapped[str] = mapped_column(String(64))
-    hash: Mapped[str] = mapped_column(String(64))
+    __table__ = audit_chain.events
 
 
 class AuditHead(Base):
     """The chain's single row (id 1): last event id (0 before any event) and its hash."""
 
-    __tablename__ = "audit_head"
-    __table_args__ = (CheckConstraint("id = 1", name="single_row"),)
-    id: Mapped[int] = mapped_column(primary_key=True, autoincrement=False)
-    last_event_id: Mapped[int]
-    last_hash: Mapped[str] = mapped_column(String(64))
-
-
-@dataclass(frozen=True)
-class ChainReport:
-    ok: bool
-    events_checked: int
-    first_broken_id: Optional[int]
-    reason: str
-
-
-def event_digest(prev_hash, at, actor_user_id, actor_label, entity, entity_id, action, before, after) -> str:
-    """SHA-256 (hex) of an event's canonical JSON, chained to ``prev_hash``.
-
-    The encoding is a JSON object of the nine arguments under their own names, keys sorted,
-    no whitespace, UTF-8 with non-ASCII characters kept; ``at`` is ISO 8601 in UTC with
-    microseconds and ``entity_id`` is text. ``before``/``after`` must already be JSON-safe.
-
-    >>> at = dt.datetime(2026, 1, 2, 3, 4, 5, tzinfo=dt.timezone.utc)
-    >>> len(event_digest(GENESIS, at, None, "system", "labs", 1, "create", None, {"code": "C-214"}))
-    64
-    """
-    if at.tzinfo is None:
-        raise ValueError("naive datetime; the audit log keeps aware UTC times")
-    document = {
-        "prev_hash": prev_hash,
-        "at": at.astimezone(dt.timezone.utc).isoformat(timespec="microseconds"),
-        "actor_user_id": actor_user_id,
-        "actor_label": actor_label,
-        "entity": entity,
-        "entity_id": str(entity_id),
-        "action": action,
-        "before": before,
-        "after": after,
-    }
-    encoded = json.dumps(document, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
-    return hashlib.sha256(encoded.encode("utf-8")).hexdigest()
+    __table__ = audit_chain.head
 
 
 def json_safe(value: Any) -> Any:
@@ -303,50 +249,6 @@ def install(target) -> None:
 
 
 # --- reading --------------------------------------------------------------------
-
-
-def _broken(row: Any, prev_id: int, prev_hash: str) -> Optional[str]:
-    """Why the stored event ``row`` does not follow event ``prev_id`` (None when it does)."""
-    if row.id != prev_id + 1:
-        return f"events {prev_id + 1}..{row.id - 1} are missing"
-    if row.prev_hash != prev_hash:
-        return f"prev_hash does not match the hash of event {prev_id}"
-    digest = event_digest(prev_hash, row.at, row.actor_user_id, row.actor_label, row.entity,
-                          row.entity_id, row.action, row.before, row.after)
-    if digest != row.hash:
-        return "stored hash does not match the event's content"
-    return None
-
-
-def verify_chain(session: Session, *, batch_size: int = 1000) -> ChainReport:
-    """Recompute the chain in id order, batch by batch, and name the first broken event."""
-    head = session.execute(select(AuditHead.last_event_id, AuditHead.last_hash).where(AuditHead.id == 1)).one_or_none()
-    if head is None:
-        return ChainReport(False, 0, None, "the audit_head row is missing")
-    events = AuditEvent.__table__
-    prev_id, prev_hash, checked = 0, GENESIS, 0
-    # Only up to the head read first: events committed meanwhile are not a break.
-    while prev_id < head.last_event_id:
-        query = select(events).where(events.c.id > prev_id, events.c.id <= head.last_event_id)
-        batch = session.execute(query.order_by(events.c.id).limit(batch_size)).all()
-        if not batch:
-            break
-        for row in batch:
-            reason = _broken(row, prev_id, prev_hash)
-            if reason:
-                return ChainReport(False, checked, row.id, reason)
-            prev_id, prev_hash, checked = row.id, row.hash, checked + 1
-    if (prev_id, prev_hash) != (head.last_event_id, head.last_hash):
-        reason = f"the head names event {head.last_event_id} but the chain ends at event {prev_id}"
-        return ChainReport(False, checked, prev_id + 1 if prev_id < head.last_event_id else prev_id, reason)
-    return ChainReport(True, checked, None, f"{checked} events verified")
-
-
-def find_hash(session: Session, digest: str) -> Optional[int]:
-    """The id of the event whose hash is ``digest``, 0 for the empty chain's (None when the chain holds neither)."""
-    if digest == GENESIS:
-        return 0
-    return session.scalar(select(AuditEvent.id).where(AuditEvent.hash == digest))
 
 
 def list_events(session: Session, *, entity: Optional[str] = None, entity_id: Any = None,

@@ -16,11 +16,13 @@ from __future__ import annotations
 
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Iterator
+from typing import TYPE_CHECKING, Iterator
 
 from sqlalchemy import create_engine, event
 from sqlalchemy.engine import Engine
-from sqlalchemy.orm import Session, sessionmaker
+
+if TYPE_CHECKING:  # the ORM is imported where sessions are made (a command reading Core tables needs none)
+    from sqlalchemy.orm import Session, sessionmaker
 
 __all__ = ["WRITE", "ReadOnlySession", "make_engine", "make_sessionmaker", "new_session", "session_scope", "upgrade",
            "init_app", "get_session", "end_session"]
@@ -64,6 +66,8 @@ def make_engine(url: str) -> Engine:
 
 def make_sessionmaker(engine: Engine) -> sessionmaker[Session]:
     """Sessions whose every flush is recorded in the hash-chained audit trail and kept in the monthly totals."""
+    from sqlalchemy.orm import sessionmaker
+
     from service.store import audit, month_totals
 
     factory = sessionmaker(bind=engine, expire_on_commit=False)

@@ -12,20 +12,19 @@ from sqlalchemy import (
     Boolean,
     CheckConstraint,
     Date,
-    DateTime,
     Float,
     ForeignKey,
     Integer,
-    MetaData,
     String,
     Text,
-    TypeDecorator,
     UniqueConstraint,
     false,
 )
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
 
 from service import vocab
+from service.store import audit_chain  # noqa: F401  (the audit trail's tables join the metadata)
+from service.store.base import ExactDecimal, UTCDateTime, metadata, utcnow  # noqa: F401  (utcnow re-exported)
 
 __all__ = [
     "Base",
@@ -68,51 +67,8 @@ __all__ = [
 ]
 
 
-def utcnow() -> dt.datetime:
-    return dt.datetime.now(dt.timezone.utc)
-
-
-class UTCDateTime(TypeDecorator):
-    """Timezone-aware UTC datetimes on every backend (SQLite keeps no zone)."""
-
-    impl = DateTime
-    cache_ok = True
-
-    def process_bind_param(self, value: Optional[dt.datetime], dialect) -> Optional[dt.datetime]:
-        if value is None:
-            return None
-        if value.tzinfo is None:
-            raise ValueError("naive datetime; use an aware UTC datetime")
-        return value.astimezone(dt.timezone.utc).replace(tzinfo=None)
-
-    def process_result_value(self, value: Optional[dt.datetime], dialect) -> Optional[dt.datetime]:
-        return None if value is None else value.replace(tzinfo=dt.timezone.utc)
-
-
-class ExactDecimal(TypeDecorator):
-    """A Decimal kept exactly on every backend, as its plain decimal text (SQLite has no exact numeric type)."""
-
-    impl = String(48)
-    cache_ok = True
-
-    def process_bind_param(self, value: Optional[Decimal], dialect) -> Optional[str]:
-        return None if value is None else f"{Decimal(value).normalize():f}"
-
-    def process_result_value(self, value: Optional[str], dialect) -> Optional[Decimal]:
-        return None if value is None else Decimal(value)
-
-
-NAMING = {
-    "ix": "ix_%(column_0_label)s",
-    "uq": "uq_%(table_name)s_%(column_0_name)s",
-    "ck": "ck_%(table_name)s_%(constraint_name)s",
-    "fk": "fk_%(table_name)s_%(column_0_name)s_%(referred_table_name)s",
-    "pk": "pk_%(table_name)s",
-}
-
-
 class Base(DeclarativeBase):
-    metadata = MetaData(naming_convention=NAMING)
+    metadata = metadata
     type_annotation_map = {dt.datetime: UTCDateTime, dict[str, Any]: JSON, list[Any]: JSON}
 
 
