@@ -121,6 +121,12 @@ def concentration_basis(subject: ContainerSubject) -> tuple[str, str]:
                        "toxicity-characteristic extract (40 CFR 261.24(a)); its mg/L compare with the TC limits.")
 
 
+def _is_extract(subject: ContainerSubject) -> bool:
+    """``concentration_basis(subject)[0] == "extract"`` without writing the reason (measures ask it often)."""
+    return (subject.form != "solid" and _liquid(subject)
+            and _dec(subject.filterable_solids_percent) < TC_EXTRACT_SOLIDS_PERCENT)
+
+
 def mg_per_l(mass_ug: int, volume_l: float) -> Decimal:
     """Element mass (µg) per litre of liquid as exact mg/L: 5 000 µg in 2 L -> Decimal('2.5')."""
     return Decimal(mass_ug) / 1000 / _dec(volume_l)
@@ -139,7 +145,7 @@ def concentration_mg_per_l(subject: ContainerSubject, element: Optional[str]) ->
     characteristic extract (40 CFR 261.24(a)); otherwise the extraction test decides
     (:func:`concentration_basis`).
     """
-    if concentration_basis(subject)[0] != "extract":
+    if not _is_extract(subject):
         return None
     mass_ug = subject.element_mass_ug.get(element, 0)
     value = mg_per_l(mass_ug, subject.volume_l)
@@ -245,7 +251,7 @@ def component_concentration_mg_per_l(subject: ContainerSubject, key: Optional[st
     toxicity-characteristic extract (:func:`concentration_basis`). No trace cut-off: the
     organic TC levels are a few mg/L, far below a volume fraction of 0.01.
     """
-    if concentration_basis(subject)[0] != "extract":
+    if not _is_extract(subject):
         return None
     parts = [c for c in subject.components if c.key == key]
     if not parts:

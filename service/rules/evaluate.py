@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import operator
 from dataclasses import dataclass
+from functools import lru_cache
 from decimal import ROUND_HALF_EVEN, Decimal
 from typing import Iterable, Optional
 
@@ -93,7 +94,18 @@ def _shown(value: Decimal, active: ActiveRule) -> str:
 
 def _threshold_shown(active: ActiveRule) -> str:
     """The threshold as written, its unit as a symbol ("0 delta_degC" reads "0 °C"); never rounded to a coarser step."""
-    return _in_threshold_unit(active.threshold_value, active, _SHOWN_PLACES)
+    return _threshold_text(active.threshold_value, active.definition.unit, active.threshold_unit)
+
+
+@lru_cache(maxsize=4096)
+def _threshold_text(value: Decimal, unit: str, shown_unit: str) -> str:
+    """``_threshold_shown`` by what decides it (a rule's threshold is shown on every finding of every read)."""
+    converted = convert_exact(value, unit, shown_unit)
+    if converted != converted.to_integral_value():
+        converted = converted.quantize(_SHOWN_PLACES, rounding=ROUND_HALF_EVEN)
+    symbol = unit_symbol(shown_unit)
+    number = f"{converted.normalize():f}"
+    return f"{number} {symbol}" if symbol else number
 
 
 def _finding(active: ActiveRule, result: MeasureResult, value: Decimal) -> Finding:

@@ -8,7 +8,7 @@ converted once, at load, to the measure's unit with exact decimal arithmetic.
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from decimal import Context, Decimal
 from functools import lru_cache
 from pathlib import Path
@@ -181,6 +181,12 @@ class LayeredRules:
     opt_ins: tuple[str, ...] = ()
     waste_counting: Optional[WasteCounting] = None
     assumed_density_g_per_ml: Optional[Decimal] = None
+    # the rules of each scope, sorted once (every read of a record evaluates one scope's rules)
+    _by_scope: dict = field(default_factory=dict, init=False, repr=False, compare=False)
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "_by_scope", {scope: tuple(a for a in self.rules if a.scope == scope)
+                                               for scope in SCOPES})
 
     def marked(self, scope: str) -> dict[str, str]:
         """Rule id -> mark of the active rules of ``scope`` that mark something (``marks:``)."""
@@ -190,7 +196,7 @@ class LayeredRules:
         """The active rules of one scope, in pack order; raises ValueError for an unknown scope."""
         if scope not in SCOPES:
             raise ValueError(f"unknown scope {scope!r}; scopes are {', '.join(SCOPES)}")
-        return tuple(active for active in self.rules if active.scope == scope)
+        return self._by_scope[scope]
 
 
 def _compile_rule(rule: Rule, pack: RulePack) -> tuple[Optional[ActiveRule], list[tuple[str, str]]]:
