@@ -92,3 +92,25 @@ def test_the_console_script_lists_every_command():
     listed = set(re.findall(r"^  ([a-z][a-z-]*) ", result.output.split("Commands:")[1], re.M))
     assert listed == {"init", "demo", "serve", "import-inventory", "add-user", "audit-verify", "preview",
                       "report", "export", "estimate", "print", "backup", "restore"}
+
+
+def test_a_command_imports_what_it_uses(sqlite_url, monkeypatch):
+    # audit-verify reads two Core tables on one connection: it starts without the web application, the
+    # ORM, the documents' PDF engine, the unit registry or pandas (what made every command slow to start).
+    # print still prints: its group is loaded when asked for.
+    import subprocess
+    import sys
+
+    monkeypatch.setenv("DOTLEDGER_DATABASE_URL", sqlite_url)
+    assert CliRunner().invoke(main, ["init"]).exit_code == 0
+    probe = ("import sys\nfrom service.console import main\n"
+             "try:\n    main(['audit-verify'])\nexcept SystemExit as exc:\n    assert exc.code in (0, None), exc.code\n"
+             "print(sorted(m for m in ('flask', 'sqlalchemy.orm', 'weasyprint', 'pint', 'pandas', 'service.documents.sources')"
+             " if m in sys.modules))\n")
+    done = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0, done.stderr
+    assert "audit chain intact: " in done.stdout
+    assert done.stdout.strip().splitlines()[-1] == "[]"
+    listed = subprocess.run([sys.executable, "-c", "from service.console import main; main(['print', '--help'])"],
+                            capture_output=True, text=True, timeout=120)
+    assert "assessment" in listed.stdout and "manifest" in listed.stdout and "label" in listed.stdout
