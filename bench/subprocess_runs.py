@@ -20,15 +20,20 @@ def timed(command: list[str], env: dict) -> float:
     return time.perf_counter() - started
 
 
-def interleaved_medians(runs: dict[str, list[str]], env: dict, repeats: int) -> dict[str, float]:
-    """Run each command once to warm the caches, then ``repeats`` rounds of all of them in turn (so that a
-    change in the machine's load hits all alike); the median wall time of each, printed and returned."""
-    for command in runs.values():
-        timed(command, env)
+def interleaved_medians(runs: dict[str, list[str]], env: dict, repeats: int, *, warm: bool = True) -> dict[str, float]:
+    """Run each command once to warm the caches (unless not ``warm``), then ``repeats`` rounds of all of them in
+    turn (so that a change in the machine's load hits all alike); the median wall time of each, printed and
+    returned. ``env`` is one environment for all, or one per name."""
+    def env_of(name: str) -> dict:
+        return env[name] if name in env else env
+
+    if warm:
+        for name, command in runs.items():
+            timed(command, env_of(name))
     times: dict[str, list[float]] = {name: [] for name in runs}
     for _ in range(repeats):
         for name, command in runs.items():
-            times[name].append(timed(command, env))
+            times[name].append(timed(command, env_of(name)))
     medians = {name: statistics.median(values) for name, values in times.items()}
     width = max(len(name) for name in runs)
     for name, median in medians.items():

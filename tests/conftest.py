@@ -337,7 +337,7 @@ def make_app(url: str, rules_dir: Path):
     """An app on ``url``, migrated and with the catalogue synced (from the session's template when ``url``
     names a database that is still empty)."""
     template = _SQLITE_TEMPLATE if url.startswith("sqlite") else _PG_TEMPLATE
-    if not template.restore(url, rules_dir):
+    if os.environ.get("DOTLEDGER_TEST_TEMPLATES") == "0" or not template.restore(url, rules_dir):
         return _build(url, rules_dir)
     return create_app({"DATABASE_URL": url, "TESTING": True, "RULES_DIR": str(rules_dir)})
 
