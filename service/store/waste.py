@@ -182,18 +182,22 @@ def _count(container: WasteContainer, entry: WasteEntry) -> None:
 def _lock(session: Session, container_id: int) -> WasteContainer:
     """The container, locked, then read afresh with its running totals.
 
-    Two statements, in this order: PostgreSQL (READ COMMITTED) gives each statement its own snapshot,
+    On PostgreSQL two statements, in this order: READ COMMITTED gives each statement its own snapshot,
     so totals read in the statement that waits for the lock would be those from before the lock
     holder's commit (only the locked row itself is re-read); read after the lock, they are current.
+    On SQLite a writing session's transaction began IMMEDIATE and holds the database's write lock
+    already (``service.store.db``): the read alone.
     """
-    if session.scalar(select(WasteContainer.id).where(WasteContainer.id == container_id)
-                      .with_for_update(of=WasteContainer)) is None:
-        get(session, WasteContainer, container_id)  # raises NotFound
-    return session.scalars(
+    if session.get_bind().dialect.name != "sqlite":
+        if session.scalar(select(WasteContainer.id).where(WasteContainer.id == container_id)
+                          .with_for_update(of=WasteContainer)) is None:
+            get(session, WasteContainer, container_id)  # raises NotFound
+    found = session.scalars(
         select(WasteContainer).where(WasteContainer.id == container_id)
         .options(joinedload(WasteContainer.totals), joinedload(WasteContainer.element_totals),
                  joinedload(WasteContainer.component_totals), lazyload(WasteContainer.determinations))
-        .execution_options(populate_existing=True)).unique().one()
+        .execution_options(populate_existing=True)).unique().one_or_none()
+    return found if found is not None else get(session, WasteContainer, container_id)  # get raises NotFound
 
 
 @dataclass(frozen=True)
