@@ -18,9 +18,6 @@ __all__ = ["print_group"]
 @click.group(name="print")
 def print_group() -> None:
     """Write a printed document (PDF): a risk assessment, a waste manifest or a container label."""
-    from service.documents.render import load_engine_meanwhile
-
-    load_engine_meanwhile()  # while the application starts and the data is gathered
 
 
 def _print_document(start_app: Callable, kind: str, ident: int, output: Path | None, *options) -> None:

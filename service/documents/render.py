@@ -9,8 +9,6 @@ from __future__ import annotations
 
 import hashlib
 import json
-import sys
-import threading
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -20,7 +18,7 @@ from service.chem.figures import TEMPLATE_FILTERS
 from service.resources import TEMPLATES_DIR
 
 __all__ = ["PAGE_SIZES", "Draft", "Document", "canonical_json", "data_sha256", "render_html", "render_pdf", "page_size_css",
-           "qr_data_uri", "load_engine_meanwhile"]
+           "qr_data_uri"]
 
 TEMPLATES = TEMPLATES_DIR / "documents"
 
@@ -126,26 +124,6 @@ class Draft:
 
     def render(self) -> Document:
         return render_html(self.template, self.data, document_id=self.document_id, filename=self.filename)
-
-
-def load_engine_meanwhile() -> None:
-    """Start importing WeasyPrint in a thread of its own, for a caller that will print after other work.
-
-    Most of that import is spent waiting for the system's library lookups (``ctypes.util.find_library``
-    runs a subprocess per name it tries), time in which the caller's thread can start the application
-    and gather the document's data. ``render_pdf`` imports it as usual: Python's import lock makes it
-    wait for the thread's import to finish (and raise its error, if any), so nothing is imported twice.
-    The thread is not a daemon: a command that fails before printing ends once the import has.
-    """
-    if "weasyprint" not in sys.modules:
-        threading.Thread(target=_import_engine, name="weasyprint-import").start()
-
-
-def _import_engine() -> None:
-    try:
-        import weasyprint  # noqa: F401
-    except Exception:  # noqa: BLE001 - render_pdf's own import raises it where it is handled
-        pass
 
 
 def render_pdf(html: str) -> bytes:
