@@ -53,7 +53,9 @@ def unit_registry(non_int_type: type = float) -> pint.UnitRegistry:
     parsed definitions in its cache folder (``pint`` in the user's cache directory, keyed by the file's
     content and the magnitude type) and reads them from there on the next start. Where that folder
     cannot be made or written, or a cached file cannot be read (two processes writing it at once), the
-    registry parses the definition file as it would without a cache.
+    registry parses the definition file as it would without a cache. pint keeps them as pickles, which
+    run code when read: the folder must be writable by the service's own account alone, as a user's cache
+    directory is (a shared or world-writable ``XDG_CACHE_HOME`` would let another account run code in it).
     ``non_int_type`` is the type of non-integer magnitudes: float here (:data:`ureg`), Decimal for
     the exact threshold conversions of ``service.rules.loader``.
     """
