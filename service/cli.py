@@ -241,12 +241,18 @@ def audit_verify(expected_hash: str | None) -> None:
     """Recompute the audit trail's hash chain; name the first broken event (exit status 1)."""
     from service.store import audit_chain
 
+    from sqlalchemy.exc import DBAPIError
+
     store = _Store()  # Core tables and one connection: no ORM, no web application
-    with store.engine.connect() as connection:
-        head = audit_chain.read_head(connection)
-        report = audit_chain.verify_chain(connection)
-        anchor = (audit_chain.find_hash(connection, expected_hash.strip().lower())
-                  if report.ok and expected_hash else None)
+    try:
+        with store.engine.connect() as connection:
+            head = audit_chain.read_head(connection)
+            report = audit_chain.verify_chain(connection)
+            anchor = (audit_chain.find_hash(connection, expected_hash.strip().lower())
+                      if report.ok and expected_hash else None)
+    except DBAPIError as exc:  # no such table, no server, no rights
+        raise click.ClickException(f"cannot read the audit trail of {store.config['DATABASE_URL']}: "
+                                   f"{str(exc.orig).strip()} (a new database: run `dotledger init` first)") from None
     if not report.ok:
         click.echo(f"audit chain BROKEN at event {report.first_broken_id}: {report.reason} "
                    f"({report.events_checked} event(s) before it verified)", err=True)

@@ -114,3 +114,11 @@ def test_a_command_imports_what_it_uses(sqlite_url, monkeypatch):
     listed = subprocess.run([sys.executable, "-c", "from service.console import main; main(['print', '--help'])"],
                             capture_output=True, text=True, timeout=120)
     assert "assessment" in listed.stdout and "manifest" in listed.stdout and "label" in listed.stdout
+
+
+def test_audit_verify_of_a_database_never_initialised_says_so(sqlite_url, monkeypatch):
+    monkeypatch.setenv("DOTLEDGER_DATABASE_URL", sqlite_url)
+    result = CliRunner().invoke(main, ["audit-verify"])
+    assert result.exit_code == 1
+    assert "cannot read the audit trail" in result.output and "dotledger init" in result.output
+    assert "Traceback" not in result.output
