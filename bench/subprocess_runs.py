@@ -14,10 +14,14 @@ DOTLEDGER = [PYTHON, "-c", "from service.console import main; main()"]  # what t
 
 
 def timed(command: list[str], env: dict) -> float:
-    """Wall time of one run of ``command`` (from the checkout, output discarded); fails on a non-zero exit."""
+    """Wall time of one run of ``command`` (from the checkout); fails on a non-zero exit, showing its output's end."""
     started = time.perf_counter()
-    subprocess.run(command, env=env, cwd=ROOT, check=True, stdout=subprocess.DEVNULL)
-    return time.perf_counter() - started
+    done = subprocess.run(command, env=env, cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.STDOUT)
+    elapsed = time.perf_counter() - started
+    if done.returncode != 0:
+        tail = done.stdout.decode("utf-8", "replace")[-4000:]
+        raise RuntimeError(f"{' '.join(command)} exited with status {done.returncode}; its last output:\n{tail}")
+    return elapsed
 
 
 def interleaved_medians(runs: dict[str, list[str]], env: dict, repeats: int, *, warm: bool = True) -> dict[str, float]:

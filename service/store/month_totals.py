@@ -49,6 +49,7 @@ __all__ = ["JSON_FLOWS", "month_of", "sql_month", "month_start", "next_month", "
 # The records whose element masses are a JSON mapping: flow name, model, its time, and a filter.
 JSON_FLOWS = ("run_draw", "run_output", "run_loss", "shipment")
 _ALL = "all"
+_INSTALLED = "_dotledger_month_totals_installed"
 
 
 def month_of(moment: dt.datetime) -> str:
@@ -337,7 +338,12 @@ def _bulk(execute_state):
 def install(factory: sessionmaker) -> None:
     """Keep the monthly totals in every flush of sessions made by ``factory``, and after an ORM bulk
     UPDATE or DELETE of the records (once, however often called)."""
-    if not event.contains(factory, "after_flush", _after_flush):
-        event.listen(factory, "after_flush", _after_flush)
-        event.listen(factory, "do_orm_execute", _bulk)
+    # The mark lives on the factory itself, as audit.install's does: event.contains() looks listeners up
+    # by id(), and a new factory can take the id of a collected one, which would skip the install (and
+    # leave that factory's sessions writing records without their totals).
+    if factory.__dict__.get(_INSTALLED):
+        return
+    event.listen(factory, "after_flush", _after_flush)
+    event.listen(factory, "do_orm_execute", _bulk)
+    setattr(factory, _INSTALLED, True)
 
