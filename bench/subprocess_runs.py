@@ -6,6 +6,7 @@ import statistics
 import subprocess
 import sys
 import time
+from typing import Optional
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -24,12 +25,13 @@ def timed(command: list[str], env: dict) -> float:
     return elapsed
 
 
-def interleaved_medians(runs: dict[str, list[str]], env: dict, repeats: int, *, warm: bool = True) -> dict[str, float]:
+def interleaved_medians(runs: dict[str, list[str]], env: Optional[dict], repeats: int, *, warm: bool = True,
+                        envs: Optional[dict[str, dict]] = None) -> dict[str, float]:
     """Run each command once to warm the caches (unless not ``warm``), then ``repeats`` rounds of all of them in
     turn (so that a change in the machine's load hits all alike); the median wall time of each, printed and
-    returned. ``env`` is one environment for all, or one per name."""
+    returned. ``env`` is the environment of every command, unless ``envs`` gives one per name."""
     def env_of(name: str) -> dict:
-        return env[name] if name in env else env
+        return envs[name] if envs is not None else env
 
     if warm:
         for name, command in runs.items():

@@ -10,6 +10,11 @@ template file is copied; on PostgreSQL a schema is taken from a pool of schemas 
 state, which a finished test's schema rejoins after its tables are emptied and refilled from the
 template (only when its structure still matches the template's; else it is dropped). Tests that
 call ``upgrade`` themselves (the migration tests) still start from an empty database.
+
+Passwords are hashed at a low scrypt cost (common practice: Django's testing documentation advises a
+fast password hasher for test runs); tests marked ``production_password_cost`` use the service's own.
+``DOTLEDGER_TEST_SHORTCUTS=0`` turns both off: every database from the migrations, every password at
+the service's cost (the suite as it ran before; what ``bench/test_time.py`` compares against).
 """
 
 from __future__ import annotations
@@ -44,6 +49,9 @@ from service.store.db import session_scope, upgrade
 
 ROOT = Path(__file__).resolve().parents[1]
 POSTGRES_URL = os.environ.get("DOTLEDGER_TEST_POSTGRES_URL", "postgresql+psycopg://postgres@127.0.0.1:5432/test")
+SHORTCUTS = os.environ.get("DOTLEDGER_TEST_SHORTCUTS") != "0"
+# scrypt with N = 2**10 instead of 2**15: each hash about 1/32 of the work; the format and the check are the same.
+TEST_PASSWORD_METHOD = "scrypt:1024:8:1"
 
 
 # nodeid -> "sqlite" | "postgres" for the tests that run on both databases (the ``database_url`` fixture).
@@ -337,9 +345,16 @@ def make_app(url: str, rules_dir: Path):
     """An app on ``url``, migrated and with the catalogue synced (from the session's template when ``url``
     names a database that is still empty)."""
     template = _SQLITE_TEMPLATE if url.startswith("sqlite") else _PG_TEMPLATE
-    if os.environ.get("DOTLEDGER_TEST_TEMPLATES") == "0" or not template.restore(url, rules_dir):
+    if not SHORTCUTS or not template.restore(url, rules_dir):
         return _build(url, rules_dir)
     return create_app({"DATABASE_URL": url, "TESTING": True, "RULES_DIR": str(rules_dir)})
+
+
+@pytest.fixture(autouse=True)
+def _password_cost(request, monkeypatch):
+    """The low test cost for every password hashed in this process, unless the test is marked otherwise."""
+    if SHORTCUTS and request.node.get_closest_marker("production_password_cost") is None:
+        monkeypatch.setattr(identity, "PASSWORD_METHOD", TEST_PASSWORD_METHOD)
 
 
 @pytest.fixture

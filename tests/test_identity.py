@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import logging
 
+import pytest
 from sqlalchemy import text
 
 from service.store.db import session_scope
@@ -13,12 +14,17 @@ from tests.conftest import Api, make_user
 PASSWORD = "correct horse battery"
 
 
+@pytest.mark.production_password_cost
 def test_password_is_hashed_with_a_slow_scheme(app):
     make_user(app, "r@test.example", "researcher")
     with session_scope(app.extensions["dotledger.sessions"]) as session:
         stored = session.query(User.password_hash).filter(User.email == "r@test.example").scalar()
     assert PASSWORD not in stored
-    assert stored.split(":")[0] in ("scrypt", "pbkdf2")  # werkzeug.security hash formats
+    # werkzeug.security's format "scrypt:N:r:p$salt$hash"; N at least werkzeug's own default, 2**15.
+    method, salt, digest = stored.split("$")
+    name, n, r, p = method.split(":")
+    assert name == "scrypt" and int(n) >= 2**15 and int(r) >= 8 and int(p) >= 1
+    assert len(salt) >= 16 and len(digest) == 128  # 64-byte scrypt output as hex
 
 
 def test_token_is_shown_once_stored_hashed_and_revocable(app, client):

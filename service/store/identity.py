@@ -23,6 +23,8 @@ __all__ = [
     "LoginLocked",
     "LoginLimits",
     "IssuedToken",
+    "PASSWORD_METHOD",
+    "hash_password",
     "create_user",
     "update_user",
     "authenticate",
@@ -36,6 +38,14 @@ __all__ = [
 ]
 
 TOKEN_PREFIX = "dlt_"
+# werkzeug's default method and cost since 3.0 (scrypt, N = 2**15, r = 8, p = 1), written out so that it is
+# one visible setting. A stored hash names its own method and parameters, so hashes made at another cost
+# still verify. The test suite lowers the cost (see tests/conftest.py), except where it checks this one.
+PASSWORD_METHOD = "scrypt:32768:8:1"
+
+
+def hash_password(password: str) -> str:
+    return generate_password_hash(password, method=PASSWORD_METHOD)
 
 
 class LoginLocked(PermissionError):
@@ -79,7 +89,7 @@ def create_user(session: Session, body: UserIn) -> User:
     if session.scalar(select(User.id).where(func.lower(User.email) == email)) is not None:
         raise Conflict(f"a user with email {email!r} exists", "email", email)
     user = User(email=email, display_name=body.display_name, role=body.role,
-                password_hash=generate_password_hash(body.password.get_secret_value()))
+                password_hash=hash_password(body.password.get_secret_value()))
     _set_labs(session, user, body.lab_ids)
     session.add(user)
     session.flush()
@@ -92,7 +102,7 @@ def update_user(session: Session, user: User, patch: UserPatch) -> User:
         keep_an_admin(session, user, "demoted")
     if "password" in values:
         values.pop("password")
-        user.password_hash = generate_password_hash(patch.password.get_secret_value())
+        user.password_hash = hash_password(patch.password.get_secret_value())
         # Whoever held the old password may hold a session or a token: end them all.
         end_sessions(user)
         revoke_all_tokens(session, user)
@@ -139,10 +149,10 @@ def revoke_all_tokens(session: Session, user: User) -> None:
     session.flush()
 
 
-@lru_cache(maxsize=1)
-def _dummy_hash() -> str:
+@lru_cache(maxsize=4)
+def _dummy_hash(method: str) -> str:
     """A hash of a random password made as real ones are (same method and cost), checked for unknown emails."""
-    return generate_password_hash(secrets.token_urlsafe(16))
+    return generate_password_hash(secrets.token_urlsafe(16), method=method)
 
 
 def _locked_until(session: Session, column, value: str, limit: int, window_s: int, now: dt.datetime):
@@ -178,7 +188,8 @@ def authenticate(session: Session, email: str, password: str, address: str, limi
             raise LoginLocked(max(1, int((until - now).total_seconds()) + 1), scope)
     user = session.scalar(select(User).where(User.email == email))
     # Always one hash check, so that an unknown email takes as long to refuse as a wrong password.
-    matches = check_password_hash(user.password_hash if user is not None else _dummy_hash(), password or "")
+    matches = check_password_hash(user.password_hash if user is not None else _dummy_hash(PASSWORD_METHOD),
+                                  password or "")
     ok = user is not None and user.retired_at is None and matches
     session.add(LoginAttempt(email=email, address=address, at=now, succeeded=ok))
     session.flush()
