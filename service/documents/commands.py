@@ -21,21 +21,24 @@ def print_group() -> None:
 
 
 def _print_document(start_app: Callable, kind: str, ident: int, output: Path | None, *options) -> None:
-    from service.documents.sources import assessment_for, label_for, manifest_for
-    from service.store import inventory
-    from service.store.db import get_session
-    from service.store.models import Procedure, WasteContainer
+    from service.documents.render import PdfWorker
 
-    app = start_app()
-    model, build = {"assessment": (Procedure, assessment_for), "manifest": (WasteContainer, manifest_for),
-                    "label": (WasteContainer, label_for)}[kind]
-    with app.test_request_context():  # the session ends with the context, before rendering
-        try:
-            draft = build(inventory.get(get_session(), model, ident), *options)
-        except LookupError as exc:
-            raise click.ClickException(str(exc)) from None
-    doc = draft.render()
-    pdf = doc.pdf()
+    with PdfWorker() as worker:  # WeasyPrint starts in a child while the data are gathered here
+        from service.documents.sources import assessment_for, label_for, manifest_for
+        from service.store import inventory
+        from service.store.db import get_session
+        from service.store.models import Procedure, WasteContainer
+
+        app = start_app()
+        model, build = {"assessment": (Procedure, assessment_for), "manifest": (WasteContainer, manifest_for),
+                        "label": (WasteContainer, label_for)}[kind]
+        with app.test_request_context():  # the session ends with the context, before rendering
+            try:
+                draft = build(inventory.get(get_session(), model, ident), *options)
+            except LookupError as exc:
+                raise click.ClickException(str(exc)) from None
+        doc = draft.render()
+        pdf = worker.pdf(doc.html)
     target = output or Path(f"{doc.filename}.pdf")
     target.write_bytes(pdf)
     click.echo(str(target))

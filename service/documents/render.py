@@ -9,6 +9,10 @@ from __future__ import annotations
 
 import hashlib
 import json
+import os
+import signal
+import sys
+import threading
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -17,8 +21,8 @@ from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoes
 from service.chem.figures import TEMPLATE_FILTERS
 from service.resources import TEMPLATES_DIR
 
-__all__ = ["PAGE_SIZES", "Draft", "Document", "canonical_json", "data_sha256", "render_html", "render_pdf", "page_size_css",
-           "qr_data_uri"]
+__all__ = ["PAGE_SIZES", "Draft", "Document", "PdfWorker", "canonical_json", "data_sha256", "render_html", "render_pdf",
+           "page_size_css", "qr_data_uri"]
 
 TEMPLATES = TEMPLATES_DIR / "documents"
 
@@ -131,3 +135,96 @@ def render_pdf(html: str) -> bytes:
     from weasyprint import HTML  # heavy import, only when a PDF is asked for
 
     return HTML(string=html, base_url=str(Path(TEMPLATES))).write_pdf()
+
+
+class PdfWorker:
+    """A PDF renderer started ahead: a forked child imports WeasyPrint (about a second of the command's
+    start) while this process gathers the document's data, then renders the HTML it is sent.
+
+    For a command that prints one document: ``with PdfWorker() as worker: ...; pdf = worker.pdf(html)``.
+    The HTML goes to the child through a pipe and the PDF comes back through another, so the PDF is the
+    one :func:`render_pdf` makes of the same HTML (the child runs it). With one CPU the two starts simply
+    take turns. The child is not started where ``os.fork`` is missing, where another thread runs (a fork
+    copies no other thread, and locks they hold stay locked in the child) or where WeasyPrint is already
+    imported (nothing to gain); then, and whenever the child fails or says nothing, :meth:`pdf` renders
+    in this process, where an error shows as it would without the child.
+    """
+
+    def __init__(self) -> None:
+        self.pid: int | None = None
+        self._send = self._receive = -1
+        if not hasattr(os, "fork") or "weasyprint" in sys.modules or threading.active_count() > 1:
+            return
+        html_r, html_w = os.pipe()
+        pdf_r, pdf_w = os.pipe()
+        sys.stdout.flush()
+        sys.stderr.flush()
+        pid = os.fork()
+        if pid == 0:  # the child: never returns
+            os.close(html_w)
+            os.close(pdf_r)
+            _render_for_parent(html_r, pdf_w)
+        os.close(html_r)
+        os.close(pdf_w)
+        self.pid, self._send, self._receive = pid, html_w, pdf_r
+
+    def pdf(self, html: str) -> bytes:
+        if self.pid is not None:
+            try:
+                with os.fdopen(self._send, "wb") as pipe:
+                    self._send = -1
+                    pipe.write(html.encode("utf-8"))
+                with os.fdopen(self._receive, "rb") as pipe:
+                    self._receive = -1
+                    answer = pipe.read()
+            except OSError:  # the child is gone
+                answer = b""
+            self._reap()
+            if answer.startswith(_DONE):
+                return answer[len(_DONE):]
+        return render_pdf(html)
+
+    def close(self) -> None:
+        """Stop the child if it still runs (the command ended without a PDF)."""
+        if self.pid is not None:
+            os.kill(self.pid, signal.SIGTERM)
+            self._reap()
+
+    def _reap(self) -> None:
+        for fd in (self._send, self._receive):
+            if fd >= 0:
+                os.close(fd)
+        self._send = self._receive = -1
+        os.waitpid(self.pid, 0)
+        self.pid = None
+
+    def __enter__(self) -> "PdfWorker":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+
+_DONE = b"%dotledger-pdf\n"  # the child's answer starts with this when the PDF follows
+
+
+def _render_for_parent(html_r: int, pdf_w: int) -> None:
+    """In the forked child: import WeasyPrint, read the HTML until the parent closes the pipe, answer with the PDF.
+
+    Leaves with ``os._exit``: no buffer, handler or atexit hook inherited from the parent runs twice.
+    """
+    status = 1
+    try:
+        import weasyprint  # noqa: F401 - the point of the child: the import runs while the parent works
+
+        with os.fdopen(html_r, "rb") as pipe:
+            html = pipe.read().decode("utf-8")
+        if html:
+            pdf = render_pdf(html)
+            with os.fdopen(pdf_w, "wb") as pipe:
+                pipe.write(_DONE + pdf)
+        status = 0
+    except BaseException:  # noqa: BLE001 - the parent renders again in its own process and shows the error
+        pass
+    finally:
+        os._exit(status)

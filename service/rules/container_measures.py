@@ -332,13 +332,13 @@ def _days(value: Optional[float], what: str) -> Optional[MeasureResult]:
     return MeasureResult(_plain(_dec(value)), "day", f"{_text(_dec(value))} days since {what}")
 
 
-@measure("days_since_full", scope="waste_container", unit="day")
+@measure("days_since_full", scope="waste_container", unit="day", clock=True)
 def days_since_full(subject: ContainerSubject, _arg: None) -> Optional[MeasureResult]:
     """Days since the container was marked full; not applicable while it is not full."""
     return _days(subject.days_since_full, "it was marked full")
 
 
-@measure("days_since_first_entry", scope="waste_container", unit="day")
+@measure("days_since_first_entry", scope="waste_container", unit="day", clock=True)
 def days_since_first_entry(subject: ContainerSubject, _arg: None) -> Optional[MeasureResult]:
     """Days since the first entry into the container; not applicable while it is empty."""
     return _days(subject.days_since_first_entry, "the first entry")

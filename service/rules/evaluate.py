@@ -2,6 +2,10 @@
 
 Each measure is computed once per call; a measure that does not apply (``None``) skips
 its rules. Values and thresholds are compared as exact decimals in the measure's unit.
+For a subject that names its ``CLOCK_FIELDS`` (a waste container's days since its first entry),
+the findings of the rules whose measures do not read the clock are kept per process for equal
+facts (an LRU of 4096 subjects), computed on the subject with those fields blanked, so that the
+same container read again costs only its clock rules; a changed record is a new key.
 Every finding carries its pack's disclaimer: findings are suggestions, and local
 regulations and the site safety officer decide.
 """
@@ -9,7 +13,10 @@ regulations and the site safety officer decide.
 from __future__ import annotations
 
 import operator
-from dataclasses import dataclass
+import threading
+from collections import OrderedDict
+from collections.abc import Mapping
+from dataclasses import dataclass, fields, replace
 from functools import lru_cache
 from decimal import ROUND_HALF_EVEN, Decimal
 from typing import Iterable, Optional
@@ -133,18 +140,32 @@ def _finding(active: ActiveRule, result: MeasureResult, value: Decimal) -> Findi
     )
 
 
-def evaluate(rules: LayeredRules, scope: str, subject: object) -> list[Finding]:
+def evaluate(rules: LayeredRules, scope: str, subject: object, *, keep: bool = True) -> list[Finding]:
     """Evaluate the active rules of ``scope`` against ``subject``.
 
     :param rules: the layered rule packs (:func:`service.rules.loader.load_packs`)
     :param scope: procedure, run, waste_container or inventory
     :param subject: the facts the scope's measures read, e.g. a ProcedureSubject
+    :param keep: use and keep the findings of the rules that do not read the clock (see the module);
+        False evaluates every rule on ``subject`` as given
     :returns: the findings, most severe level first, then by rule id
     :raises ValueError: an unknown scope, or a measure answering in the wrong unit
     """
+    active = rules.rules_for(scope)
+    clock_fields = getattr(type(subject), "CLOCK_FIELDS", None)
+    if clock_fields is None or not keep:
+        findings = _fired(active, subject)
+    else:
+        findings = list(_standing(rules, scope, active, subject, clock_fields))
+        findings += _fired([a for a in active if a.definition.clock], subject)
+    return sorted(findings, key=lambda f: (-SEVERITY[f.level], f.rule_id))
+
+
+def _fired(active_rules: Iterable[ActiveRule], subject: object) -> list[Finding]:
+    """The findings of the rules that fire on ``subject``, in rule order."""
     results: dict[str, Optional[MeasureResult]] = {}
     findings = []
-    for active in rules.rules_for(scope):
+    for active in active_rules:
         name = active.rule.measure
         if name not in results:
             results[name] = active.definition.compute(subject, active.argument)
@@ -156,7 +177,43 @@ def evaluate(rules: LayeredRules, scope: str, subject: object) -> list[Finding]:
         value = _exact(result.value)
         if _COMPARE[active.rule.comparator](value, active.threshold_value):
             findings.append(_finding(active, result, value))
-    return sorted(findings, key=lambda f: (-SEVERITY[f.level], f.rule_id))
+    return findings
+
+
+_KEPT: OrderedDict = OrderedDict()  # (id(rules), scope, facts) -> (rules, findings)
+_KEPT_SIZE = 4096
+_KEPT_LOCK = threading.Lock()
+
+
+def _standing(rules: LayeredRules, scope: str, active: tuple[ActiveRule, ...], subject: object,
+              clock_fields: tuple[str, ...]) -> tuple[Finding, ...]:
+    """The findings of the rules that do not read the clock, for the subject without its clock fields, kept."""
+    key = (id(rules), scope, _facts(subject, clock_fields))
+    with _KEPT_LOCK:
+        kept = _KEPT.get(key)
+        if kept is not None and kept[0] is rules:  # the same rules object, not one that took a freed id
+            _KEPT.move_to_end(key)
+            return kept[1]
+    blanked = replace(subject, **{name: None for name in clock_fields})
+    findings = tuple(_fired([a for a in active if not a.definition.clock], blanked))
+    with _KEPT_LOCK:
+        _KEPT[key] = (rules, findings)
+        while len(_KEPT) > _KEPT_SIZE:
+            _KEPT.popitem(last=False)
+    return findings
+
+
+def _facts(subject: object, blank: tuple[str, ...]) -> tuple:
+    """A key for a subject's facts but the ``blank`` fields: its type and field values, a mapping as its sorted
+    pairs (the other field values of the subjects that name clock fields are hashable: numbers, text, frozen tuples)."""
+    return (type(subject), *(None if name in blank else
+                             tuple(sorted(value.items())) if isinstance(value := getattr(subject, name), Mapping)
+                             else value for name in _field_names(type(subject))))
+
+
+@lru_cache(maxsize=None)
+def _field_names(kind: type) -> tuple[str, ...]:
+    return tuple(f.name for f in fields(kind))
 
 
 def highest_level(findings: Iterable[Finding]) -> Optional[str]:

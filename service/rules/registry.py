@@ -40,6 +40,9 @@ class Measure:
     description: str
     compute: Callable[[object, Optional[str]], Optional[MeasureResult]]
     parameter: Optional[str] = None  # kind of the ":<argument>", e.g. "element"
+    # True when the measure reads the subject's clock (its ``CLOCK_FIELDS``, e.g. days since the first
+    # entry): its value changes with time alone. Every other measure must not read those fields.
+    clock: bool = False
 
 
 class MeasureNameError(ValueError):
@@ -50,12 +53,13 @@ MEASURES: dict[str, Measure] = {}
 _PARAMETER_LABELS = {"element": "<El>"}
 
 
-def measure(name: str, *, scope: str, unit: str, parameter: Optional[str] = None):
-    """Register the decorated function as measure ``name`` (description: its docstring's first line)."""
+def measure(name: str, *, scope: str, unit: str, parameter: Optional[str] = None, clock: bool = False):
+    """Register the decorated function as measure ``name`` (description: its docstring's first line);
+    ``clock``: it reads the subject's clock fields (see :class:`Measure`)."""
 
     def register(compute):
         description = (compute.__doc__ or "").strip().splitlines()[0]
-        MEASURES[name] = Measure(name, scope, unit, description, compute, parameter)
+        MEASURES[name] = Measure(name, scope, unit, description, compute, parameter, clock)
         return compute
 
     return register

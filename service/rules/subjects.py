@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from decimal import Decimal
-from typing import Literal, Mapping, Optional
+from typing import ClassVar, Literal, Mapping, Optional
 
 __all__ = ["ReagentFacts", "StepFacts", "ProcedureSubject", "ContainerComponent", "ContainerSubject", "INERT_ATMOSPHERES",
            "AreaContainer", "AreaSubject", "GeneratorMonthSubject"]
@@ -95,6 +95,9 @@ class ContainerSubject:
     days_since_full: Optional[float] = None
     acute_hazardous: bool = False
     ph: Optional[float] = None  # the pH most recently recorded on an entry that is not reversed
+    # The fields that change with time alone; only measures registered with ``clock=True`` read them,
+    # so the findings of all other rules can be kept while the records stay the same (rules.evaluate).
+    CLOCK_FIELDS: ClassVar[tuple[str, ...]] = ("days_since_first_entry", "days_since_full")
 
 
 @dataclass(frozen=True)
