@@ -9,47 +9,55 @@ from __future__ import annotations
 import sys
 from contextlib import contextmanager
 from pathlib import Path
+from typing import Callable, TypeVar
 
 import click
 
 from service import vocab
 
+T = TypeVar("T")
+
 __all__ = ["main"]
+
+
+def _started(start: Callable[[], T], engine_of: Callable[[T], object]) -> T:
+    """``start()`` with a bad setting as a one-line error, and the pooled connections closed when the command
+    ends (a long-lived caller, such as a test runner invoking many commands, would otherwise leave them to the
+    garbage collector)."""
+    try:
+        started = start()
+    except ValueError as exc:  # a ConfigError, or a setting that does not parse
+        raise click.ClickException(str(exc)) from None
+    context = click.get_current_context(silent=True)
+    if context is not None:
+        context.call_on_close(engine_of(started).dispose)
+    return started
 
 
 def _app():
     from service.app import create_app
 
-    try:
-        app = create_app()
-    except ValueError as exc:  # a ConfigError, or a setting that does not parse
-        raise click.ClickException(str(exc)) from None
-    # Close the pooled connections when the command ends (a long-lived caller, such as a test
-    # runner invoking many commands, would otherwise leave them to the garbage collector).
-    context = click.get_current_context(silent=True)
-    if context is not None:
-        context.call_on_close(app.extensions["dotledger.engine"].dispose)
-    return app
+    return _started(create_app, lambda app: app.extensions["dotledger.engine"])
 
 
 class _Store:
     """What a command that only reads or writes the database needs: the configuration and sessions, without
     the web application (whose start costs the command line most of its time)."""
 
-    def __init__(self) -> None:
+    def __init__(self, config: dict, engine) -> None:
+        self.config, self.engine, self._sessions = config, engine, None
+
+    @classmethod
+    def start(cls) -> "_Store":
         from service.config import load_config
         from service.resources import default_instance_path
         from service.store.db import make_engine
 
-        self._sessions = None
-        try:
-            self.config = load_config(str(default_instance_path()))
-        except ValueError as exc:  # as in _app
-            raise click.ClickException(str(exc)) from None
-        self.engine = make_engine(self.config["DATABASE_URL"])
-        context = click.get_current_context(silent=True)
-        if context is not None:
-            context.call_on_close(self.engine.dispose)
+        def start() -> "_Store":
+            config = load_config(str(default_instance_path()))
+            return cls(config, make_engine(config["DATABASE_URL"]))
+
+        return _started(start, lambda store: store.engine)
 
     @property
     def sessions(self):
@@ -243,7 +251,7 @@ def audit_verify(expected_hash: str | None) -> None:
 
     from sqlalchemy.exc import DBAPIError
 
-    store = _Store()  # Core tables and one connection: no ORM, no web application
+    store = _Store.start()  # Core tables and one connection: no ORM, no web application
     try:
         with store.engine.connect() as connection:
             head = audit_chain.read_head(connection)
@@ -281,7 +289,7 @@ def backup(path: Path, force: bool) -> None:
     """
     from service.store.backup import BackupError, backup as run_backup, head_file
 
-    store = _Store()
+    store = _Store.start()
     try:
         done = run_backup(store.config["DATABASE_URL"], path, force=force)
     except BackupError as exc:
@@ -298,7 +306,7 @@ def restore(path: Path, force: bool) -> None:
     """Load the backup at PATH into the configured database (an empty one unless --force)."""
     from service.store.backup import BackupError, head_file, restore as run_restore
 
-    store = _Store()
+    store = _Store.start()
     store.engine.dispose()  # no pooled connection of ours holds the target open
     try:
         report = run_restore(path, store.config["DATABASE_URL"], force=force)
@@ -364,7 +372,7 @@ def _report_frame(name: str, by: str | None, since, until, element: str | None):
         keys = ledger.REPORTS[name].check_by(keys)
     except ledger.UnknownGroupKey as exc:
         raise click.BadParameter(str(exc), param_hint="--by") from None
-    store = _Store()
+    store = _Store.start()
     with session_scope(store.sessions, write=False) as session:
         return ledger.run_report(session, name, keys, **filters)
 
@@ -380,7 +388,7 @@ def _element_ledger_frame(by: str | None, since, until, element: str | None):
         raise click.UsageError("--by does not apply to the element ledger (one row per element and month)")
     if element is not None and element not in vocab.ELEMENT_SYMBOLS:
         raise click.BadParameter(f"{element!r} is not an element symbol", param_hint="--element")
-    store = _Store()
+    store = _Store.start()
     with session_scope(store.sessions, write=False) as session:
         lines = element_ledger.ledger_lines(
             session, since=since.strftime("%Y-%m") if since else None, until=until.strftime("%Y-%m") if until else None,
