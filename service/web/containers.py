@@ -26,7 +26,7 @@ from service.store import areas, inventory, waste
 from service.store.db import get_session
 from service.store.models import WasteContainer
 from service.web import bp
-from service.web.editor import _message as field_message
+from service.web.fields import field_message
 from service.web.waste import MOVE_LABELS, container_page
 
 CODE_ROWS = 4

@@ -28,6 +28,7 @@ from service.store import inventory, procedures
 from service.store.db import get_session
 from service.store.models import Lab, Mixture, Procedure, Stock
 from service.web import bp
+from service.web.fields import field_message, number, whole
 from service.web.pages import TRACKED
 
 # The rows of the form: form name -> (fields, the body's key, the word in buttons and labels, most rows).
@@ -136,23 +137,6 @@ def _row_action(state: dict, verb: str, noun: str, index: Optional[str]) -> Opti
 # --- the form as the API's body -----------------------------------------------------------------
 
 
-def _number(text: str):
-    """A number typed in a box; text that is not one goes on, so the schema names the field."""
-    text = text.strip()
-    if not text:
-        return None
-    try:
-        return float(text)
-    except ValueError:
-        return text
-
-
-def _whole(text: str):
-    text = text.strip()
-    # ASCII digits only: str.isdigit() also accepts "²", which int() refuses
-    return int(text) if text.isascii() and text.isdigit() and len(text) <= 10 else text or None
-
-
 def _or_none(text: str) -> Optional[str]:
     return text if text.strip() else None
 
@@ -181,7 +165,7 @@ def _body(state: dict, sources: dict[str, str]) -> tuple[dict, dict[str, list[in
     Rows left wholly blank are not part of the body.
     """
     data: dict = {"title": state["title"]}
-    lab_id, scale = _whole(state["lab_id"]), _number(state["scale"])
+    lab_id, scale = whole(state["lab_id"]), number(state["scale"])
     if lab_id is not None:
         data["lab_id"] = lab_id
     if scale is not None:
@@ -195,13 +179,13 @@ def _body(state: dict, sources: dict[str, str]) -> tuple[dict, dict[str, list[in
         for i in kept[name]:
             row = state[name][i]
             if name == "steps":
-                item = {"temperature_c": _number(row["temperature_c"]), "duration_min": _number(row["duration_min"]),
+                item = {"temperature_c": number(row["temperature_c"]), "duration_min": number(row["duration_min"]),
                         "atmosphere": _or_none(row["atmosphere"]), "note": _or_none(row["note"])}
                 if row["operation"].strip():
                     item["operation"] = row["operation"]
             elif name == "draws":
                 item = {"amount": row["amount"]}
-                step = _whole(row["step"])
+                step = whole(row["step"])
                 if isinstance(step, int) and step >= 1:
                     item["step"] = step - 1  # the form counts steps from 1, the body from 0
                 elif step is not None:
@@ -235,36 +219,12 @@ def _field_of(loc: tuple, kept: dict[str, list[int]]) -> str:
     return f"{name}-{row}-{part or ROWS[name][0][0]}"
 
 
-_MESSAGES = {
-    "missing": "Required.", "literal_error": "Choose one of the listed values.",
-    "float_type": "Enter a number.", "float_parsing": "Enter a number.", "int_type": "Enter a whole number.",
-    "int_parsing": "Enter a whole number.", "finite_number": "Enter a finite number.",
-}
-
-
-_BOUNDS = {"less_than_equal": ("le", "At most {}."), "less_than": ("lt", "Below {}."),
-           "greater_than_equal": ("ge", "At least {}."), "greater_than": ("gt", "Above {}."),
-           "string_too_long": ("max_length", "At most {} characters."), "too_long": ("max_length", "At most {} rows.")}
-
-
-def _message(err: dict) -> str:
-    """pydantic's message in a form's words ("At most 1200." rather than "Input should be less than or equal to 1200")."""
-    kind, ctx = err["type"], err.get("ctx") or {}
-    if kind == "too_short":
-        return "Add at least one row with a value."
-    if kind == "string_too_short":
-        return "Required." if ctx.get("min_length") == 1 else f"At least {ctx.get('min_length')} characters."
-    if kind in _BOUNDS and _BOUNDS[kind][0] in ctx:
-        key, text = _BOUNDS[kind]
-        return text.format(f"{ctx[key]:g}" if isinstance(ctx[key], float) else ctx[key])
-    message = _MESSAGES.get(kind) or err["msg"].removeprefix("Value error, ")
-    return message[:1].upper() + message[1:]
 
 
 def _validation_errors(exc: ValidationError, kept) -> dict[str, str]:
     out: dict[str, str] = {}
     for err in exc.errors():
-        out.setdefault(_field_of(tuple(err["loc"]), kept), _message(err))
+        out.setdefault(_field_of(tuple(err["loc"]), kept), field_message(err))
     return out
 
 
@@ -441,7 +401,7 @@ def procedure_save(ident: int):
 @bp.post("/procedures/check", endpoint="procedure_check")
 def procedure_check():
     """The check panel alone (masses, findings, scale-up preview) for the form as sent; nothing is stored."""
-    ident = _whole(request.form.get("procedure_id", ""))
+    ident = whole(request.form.get("procedure_id", ""))
     proc = None
     if ident is not None:
         if not isinstance(ident, int) or not 1 <= ident <= ID_MAX:

@@ -31,7 +31,7 @@ from service.store.amounts import mg_text
 from service.store.db import get_session
 from service.store.models import Substance, WasteContainer
 from service.web import bp
-from service.web.editor import _message as field_message, _number
+from service.web.fields import field_message, number
 from service.web.waste import container_page
 
 # Units offered beside each number (the first is the default); the number and the unit become "25 mL".
@@ -100,7 +100,7 @@ def _body(state: dict, container: WasteContainer) -> tuple[dict, dict[str, list[
     if run_id:
         data["run_id"] = int(run_id) if run_id.isascii() and run_id.isdigit() and len(run_id) <= 10 else run_id
     if kind == "volume" and state["filterable_solids_percent"].strip():
-        data["filterable_solids_percent"] = _number(state["filterable_solids_percent"])
+        data["filterable_solids_percent"] = number(state["filterable_solids_percent"])
     kept = {"elements": [], "components": []}
     data["elements"] = []
     for i, row in enumerate(state["elements"]):
@@ -112,7 +112,7 @@ def _body(state: dict, container: WasteContainer) -> tuple[dict, dict[str, list[
                              ("concentration", _with_unit(row["concentration"], row["concentration_unit"],
                                                           UNITS["concentration"])),
                              ("volume", _with_unit(row["volume"], "mL", ("mL",))),
-                             ("share_percent", _number(row["share_percent"]))):
+                             ("share_percent", number(row["share_percent"]))):
             if value is not None:
                 item[field] = value
         data["elements"].append(item)

@@ -13,12 +13,53 @@ from pydantic import ValidationError
 
 from service.chem.units import QuantityError
 from service.errors import Conflict, InvalidInput
-from service.web.editor import _message, _number, _whole
 
-__all__ = ["whole", "number", "text_or_none", "field_name", "validation_errors", "store_error", "summary"]
+__all__ = ["whole", "number", "text_or_none", "field_message", "field_name", "validation_errors", "store_error", "summary"]
 
-whole, number = _whole, _number  # the editor's conversions: text that is not a number goes on to the schema
 _INDEXED = re.compile(r"^([a-z_]+)\[(\d+)\]\.([a-z_]+)$")
+
+def number(text: str):
+    """A number typed in a box; text that is not one goes on, so the schema names the field."""
+    text = text.strip()
+    if not text:
+        return None
+    try:
+        return float(text)
+    except ValueError:
+        return text
+
+
+def whole(text: str):
+    """A whole number typed in a box; other text goes on, so the schema names the field."""
+    text = text.strip()
+    # ASCII digits only: str.isdigit() also accepts "²", which int() refuses
+    return int(text) if text.isascii() and text.isdigit() and len(text) <= 10 else text or None
+
+
+_MESSAGES = {
+    "missing": "Required.", "literal_error": "Choose one of the listed values.",
+    "float_type": "Enter a number.", "float_parsing": "Enter a number.", "int_type": "Enter a whole number.",
+    "int_parsing": "Enter a whole number.", "finite_number": "Enter a finite number.",
+}
+
+
+_BOUNDS = {"less_than_equal": ("le", "At most {}."), "less_than": ("lt", "Below {}."),
+           "greater_than_equal": ("ge", "At least {}."), "greater_than": ("gt", "Above {}."),
+           "string_too_long": ("max_length", "At most {} characters."), "too_long": ("max_length", "At most {} rows.")}
+
+
+def field_message(err: dict) -> str:
+    """pydantic's message in a form's words ("At most 1200." rather than "Input should be less than or equal to 1200")."""
+    kind, ctx = err["type"], err.get("ctx") or {}
+    if kind == "too_short":
+        return "Add at least one row with a value."
+    if kind == "string_too_short":
+        return "Required." if ctx.get("min_length") == 1 else f"At least {ctx.get('min_length')} characters."
+    if kind in _BOUNDS and _BOUNDS[kind][0] in ctx:
+        key, text = _BOUNDS[kind]
+        return text.format(f"{ctx[key]:g}" if isinstance(ctx[key], float) else ctx[key])
+    message = _MESSAGES.get(kind) or err["msg"].removeprefix("Value error, ")
+    return message[:1].upper() + message[1:]
 
 
 def text_or_none(text: Optional[str]) -> Optional[str]:
@@ -40,7 +81,7 @@ def validation_errors(exc: ValidationError, rename: Optional[dict] = None) -> di
     out: dict[str, str] = {}
     for err in exc.errors():
         name = field_name(tuple(err["loc"]))
-        out.setdefault((rename or {}).get(name, name), _message(err))
+        out.setdefault((rename or {}).get(name, name), field_message(err))
     return out
 
 

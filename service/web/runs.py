@@ -26,7 +26,7 @@ from service.store import inventory, procedures, runs
 from service.store.db import get_session
 from service.store.models import Lab, Location, Mixture, Procedure, Run, Stock, Substance
 from service.web import bp
-from service.web.editor import _message, _number, _whole
+from service.web.fields import field_message, number, whole
 
 _STORE_PATH = re.compile(r"\[(\d+)\]\.?")
 METHODS = {"mass": "by mass", "assay": "by assay", "estimate": "from absorbance", "by_difference": "by difference"}
@@ -46,7 +46,7 @@ def _errors(exc: Exception) -> dict[str, str]:
     if isinstance(exc, ValidationError):
         out: dict[str, str] = {}
         for err in exc.errors():
-            out.setdefault(field_of(err["loc"]), _message(err))
+            out.setdefault(field_of(err["loc"]), field_message(err))
         return out
     field = getattr(exc, "field", None)
     message = getattr(exc, "reason", None) or str(exc)
@@ -255,7 +255,7 @@ def _output_body(form, elements) -> tuple[dict, dict[str, list[int]]]:
         data.update(method="measured", assays=rows)
     elif method == "estimate":
         values = {f: form.get(f"estimate-{f}", "").strip() for f in ESTIMATE_FIELDS}
-        data.update(method="estimated", estimate={f: v if f in ESTIMATE_TEXT else _number(v)
+        data.update(method="estimated", estimate={f: v if f in ESTIMATE_TEXT else number(v)
                                                   for f, v in values.items() if v})
     elif method == "by_difference":
         data["method"] = "by_difference"
@@ -364,8 +364,8 @@ def run_stock_add(ident: int, output_id: int):
     run = _visible_run(ident)
     output = _output_of(run, output_id)
     form = request.form
-    data = {"label": form.get("label", ""), "location_id": _whole(form.get("location_id", "")),
-            "amount": form.get("amount", ""), "substance_id": _whole(form.get("substance_id", ""))}
+    data = {"label": form.get("label", ""), "location_id": whole(form.get("location_id", "")),
+            "amount": form.get("amount", ""), "substance_id": whole(form.get("substance_id", ""))}
     session = get_session()
     try:
         body = schemas.ProductStockIn.model_validate(data)
