@@ -7,6 +7,7 @@ the data that went into the document. Imports neither Flask nor the database.
 
 from __future__ import annotations
 
+import gc
 import hashlib
 import json
 import os
@@ -212,10 +213,15 @@ def _render_for_parent(html_r: int, pdf_w: int) -> None:
     """In the forked child: import WeasyPrint, read the HTML until the parent closes the pipe, answer with the PDF.
 
     Leaves with ``os._exit``: no buffer, handler or atexit hook inherited from the parent runs twice.
+    Collections are paused while WeasyPrint loads; what it loaded is then frozen out of them (``gc.freeze``).
     """
     status = 1
     try:
+        gc.disable()  # the import makes many lasting objects and little garbage: no collection walks them meanwhile
         import weasyprint  # noqa: F401 - the point of the child: the import runs while the parent works
+
+        gc.freeze()  # what the import made stays out of the collections of the rendering
+        gc.enable()
 
         with os.fdopen(html_r, "rb") as pipe:
             html = pipe.read().decode("utf-8")
