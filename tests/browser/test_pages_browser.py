@@ -9,6 +9,10 @@ import re
 import pytest
 from playwright.sync_api import expect
 from pypdf import PdfReader
+from sqlalchemy import select
+
+from service.store.db import session_scope
+from service.store.models import Procedure
 
 from tests.browser.browsing import ACCOUNTS, PASSWORD, PHONE, horizontal_overflow, shot, sign_in
 
@@ -96,3 +100,35 @@ def test_the_sign_in_page_by_keyboard_alone(page, live_server):
     page.keyboard.press("Enter")
     expect(page).to_have_url(live_server.at("/"))
     expect(page.locator("header")).to_contain_text(ACCOUNTS["lab_manager"][0])
+
+
+# Pages with forms, and the role that opens them (the editor: a researcher of the lab).
+FORM_PAGES = {
+    "procedure editor": ("/procedures/new", "researcher"),
+    "review page": ("/review/{submitted}", "safety_officer"),
+    "container": ("/waste/{container}", "safety_officer"),
+    "stocks": ("/stocks", "safety_officer"),
+    "account": ("/account", "researcher"),
+    "audit trail": ("/audit", "auditor"),
+}
+# A control's name from a <label> (HTML "labelable elements" and label.control), aria-label or aria-labelledby:
+# WCAG 2.1 success criterion 4.1.2 (Name, Role, Value) with technique H44 (label elements) and ARIA16.
+UNLABELLED = """() => [...document.querySelectorAll('input, select, textarea')]
+  .filter(el => !['hidden', 'submit', 'button', 'reset', 'image'].includes(el.type))
+  .filter(el => !(el.labels && [...el.labels].some(l => l.textContent.trim()))
+                && !(el.getAttribute('aria-label') || '').trim()
+                && !(el.getAttribute('aria-labelledby') || '').split(/\\s+/).some(id => id && document.getElementById(id)
+                                                                               && document.getElementById(id).textContent.trim()))
+  .map(el => el.outerHTML.slice(0, 160))"""
+
+
+@pytest.mark.parametrize("name", list(FORM_PAGES))
+def test_every_form_control_has_a_label(page, live_server, name):
+    path, role = FORM_PAGES[name]
+    with session_scope(live_server.app.extensions["dotledger.sessions"]) as session:  # the demo's submitted one
+        submitted = session.scalar(select(Procedure.id).where(Procedure.state == "submitted").order_by(Procedure.id))
+    sign_in(page, role)
+    response = page.goto(path.format(submitted=submitted, **live_server.ids))
+    assert response.status == 200, name
+    assert page.locator("input:not([type=hidden]), select, textarea").count() > 0, f"{name} has no form"
+    assert page.evaluate(UNLABELLED) == [], name
