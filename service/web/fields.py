@@ -18,6 +18,7 @@ __all__ = ["whole", "number", "text_or_none", "field_message", "field_name", "va
 
 _INDEXED = re.compile(r"^([a-z_]+)\[(\d+)\]\.([a-z_]+)$")
 
+
 def number(text: str):
     """A number typed in a box; text that is not one goes on, so the schema names the field."""
     text = text.strip()
