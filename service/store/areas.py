@@ -10,9 +10,10 @@ entries into two containers of one area are judged one after the other.
 from __future__ import annotations
 
 import datetime as dt
+from functools import cache
 from typing import Optional
 
-from sqlalchemy import select
+from sqlalchemy import bindparam, select
 from sqlalchemy.orm import Session
 
 from service import vocab
@@ -66,15 +67,22 @@ def list_areas(session: Session, *, lab_ids: Optional[set[int]] = None, limit: O
 
 def containers_in(session: Session, location_id: int, now: dt.datetime) -> list[AreaContainer]:
     """The area's containers not yet collected, in id order, with their running totals (one statement)."""
-    rows = session.execute(
-        select(WasteContainer.label, WasteContainer.form, WasteContainer.acute_hazardous, WasteContainer.first_entry_at,
-               WasteContainerTotals.volume_ul, WasteContainerTotals.mass_ug)
-        .outerjoin(WasteContainerTotals, WasteContainerTotals.container_id == WasteContainer.id)
-        .where(WasteContainer.location_id == location_id, WasteContainer.state.in_(OPEN_STATES))
-        .order_by(WasteContainer.id))
+    session.flush()  # as a query through the session would (autoflush)
+    rows = session.connection().execute(_statements()[1], {"location": location_id})
     return [AreaContainer(label=label, form=form, volume_l=(volume_ul or 0) / 1e6, mass_kg=(mass_ug or 0) / 1e9,
                           acute_hazardous=bool(acute), days_since_first_entry=_days(first, now))
             for label, form, acute, first, volume_ul, mass_ug in rows]
+
+
+@cache
+def _statements():
+    """Built once: the location locked; the area's containers not yet collected with their totals."""
+    return (select(Location).where(Location.id == bindparam("location")).with_for_update(of=Location),
+            select(WasteContainer.label, WasteContainer.form, WasteContainer.acute_hazardous,
+                   WasteContainer.first_entry_at, WasteContainerTotals.volume_ul, WasteContainerTotals.mass_ug)
+            .outerjoin(WasteContainerTotals, WasteContainerTotals.container_id == WasteContainer.id)
+            .where(WasteContainer.location_id == bindparam("location"), WasteContainer.state.in_(OPEN_STATES))
+            .order_by(WasteContainer.id))
 
 
 def _days(since: Optional[dt.datetime], now: dt.datetime) -> Optional[float]:
@@ -112,10 +120,9 @@ def refresh_clock(session: Session, location_id: int, rules: Optional[LayeredRul
     forget(session)
     if rules is None:
         return
-    location = session.scalar(select(Location).where(Location.id == location_id).with_for_update(of=Location))
+    location = session.scalar(_statements()[0], {"location": location_id})
     if not is_area(location):
         return
-    session.flush()  # the container totals the subject reads
     now = utcnow()
     marked = rules.marked("accumulation_area")
     over = any(f.rule_id in marked for f in evaluate(rules, "accumulation_area", _build(session, location, now)))

@@ -11,6 +11,7 @@ from __future__ import annotations
 import datetime as dt
 import math
 from decimal import Decimal
+from functools import cache
 from typing import Any, NamedTuple, Optional
 
 from sqlalchemy import event, func, insert, inspect, or_, select, update
@@ -34,6 +35,8 @@ __all__ = [
     "verify_chain",
     "find_hash",
     "list_events",
+    "created",
+    "record",
 ]
 
 NOT_AUDITED = frozenset({"audit_events", "audit_head", "login_attempts", "stock_elements", "mixture_elements",
@@ -208,14 +211,27 @@ def _after_flush(session: Session, flush_context) -> None:
         _append(session, sorted(changes, key=lambda c: (c.entity, c.key)))
 
 
+def created(table, values: dict[str, Any]) -> _Change:
+    """The event of a row inserted with a Core statement: ``values`` by column name, as the ORM's flush records it."""
+    after = {column.name: values.get(column.name) for column in table.columns}
+    key = tuple(after[column.name] for column in table.primary_key)
+    _, after = redact_secrets(None, json_safe(after))
+    return _Change(table.name, key, "create", None, after)
+
+
+def record(session: Session, changes: list[_Change]) -> None:
+    """Append events for rows written outside the ORM's flush (:func:`created`), in this transaction."""
+    if changes:
+        _append(session, sorted(changes, key=lambda c: (c.entity, c.key)))
+
+
 def _append(session: Session, changes: list[_Change]) -> None:
     actor = session.info.get("actor") or SYSTEM_ACTOR
     user_id, label = actor.get("user_id"), str(actor.get("label") or "system")
-    head, events = AuditHead.__table__, AuditEvent.__table__
+    reading, inserting, moving = _statements()
     connection = session.connection()
     # The lock (SQLite: the immediate transaction) makes concurrent writers queue here.
-    locked = connection.execute(select(head.c.last_event_id, head.c.last_hash).where(head.c.id == 1).with_for_update())
-    row = locked.one_or_none()
+    row = connection.execute(reading).one_or_none()
     if row is None:
         raise RuntimeError("the audit_head row is missing; upgrade the database (dotledger init)")
     last_id, last_hash = row
@@ -229,8 +245,16 @@ def _append(session: Session, changes: list[_Change]) -> None:
                          entity_id=entity_id, action=c.action, before=c.before, after=c.after,
                          prev_hash=last_hash, hash=digest))
         last_hash = digest
-    connection.execute(insert(events), rows)
-    connection.execute(update(head).where(head.c.id == 1).values(last_event_id=last_id, last_hash=last_hash))
+    connection.execute(inserting, rows)
+    connection.execute(moving, {"last_event_id": last_id, "last_hash": last_hash})
+
+
+@cache
+def _statements():
+    """The chain's three statements, built once: read the head (locked), insert events, move the head."""
+    head = AuditHead.__table__
+    return (select(head.c.last_event_id, head.c.last_hash).where(head.c.id == 1).with_for_update(),
+            insert(AuditEvent.__table__), update(head).where(head.c.id == 1))
 
 
 def install(target) -> None:

@@ -24,8 +24,8 @@ from sqlalchemy.engine import Engine
 if TYPE_CHECKING:  # the ORM is imported where sessions are made (a command reading Core tables needs none)
     from sqlalchemy.orm import Session, sessionmaker
 
-__all__ = ["WRITE", "ReadOnlySession", "make_engine", "make_sessionmaker", "new_session", "session_scope", "upgrade",
-           "init_app", "get_session", "end_session"]
+__all__ = ["WRITE", "ReadOnlySession", "refuse_when_reading", "make_engine", "make_sessionmaker", "new_session",
+           "session_scope", "upgrade", "init_app", "get_session", "end_session"]
 
 MIGRATIONS = Path(__file__).with_name("migrations")
 # The execution option that marks a writing session's connections (see the module docstring).
@@ -75,6 +75,12 @@ def make_sessionmaker(engine: Engine) -> sessionmaker[Session]:
     month_totals.install(factory)
     event.listen(factory, "before_flush", _refuse_writes_when_reading)
     return factory
+
+
+def refuse_when_reading(session: Session) -> None:
+    """For a write made outside the ORM's flush: refuse it in a session opened for reading."""
+    if session.info.get(WRITE) is False:
+        raise ReadOnlySession("this session was opened for reading; open it with write=True to change data")
 
 
 def _refuse_writes_when_reading(session: Session, _flush_context, _instances) -> None:

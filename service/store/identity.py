@@ -9,7 +9,7 @@ from dataclasses import dataclass
 from functools import lru_cache
 from typing import Optional
 
-from sqlalchemy import func, select
+from sqlalchemy import bindparam, func, select
 from sqlalchemy.orm import Session, joinedload
 from werkzeug.security import check_password_hash, generate_password_hash
 
@@ -232,7 +232,12 @@ def user_for_token(session: Session, secret: str) -> Optional[User]:
     if not secret.startswith(TOKEN_PREFIX):
         return None
     # One statement: the token's user with its memberships (what the request's lab scope reads).
-    return session.scalars(select(User).join(ApiToken, ApiToken.user_id == User.id)
-                           .where(ApiToken.token_hash == _digest(secret), ApiToken.revoked_at.is_(None),
-                                  User.retired_at.is_(None))
-                           .options(joinedload(User.memberships))).unique().one_or_none()
+    return session.scalars(_token_user(), {"digest": _digest(secret)}).unique().one_or_none()
+
+
+@lru_cache(maxsize=None)
+def _token_user():
+    """The statement of :func:`user_for_token`, built once."""
+    return (select(User).join(ApiToken, ApiToken.user_id == User.id)
+            .where(ApiToken.token_hash == bindparam("digest"), ApiToken.revoked_at.is_(None), User.retired_at.is_(None))
+            .options(joinedload(User.memberships)))

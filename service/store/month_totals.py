@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import datetime as dt
 from collections import defaultdict
+from functools import cache
 from typing import Optional
 
 from sqlalchemy import BigInteger, String, and_, case, cast, delete, event, func, literal_column, or_, select
@@ -44,7 +45,7 @@ from service.store.models import (
     WasteMonthTotal,
 )
 
-__all__ = ["JSON_FLOWS", "month_of", "sql_month", "month_start", "next_month", "install", "recount", "rebuild"]
+__all__ = ["JSON_FLOWS", "month_of", "sql_month", "month_start", "next_month", "install", "recount", "rebuild", "add_waste"]
 
 # The records whose element masses are a JSON mapping: flow name, model, its time, and a filter.
 JSON_FLOWS = ("run_draw", "run_output", "run_loss", "shipment")
@@ -154,16 +155,25 @@ def _insert(connection, waste: dict, flows: dict, *, add: bool) -> None:
         (LedgerMonthTotal.__table__, [{"month": m, "element": e, "flow": f, "mass_ug": ug}
                                       for (m, e, f), ug in sorted(flows.items())]),
     ):
-        if not rows:
-            continue
-        dialect = connection.dialect.name
-        statement = (sqlite.insert if dialect == "sqlite" else postgresql.insert)(table)
-        if add:
-            keys = [column.name for column in table.primary_key.columns]
-            summed = [name for name in rows[0] if name not in keys]
-            statement = statement.on_conflict_do_update(
-                index_elements=keys, set_={name: table.c[name] + statement.excluded[name] for name in summed})
-        connection.execute(statement, rows)
+        if rows:
+            connection.execute(_inserting(connection.dialect.name, table, add), rows)
+
+
+@cache
+def _inserting(dialect: str, table, add: bool):
+    """The INSERT of :func:`_insert`, built once (``add``: an UPSERT adding to the row already there)."""
+    statement = (sqlite.insert if dialect == "sqlite" else postgresql.insert)(table)
+    if add:
+        keys = [column.name for column in table.primary_key.columns]
+        summed = [column.name for column in table.columns if column.name not in keys]
+        statement = statement.on_conflict_do_update(
+            index_elements=keys, set_={name: table.c[name] + statement.excluded[name] for name in summed})
+    return statement
+
+
+def add_waste(connection, waste: dict[tuple[str, int, str], tuple[int, int]]) -> None:
+    """Add rows written outside the ORM's flush: {(month, container id, element): (µg, disposed µg)}."""
+    _insert(connection, waste, {}, add=True)
 
 
 # --- keeping them in each flush --------------------------------------------------------------

@@ -12,10 +12,12 @@ from __future__ import annotations
 import datetime as dt
 from dataclasses import dataclass
 from decimal import ROUND_HALF_EVEN, Decimal
+from functools import cache
 from typing import Callable, Optional
 
-from sqlalchemy import func, select
-from sqlalchemy.orm import Session, joinedload, lazyload
+from sqlalchemy import bindparam, func, insert, select, update
+from sqlalchemy.orm import Session, joinedload, lazyload, make_transient_to_detached
+from sqlalchemy.orm.attributes import set_committed_value
 
 from service import vocab
 from service.chem.formula import parse_formula
@@ -25,7 +27,7 @@ from service.rules.subjects import ContainerComponent, ContainerSubject
 from service.chem.content import round_ug
 from service.schemas import ContainerIn, DeterminationIn, EntryIn
 from service.rules import LayeredRules
-from service.store import areas, runs
+from service.store import areas, audit, db, month_totals, runs
 from service.store.amounts import assay_ug, element_masses_ug, mass_ug, mg_text
 from service.store.inventory import get, reference
 from service.store.paging import Page, paginate
@@ -153,30 +155,116 @@ def solids_weight(volume_ul: int, filterable_solids_percent: Optional[float]) ->
     return int(exact.to_integral_value(ROUND_HALF_EVEN))
 
 
-def _count(container: WasteContainer, entry: WasteEntry) -> None:
-    """Add ``entry`` (an addition or a reversal) to the container's running totals."""
+def _loaded(session: Session, *objects) -> None:
+    """Objects whose rows were just written with Core statements join the session as if read back
+    (every column set; nothing left for a flush to write)."""
+    for obj in objects:
+        for column in type(obj).__table__.columns:  # an unset column would be left expired, to be read back
+            setattr(obj, column.name, getattr(obj, column.name))
+        make_transient_to_detached(obj)
+    session.add_all(objects)
+
+
+def _values(obj) -> dict:
+    return {column.name: getattr(obj, column.name) for column in type(obj).__table__.columns}
+
+
+_UNCHANGED = object()
+
+
+@cache
+def _inserting(table, returning: Optional[str] = None):
+    """An INSERT into ``table`` built once (its columns are the parameters given)."""
+    statement = insert(table)
+    return statement if returning is None else statement.returning(table.c[returning])
+
+
+@cache
+def _updating(table, *keys: str):
+    """An UPDATE of ``table`` built once: the row where each key column equals parameter ``key_<column>``,
+    the columns set are the other parameters given."""
+    return update(table).where(*(table.c[key] == bindparam(f"key_{key}") for key in keys))
+
+
+def _store(session: Session, container: WasteContainer, entry: WasteEntry, *, ph=_UNCHANGED) -> None:
+    """Write ``entry`` (an addition or a reversal) with its rows, add it to the container's running totals
+    and to the monthly totals, and append its audit events: Core statements, outside the ORM's flush.
+
+    ``container`` was read under its lock with its totals (:func:`_lock`), so the new totals are its
+    values plus the entry's. ``ph`` replaces the standing pH (default: the entry's, when it has one).
+    The entry and its rows then belong to the session as read back; the audit events are the ones the
+    flush would have written (:func:`service.store.audit.created`).
+    """
+    db.refuse_when_reading(session)
     if container.totals is None:
         container.totals = _no_totals()
+        session.flush()
+    connection = session.connection()
+    table = WasteEntry.__table__
+    values = _values(entry)
+    del values["id"]
+    entry.id = connection.execute(_inserting(table, returning="id"), values).scalar_one()
+    for row in (*entry.components, *entry.elements):
+        row.entry_id = entry.id
+    if entry.components:
+        connection.execute(_inserting(WasteEntryComponent.__table__), [_values(c) for c in entry.components])
+    if entry.elements:
+        connection.execute(_inserting(WasteEntryElement.__table__), [_values(e) for e in entry.elements])
+
     totals = container.totals
-    totals.entries += 1
-    totals.volume_ul += entry.volume_ul
-    totals.mass_ug += entry.mass_ug
-    totals.solids_percent_ul_e6 += solids_weight(entry.volume_ul, entry.filterable_solids_percent)
-    if entry.ph is not None:
-        totals.ph = entry.ph  # the latest pH; a reversal carries none and :func:`reverse_entry` looks back
-    elements = {row.element: row for row in container.element_totals}
-    for item in entry.elements:
-        if item.element in elements:
-            elements[item.element].mass_ug += item.mass_ug
+    if ph is _UNCHANGED:
+        ph = entry.ph if entry.ph is not None else totals.ph
+    new = {"entries": totals.entries + 1, "volume_ul": totals.volume_ul + entry.volume_ul,
+           "mass_ug": totals.mass_ug + entry.mass_ug, "ph": ph,
+           "solids_percent_ul_e6": totals.solids_percent_ul_e6 + solids_weight(entry.volume_ul,
+                                                                               entry.filterable_solids_percent)}
+    connection.execute(_updating(WasteContainerTotals.__table__, "container_id"), {**new, "key_container_id": container.id})
+    for key, value in new.items():
+        set_committed_value(totals, key, value)
+    _add_rows(session, container, "element_totals", WasteContainerElement, "element", "mass_ug",
+              {e.element: e.mass_ug for e in entry.elements})
+    _add_rows(session, container, "component_totals", WasteContainerComponent, "substance_id", "volume_ul",
+              {c.substance_id: c.volume_ul for c in entry.components})
+
+    month_totals.add_waste(connection, {(month_totals.month_of(entry.at), container.id, e.element): (e.mass_ug, 0)
+                                        for e in entry.elements})
+    audit.record(session, [audit.created(table, _values(entry)),
+                           *(audit.created(WasteEntryComponent.__table__, _values(c)) for c in entry.components),
+                           *(audit.created(WasteEntryElement.__table__, _values(e)) for e in entry.elements)])
+    _loaded(session, *entry.components, *entry.elements, entry)
+
+
+def _add_rows(session: Session, container: WasteContainer, collection: str, model, key: str, amount: str,
+              adding: dict) -> None:
+    """Add ``adding`` ({key: amount}) to one of the container's running-total collections (Core statements)."""
+    if not adding:
+        return
+    table = model.__table__
+    rows = {getattr(row, key): row for row in getattr(container, collection)}
+    fresh = []
+    for ident, value in adding.items():
+        row = rows.get(ident)
+        if row is None:
+            row = model(container_id=container.id, **{key: ident, amount: value})
+            session.connection().execute(_inserting(table), _values(row))
+            fresh.append(row)
         else:
-            container.element_totals.append(WasteContainerElement(element=item.element, mass_ug=item.mass_ug))
-    components = {row.substance_id: row for row in container.component_totals}
-    for part in entry.components:
-        if part.substance_id in components:
-            components[part.substance_id].volume_ul += part.volume_ul
-        else:
-            container.component_totals.append(WasteContainerComponent(substance_id=part.substance_id,
-                                                                      volume_ul=part.volume_ul))
+            total = getattr(row, amount) + value
+            session.connection().execute(_updating(table, "container_id", key),
+                                         {amount: total, "key_container_id": container.id, f"key_{key}": ident})
+            set_committed_value(row, amount, total)
+    if fresh:
+        _loaded(session, *fresh)
+        set_committed_value(container, collection, [*rows.values(), *fresh])
+
+
+@cache
+def _locked_read():
+    """The read of :func:`_lock`, built once."""
+    return (select(WasteContainer).where(WasteContainer.id == bindparam("container"))
+            .options(joinedload(WasteContainer.totals), joinedload(WasteContainer.element_totals),
+                     joinedload(WasteContainer.component_totals), lazyload(WasteContainer.determinations))
+            .execution_options(populate_existing=True))
 
 
 def _lock(session: Session, container_id: int) -> WasteContainer:
@@ -192,11 +280,7 @@ def _lock(session: Session, container_id: int) -> WasteContainer:
         if session.scalar(select(WasteContainer.id).where(WasteContainer.id == container_id)
                           .with_for_update(of=WasteContainer)) is None:
             get(session, WasteContainer, container_id)  # raises NotFound
-    found = session.scalars(
-        select(WasteContainer).where(WasteContainer.id == container_id)
-        .options(joinedload(WasteContainer.totals), joinedload(WasteContainer.element_totals),
-                 joinedload(WasteContainer.component_totals), lazyload(WasteContainer.determinations))
-        .execution_options(populate_existing=True)).unique().one_or_none()
+    found = session.scalars(_locked_read(), {"container": container_id}).unique().one_or_none()
     return found if found is not None else get(session, WasteContainer, container_id)  # get raises NotFound
 
 
@@ -301,8 +385,7 @@ def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Opti
                        volume_ul=micro if liquid else 0, mass_ug=0 if liquid else micro,
                        filterable_solids_percent=body.filterable_solids_percent, ph=body.ph,
                        components=list(judged.components), elements=list(judged.elements), at=utcnow())
-    session.add(entry)
-    _count(container, entry)
+    _store(session, container, entry)
     if container.first_entry_at is None:
         container.first_entry_at = entry.at
     if micro >= judged.room_micro and container.full_at is None:
@@ -334,22 +417,21 @@ def reverse_entry(session: Session, container_id: int, entry_id: int, reason: st
                        elements=[WasteEntryElement(element=e.element, mass_ug=-e.mass_ug,
                                                    basis={"kind": "reversal", "entry_id": entry_id})
                                  for e in original.elements])
-    session.add(entry)
-    _count(container, entry)
-    if original.ph is not None:
-        container.totals.ph = _standing_ph(session, container.id)
+    _store(session, container, entry,
+           **({"ph": _standing_ph(session, container.id, reversing=entry_id)} if original.ph is not None else {}))
     session.flush()
     areas.refresh_clock(session, container.location_id, rules)
     return entry
 
 
-def _standing_ph(session: Session, container_id: int) -> Optional[float]:
-    """The pH last recorded in the container on an entry that is neither a reversal nor reversed."""
+def _standing_ph(session: Session, container_id: int, reversing: int) -> Optional[float]:
+    """The pH last recorded in the container on an entry that is neither a reversal nor reversed
+    (``reversing``: the entry about to be reversed)."""
     reversed_ids = select(WasteEntry.reverses_entry_id).where(WasteEntry.container_id == container_id,
                                                               WasteEntry.reverses_entry_id.is_not(None))
     return session.scalar(select(WasteEntry.ph).where(
         WasteEntry.container_id == container_id, WasteEntry.ph.is_not(None), WasteEntry.reverses_entry_id.is_(None),
-        WasteEntry.id.not_in(reversed_ids)).order_by(WasteEntry.id.desc()).limit(1))
+        WasteEntry.id != reversing, WasteEntry.id.not_in(reversed_ids)).order_by(WasteEntry.id.desc()).limit(1))
 
 
 def determine(session: Session, container_id: int, body: DeterminationIn, actor_id: int) -> WasteDetermination:
