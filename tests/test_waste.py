@@ -113,6 +113,9 @@ def test_states_and_entries(site):
         ({"description": "x", "volume": "1 L", "elements": [{"element": "Cd", "mass": "1 mL"}]}, "elements.0.mass"),
         ({"description": "x", "volume": "1 L", "components": [{"substance_id": 1, "volume": "2 L"}]}, "components"),
         ({"description": "x", "volume": "0 L"}, "volume"),
+        ({"description": "x", "volume": "1 L", "components": [{"substance_id": 1, "volume": "2 mL"},
+                                                              {"substance_id": 1, "volume": "3 mL"}]},
+         "components[1].substance_id"),  # one substance given twice: refused naming the second, not a 409
     ],
 )
 def test_bad_entries(site, body, field):

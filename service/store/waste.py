@@ -334,6 +334,9 @@ def _judge(session: Session, container: WasteContainer, body: EntryIn,
         raise QuantityError(body.volume or body.mass or "", "must be above zero", "volume" if liquid else "mass")
     components = []
     for i, comp in enumerate(body.components):
+        if any(c.substance_id == comp.substance_id for c in components):
+            raise InvalidInput(f"components[{i}].substance_id", f"substance {comp.substance_id} is given twice; "
+                               "give its volume once")
         substance = reference(session, Substance, comp.substance_id, f"components[{i}].substance_id", active=False)
         ul = int(to_decimal(parse_quantity(comp.volume, expect="volume", field=f"components[{i}].volume"),
                             "uL").to_integral_value())
