@@ -127,3 +127,34 @@ def test_a_read_answers_while_a_long_report_runs(sqlite_url, rules_dir):
         assert read_seconds < 0.5 * report["seconds"], (read_seconds, report["seconds"])
     finally:
         engine.dispose()
+
+
+def test_statements_sent_together_take_effect_and_a_failure_is_sqlalchemys_own(database_url):
+    """``sent_together``: on PostgreSQL psycopg's pipeline mode (psycopg.org/psycopg3/docs/advanced/pipeline.html),
+    elsewhere one by one; the rows are written either way, and a unique violation inside is an IntegrityError
+    of SQLAlchemy (what the API's error handler answers 409 to), raised by the end of the block."""
+    from sqlalchemy import select
+    from sqlalchemy.exc import IntegrityError
+
+    from service.store.db import sent_together
+
+    upgrade(database_url)
+    engine = make_engine(database_url)
+    table = Lab.__table__
+    now = dt.datetime(2026, 1, 1, tzinfo=dt.timezone.utc)
+    row = {"name": "Pipeline lab", "created_at": now, "updated_at": now}
+    try:
+        with engine.begin() as connection:
+            with sent_together(connection):
+                # keys given: an INSERT whose key the database makes reads it back (RETURNING on PostgreSQL)
+                connection.execute(insert(table), {**row, "id": 901, "code": "P-1"})
+                connection.execute(insert(table), [{**row, "id": 902, "code": "P-2"}, {**row, "id": 903, "code": "P-3"}])
+            assert connection.execute(select(table.c.code).order_by(table.c.code)).scalars().all() == ["P-1", "P-2", "P-3"]
+        with pytest.raises(IntegrityError), engine.begin() as connection:
+            with sent_together(connection):
+                connection.execute(insert(table), {**row, "id": 904, "code": "P-4"})
+                connection.execute(insert(table), {**row, "id": 905, "code": "P-1"})  # lab codes are unique
+        with engine.connect() as connection:  # the failed transaction left nothing
+            assert connection.execute(select(table.c.code).order_by(table.c.code)).scalars().all() == ["P-1", "P-2", "P-3"]
+    finally:
+        engine.dispose()

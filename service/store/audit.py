@@ -17,7 +17,7 @@ from typing import Any, NamedTuple, Optional
 from sqlalchemy import event, func, insert, inspect, or_, select, update
 from sqlalchemy.orm import Session
 
-from service.store import audit_chain
+from service.store import audit_chain, db
 from service.store.audit_chain import GENESIS, ChainReport, event_digest, find_hash, verify_chain  # noqa: F401
 from service.store.models import Base, utcnow
 from service.store.paging import Page, paginate
@@ -245,8 +245,9 @@ def _append(session: Session, changes: list[_Change]) -> None:
                          entity_id=entity_id, action=c.action, before=c.before, after=c.after,
                          prev_hash=last_hash, hash=digest))
         last_hash = digest
-    connection.execute(inserting, rows)
-    connection.execute(moving, {"last_event_id": last_id, "last_hash": last_hash})
+    with db.sent_together(connection):  # one round trip on PostgreSQL
+        connection.execute(inserting, rows)
+        connection.execute(moving, {"last_event_id": last_id, "last_hash": last_hash})
 
 
 @cache

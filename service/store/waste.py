@@ -206,6 +206,17 @@ def _store(session: Session, container: WasteContainer, entry: WasteEntry, *, ph
     entry.id = connection.execute(_inserting(table, returning="id"), values).scalar_one()
     for row in (*entry.components, *entry.elements):
         row.entry_id = entry.id
+    with db.sent_together(connection):  # nothing below reads a result: one round trip on PostgreSQL
+        _add(session, container, entry, ph)
+    audit.record(session, [audit.created(table, _values(entry)),
+                           *(audit.created(WasteEntryComponent.__table__, _values(c)) for c in entry.components),
+                           *(audit.created(WasteEntryElement.__table__, _values(e)) for e in entry.elements)])
+    _loaded(session, *entry.components, *entry.elements, entry)
+
+
+def _add(session: Session, container: WasteContainer, entry: WasteEntry, ph) -> None:
+    """The entry's rows, the container's running totals and the monthly totals (:func:`_store`)."""
+    connection = session.connection()
     if entry.components:
         connection.execute(_inserting(WasteEntryComponent.__table__), [_values(c) for c in entry.components])
     if entry.elements:
@@ -228,10 +239,6 @@ def _store(session: Session, container: WasteContainer, entry: WasteEntry, *, ph
 
     month_totals.add_waste(connection, {(month_totals.month_of(entry.at), container.id, e.element): (e.mass_ug, 0)
                                         for e in entry.elements})
-    audit.record(session, [audit.created(table, _values(entry)),
-                           *(audit.created(WasteEntryComponent.__table__, _values(c)) for c in entry.components),
-                           *(audit.created(WasteEntryElement.__table__, _values(e)) for e in entry.elements)])
-    _loaded(session, *entry.components, *entry.elements, entry)
 
 
 def _add_rows(session: Session, container: WasteContainer, collection: str, model, key: str, amount: str,
