@@ -13,6 +13,8 @@ itself, so the limit is exceeded only above it.
 from __future__ import annotations
 
 import datetime as dt
+import json
+import urllib.request
 from decimal import Decimal
 from pathlib import Path
 
@@ -24,7 +26,7 @@ from service.rules.evaluate import evaluate
 from service.rules.subjects import AreaContainer, AreaSubject
 from service.store.db import session_scope
 from service.store.models import Location
-from tests.conftest import Api, make_user
+from tests.conftest import Api, make_user, threads_against_server
 
 RULES = Path(__file__).resolve().parents[1] / "rules"
 GALLON_L = Decimal("3.785411784")  # NIST HB 44 App. C
@@ -143,7 +145,7 @@ def area(app, client):
     ids = [admin.call("POST", "/waste_containers", {"label": label, "lab_id": lab, "location_id": saa, "capacity": "200 L",
                                                     "stream": "aqueous_heavy_metals"}, 201)["id"]
            for label in ("A-W1", "A-W2")]
-    return {"admin": admin, "saa": saa, "containers": ids, "app": app}
+    return {"admin": admin, "saa": saa, "containers": ids, "app": app, "lab": lab}
 
 
 def _add(area, container_id, volume):
@@ -210,3 +212,41 @@ def test_only_accumulation_areas_are_listed(area):
     if other is not None:
         admin.call("GET", f"/accumulation_areas/{other}", expect=404)
     admin.call("GET", "/accumulation_areas/999999", expect=404)
+
+
+def _post(port: int, path: str, body: dict, token: str) -> dict:
+    request = urllib.request.Request(f"http://127.0.0.1:{port}/api/v1{path}", data=json.dumps(body).encode(),
+                                     method="POST", headers={"Content-Type": "application/json",
+                                                             "Authorization": f"Bearer {token}"})
+    with urllib.request.urlopen(request, timeout=60) as response:
+        return json.loads(response.read())
+
+
+def test_concurrent_crossings_leave_the_clock_as_the_area_stands(area):
+    """8 threads over HTTP, each 6 times: 60 L into a second container of an area holding 150 L (over the
+    55 gallons = 208.2 L of 40 CFR 262.15(a)), then that entry reversed (under again unless another thread's
+    entry still stands). Changes to one area are judged one after the other, so after each step the clock
+    is as the area stood at that step's commit: at the end, everything reversed, it is cleared; one more
+    crossing entry starts it."""
+    admin, app = area["admin"], area["app"]
+    base, other = (admin.call("POST", "/waste_containers", {"label": label, "lab_id": area["lab"], "location_id": area["saa"],
+                                                           "capacity": "1000 L", "stream": "aqueous_heavy_metals"},
+                              201)["id"] for label in ("A-C1", "A-C2"))
+    _add(area, base, "150 L")
+    failures = []
+
+    def worker(port: int, n: int) -> None:
+        for i in range(6):
+            try:
+                added = _post(port, f"/waste_containers/{other}/entries",
+                              {"description": f"thread {n} rinse {i}", "volume": "60 L"}, admin.token)
+                _post(port, f"/waste_containers/{other}/entries/{added['id']}/reverse", {"reason": "wrong container"},
+                      admin.token)
+            except Exception as exc:  # noqa: BLE001 - collected and asserted below
+                failures.append(repr(exc))
+
+    threads_against_server(app, worker, 8)
+    assert failures == []
+    assert _since(area) is None
+    _add(area, other, "60 L")
+    assert _since(area) is not None

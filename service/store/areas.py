@@ -3,8 +3,8 @@
 An area's limits apply to the sum of its containers not yet collected. ``over_limit_since`` on the
 location is set in the transaction of the entry that took the area over a limit (a rule of scope
 ``accumulation_area`` that ``marks: area_over_limit`` fires) and cleared in the transaction of the
-reversal or collection that brought it back under; the location row is locked first, so two
-entries into two containers of one area are judged one after the other.
+reversal or collection that brought it back under; two entries into two containers of one area are
+judged one after the other (:func:`refresh_clock`).
 """
 
 from __future__ import annotations
@@ -13,13 +13,14 @@ import datetime as dt
 from functools import cache
 from typing import Optional
 
-from sqlalchemy import bindparam, select
+from sqlalchemy import and_, bindparam, select
 from sqlalchemy.orm import Session
 
 from service import vocab
 from service.errors import NotFound
 from service.rules import LayeredRules, evaluate
 from service.rules.subjects import AreaContainer, AreaSubject
+from service.store import audit
 from service.store.models import Location, WasteContainer, WasteContainerTotals, utcnow
 from service.store.paging import Page, paginate
 
@@ -44,7 +45,8 @@ def location_of(session: Session, location_id: int) -> Optional[Location]:
     return held[location_id]
 
 
-def label_of(location: Location) -> str:
+def label_of(location) -> str:
+    """"building / room / storage" of a Location (or a row with those columns)."""
     return f"{location.building} / {location.room} / {location.storage}"
 
 
@@ -68,21 +70,33 @@ def list_areas(session: Session, *, lab_ids: Optional[set[int]] = None, limit: O
 def containers_in(session: Session, location_id: int, now: dt.datetime) -> list[AreaContainer]:
     """The area's containers not yet collected, in id order, with their running totals (one statement)."""
     session.flush()  # as a query through the session would (autoflush)
-    rows = session.connection().execute(_statements()[1], {"location": location_id})
+    return _containers(session.connection().execute(_statements()[0], {"location": location_id}), now)
+
+
+def _containers(rows, now: dt.datetime) -> list[AreaContainer]:
     return [AreaContainer(label=label, form=form, volume_l=(volume_ul or 0) / 1e6, mass_kg=(mass_ug or 0) / 1e9,
                           acute_hazardous=bool(acute), days_since_first_entry=_days(first, now))
-            for label, form, acute, first, volume_ul, mass_ug in rows]
+            for label, form, acute, first, volume_ul, mass_ug in rows if label is not None]
+
+
+_CONTAINER_COLUMNS = (WasteContainer.label, WasteContainer.form, WasteContainer.acute_hazardous,
+                      WasteContainer.first_entry_at, WasteContainerTotals.volume_ul, WasteContainerTotals.mass_ug)
 
 
 @cache
 def _statements():
-    """Built once: the location locked; the area's containers not yet collected with their totals."""
-    return (select(Location).where(Location.id == bindparam("location")).with_for_update(of=Location),
-            select(WasteContainer.label, WasteContainer.form, WasteContainer.acute_hazardous,
-                   WasteContainer.first_entry_at, WasteContainerTotals.volume_ul, WasteContainerTotals.mass_ug)
+    """Built once: the area's containers not yet collected with their totals; the same with the location's
+    own columns first (one row per container, one row with no container for an empty area)."""
+    open_in = and_(WasteContainer.location_id == Location.id, WasteContainer.state.in_(OPEN_STATES))
+    return (select(*_CONTAINER_COLUMNS)
             .outerjoin(WasteContainerTotals, WasteContainerTotals.container_id == WasteContainer.id)
             .where(WasteContainer.location_id == bindparam("location"), WasteContainer.state.in_(OPEN_STATES))
-            .order_by(WasteContainer.id))
+            .order_by(WasteContainer.id),
+            select(Location.kind, Location.over_limit_since, Location.building, Location.room, Location.storage,
+                   *_CONTAINER_COLUMNS)
+            .select_from(Location).outerjoin(WasteContainer, open_in)
+            .outerjoin(WasteContainerTotals, WasteContainerTotals.container_id == WasteContainer.id)
+            .where(Location.id == bindparam("location")).order_by(WasteContainer.id))
 
 
 def _days(since: Optional[dt.datetime], now: dt.datetime) -> Optional[float]:
@@ -90,9 +104,13 @@ def _days(since: Optional[dt.datetime], now: dt.datetime) -> Optional[float]:
 
 
 def _build(session: Session, location: Location, now: dt.datetime) -> AreaSubject:
-    since = location.over_limit_since
-    days = None if since is None else (now.date() - since.astimezone(dt.timezone.utc).date()).days
-    return AreaSubject(label_of(location), location.kind, tuple(containers_in(session, location.id, now)), days)
+    return AreaSubject(label_of(location), location.kind, tuple(containers_in(session, location.id, now)),
+                       _days_over(location.over_limit_since, now))
+
+
+def _days_over(since: Optional[dt.datetime], now: dt.datetime) -> Optional[int]:
+    """Whole calendar days (UTC) since the area went over its limit; None while it is not."""
+    return None if since is None else (now.date() - since.astimezone(dt.timezone.utc).date()).days
 
 
 def subject_of(session: Session, location: Location, now: Optional[dt.datetime] = None) -> AreaSubject:
@@ -114,20 +132,27 @@ def forget(session: Session) -> None:
 def refresh_clock(session: Session, location_id: int, rules: Optional[LayeredRules]) -> None:
     """Set or clear the area's ``over_limit_since`` after a change to its containers (in the same transaction).
 
-    Locks the location row; the area is over its limit when a rule marking ``area_over_limit``
-    fires on its present sums. Without ``rules`` (a caller that judges nothing) the clock is left alone.
+    The area is over its limit when a rule marking ``area_over_limit`` fires on its present sums.
+    Without ``rules`` (a caller that judges nothing) the clock is left alone. Two changes to one area
+    are judged one after the other: the audit chain's head row is locked from this transaction's first
+    recorded change to its commit (:func:`service.store.audit.hold_head`), and every change to a container
+    or location is recorded, so the sums read here stay as read until this transaction commits.
     """
     forget(session)
     if rules is None:
         return
-    location = session.scalar(_statements()[0], {"location": location_id})
-    if not is_area(location):
+    session.flush()  # this transaction's own changes, and with them the chain's head
+    audit.hold_head(session)
+    rows = session.connection().execute(_statements()[1], {"location": location_id}).all()
+    if not rows or rows[0][0] not in AREA_KINDS:
         return
+    kind, since = rows[0][:2]
     now = utcnow()
+    subject = AreaSubject(label_of(rows[0]), kind, tuple(_containers((r[5:] for r in rows), now)),
+                          _days_over(since, now))
     marked = rules.marked("accumulation_area")
-    over = any(f.rule_id in marked for f in evaluate(rules, "accumulation_area", _build(session, location, now)))
-    if over and location.over_limit_since is None:
-        location.over_limit_since = now
-    elif not over and location.over_limit_since is not None:
-        location.over_limit_since = None
+    over = any(f.rule_id in marked for f in evaluate(rules, "accumulation_area", subject))
+    if over != (since is not None):
+        session.get(Location, location_id).over_limit_since = now if over else None
+        session.flush()
     forget(session)

@@ -37,6 +37,7 @@ __all__ = [
     "list_events",
     "created",
     "record",
+    "hold_head",
 ]
 
 NOT_AUDITED = frozenset({"audit_events", "audit_head", "login_attempts", "stock_elements", "mixture_elements",
@@ -48,6 +49,7 @@ SECRETS = {"password_hash": "password_changed", "token_hash": "token_changed"}
 BOOKKEEPING = frozenset({"updated_at", "last_used_at"})
 SYSTEM_ACTOR = {"user_id": None, "label": "system"}
 _PENDING = "dotledger.audit.pending"
+_HEAD = "dotledger.audit.head"  # the transaction holding the head row locked
 _INSTALLED = "_dotledger_audit_installed"
 
 
@@ -234,6 +236,7 @@ def _append(session: Session, changes: list[_Change]) -> None:
     row = connection.execute(reading).one_or_none()
     if row is None:
         raise RuntimeError("the audit_head row is missing; upgrade the database (dotledger init)")
+    session.info[_HEAD] = session.get_transaction()
     last_id, last_hash = row
     at = utcnow()  # taken under the lock, so chain order is also time order
     rows = []
@@ -248,6 +251,17 @@ def _append(session: Session, changes: list[_Change]) -> None:
     with db.sent_together(connection):  # one round trip on PostgreSQL
         connection.execute(inserting, rows)
         connection.execute(moving, {"last_event_id": last_id, "last_hash": last_hash})
+
+
+def hold_head(session: Session) -> None:
+    """Hold the chain's head row locked to the end of this transaction (at once when a change of this
+    transaction was recorded already: recording takes it). Every change to the ledger is recorded, so a
+    transaction holding it sees no other change commit until it has committed itself."""
+    if session.info.get(_HEAD) is session.get_transaction():
+        return
+    if session.connection().execute(_statements()[0]).one_or_none() is None:
+        raise RuntimeError("the audit_head row is missing; upgrade the database (dotledger init)")
+    session.info[_HEAD] = session.get_transaction()
 
 
 @cache
