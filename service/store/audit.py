@@ -12,7 +12,7 @@ import datetime as dt
 import math
 from decimal import Decimal
 from functools import cache
-from typing import Any, NamedTuple, Optional
+from typing import Any, Callable, NamedTuple, Optional
 
 from sqlalchemy import event, func, insert, inspect, or_, select, update
 from sqlalchemy.orm import Session
@@ -221,13 +221,16 @@ def created(table, values: dict[str, Any]) -> _Change:
     return _Change(table.name, key, "create", None, after)
 
 
-def record(session: Session, changes: list[_Change]) -> None:
-    """Append events for rows written outside the ORM's flush (:func:`created`), in this transaction."""
+def record(session: Session, changes: list[_Change], *, with_writes: Optional[Callable[[], None]] = None) -> None:
+    """Append events for rows written outside the ORM's flush (:func:`created`), in this transaction.
+
+    ``with_writes`` runs once the chain's head is locked, its statements sent with the events' (one round
+    trip on PostgreSQL, :func:`service.store.db.sent_together`): writes whose results are not read."""
     if changes:
-        _append(session, sorted(changes, key=lambda c: (c.entity, c.key)))
+        _append(session, sorted(changes, key=lambda c: (c.entity, c.key)), with_writes)
 
 
-def _append(session: Session, changes: list[_Change]) -> None:
+def _append(session: Session, changes: list[_Change], with_writes: Optional[Callable[[], None]] = None) -> None:
     actor = session.info.get("actor") or SYSTEM_ACTOR
     user_id, label = actor.get("user_id"), str(actor.get("label") or "system")
     reading, inserting, moving = _statements()
@@ -249,6 +252,8 @@ def _append(session: Session, changes: list[_Change]) -> None:
                          prev_hash=last_hash, hash=digest))
         last_hash = digest
     with db.sent_together(connection):  # one round trip on PostgreSQL
+        if with_writes is not None:
+            with_writes()
         connection.execute(inserting, rows)
         connection.execute(moving, {"last_event_id": last_id, "last_hash": last_hash})
 

@@ -160,7 +160,8 @@ def _loaded(session: Session, *objects) -> None:
     (every column set; nothing left for a flush to write)."""
     for obj in objects:
         for column in type(obj).__table__.columns:  # an unset column would be left expired, to be read back
-            setattr(obj, column.name, getattr(obj, column.name))
+            if column.name not in obj.__dict__:
+                setattr(obj, column.name, None)
         make_transient_to_detached(obj)
     session.add_all(objects)
 
@@ -206,11 +207,11 @@ def _store(session: Session, container: WasteContainer, entry: WasteEntry, *, ph
     entry.id = connection.execute(_inserting(table, returning="id"), values).scalar_one()
     for row in (*entry.components, *entry.elements):
         row.entry_id = entry.id
-    with db.sent_together(connection):  # nothing below reads a result: one round trip on PostgreSQL
-        _add(session, container, entry, ph)
+    # the rows and totals go with the events, once the chain's head is locked (one round trip on PostgreSQL)
     audit.record(session, [audit.created(table, _values(entry)),
                            *(audit.created(WasteEntryComponent.__table__, _values(c)) for c in entry.components),
-                           *(audit.created(WasteEntryElement.__table__, _values(e)) for e in entry.elements)])
+                           *(audit.created(WasteEntryElement.__table__, _values(e)) for e in entry.elements)],
+                 with_writes=lambda: _add(session, container, entry, ph))
     _loaded(session, *entry.components, *entry.elements, entry)
 
 
