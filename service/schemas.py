@@ -15,7 +15,7 @@ from pydantic import (AfterValidator, BaseModel, BeforeValidator, ConfigDict, Fi
 from service import vocab
 from service.balance.site import FIGURES
 from service.chem.substances import Substance as CatalogueSubstance
-from service.chem.units import LIMITS, MAX_AMOUNT_CHARS, parse_amount
+from service.chem.units import LIMITS, MAX_AMOUNT_CHARS, check_amount
 from service.datafiles import load_data_file
 from service.resources import RULES_DIR
 
@@ -134,7 +134,7 @@ def _amount(*kinds: str, example: str):
     through the one bound check (:func:`service.chem.units.parse_amount`)."""
 
     def check(text: str) -> str:
-        parse_amount(text, expect=kinds)
+        check_amount(text, expect=kinds)
         return text
 
     bounds = "; ".join(f"{k} at most {LIMITS[k][0]}" + (f", and 0 or at least 1 {LIMITS[k][1].replace('u', 'µ')}"

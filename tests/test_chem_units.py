@@ -6,7 +6,7 @@ from decimal import Decimal
 
 import pytest
 
-from service.chem.units import MissingDensityError, QuantityError, kind_of, mass_g, parse_quantity
+from service.chem.units import MissingDensityError, QuantityError, check_amount, kind_of, mass_g, parse_quantity, whole_micro
 
 
 @pytest.mark.parametrize(
@@ -60,3 +60,31 @@ def test_volume_needs_a_density_and_names_the_substance():
 def test_volume_to_mass_with_density():
     # Acetone 0.786 g/mL (NAS, Chemical Laboratory Safety and Security, 2016, App. D): 100 mL -> 78.6 g.
     assert mass_g(parse_quantity("100 mL"), density_g_per_ml=0.786, substance="acetone") == Decimal("78.6")
+
+
+@pytest.mark.parametrize(
+    "text, unit, expect, whole",
+    # SI prefixes (BIPM SI Brochure, 9th ed.): 1 mL = 1000 µL, 1 g = 10^6 µg, 1 gal (US) = 3.785411784 L
+    # (NIST HB 44); a half µg is rounded to the even neighbour (Python's decimal default, IEEE 754's).
+    [
+        ("0.5 mL", "uL", "volume", 500),
+        ("1 gal", "uL", "volume", 3_785_412),
+        ("0.01 mg", "ug", "mass", 10),
+        ("2.5 ug", "ug", "mass", 2),
+        ("3.5 ug", "ug", "mass", 4),
+        ("1.25 kg", "ug", "mass", 1_250_000_000),
+    ],
+)
+def test_whole_micro_is_the_parsed_amount_in_whole_units(text, unit, expect, whole):
+    assert whole_micro(text, unit, expect=expect) == whole
+    assert whole_micro(text, unit, expect=expect) == whole  # remembered: the same answer again
+
+
+def test_a_refused_amount_is_refused_every_time_naming_the_field():
+    for _ in range(2):  # refusals are not remembered
+        with pytest.raises(QuantityError) as refused:
+            whole_micro("5 mg", "uL", expect="volume", field="components[1].volume")
+        assert refused.value.field == "components[1].volume" and "expected a volume" in str(refused.value)
+        with pytest.raises(QuantityError):
+            check_amount("1e30 g", expect=("mass",))  # beyond the 1000 kg bound
+    check_amount("250 mg", expect=("mass",))

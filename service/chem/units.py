@@ -22,6 +22,8 @@ __all__ = [
     "ureg",
     "unit_registry",
     "parse_quantity",
+    "whole_micro",
+    "check_amount",
     "kind_of",
     "mass_g",
     "to_decimal",
@@ -220,6 +222,20 @@ def parse_amount(text: str, *, expect: str | tuple[str, ...], field: Optional[st
     return check_bounds(parse_quantity(text, expect=expect, field=field), text=(text or "").strip(), field=field)
 
 
+def check_amount(text: str, *, expect: tuple[str, ...]) -> None:
+    """:func:`parse_amount` for its refusal alone (what a schema type checks): an accepted text is
+    remembered once per process, a refused one is refused every time."""
+    if isinstance(text, str):
+        _accepted(text, tuple(expect))
+    else:
+        parse_amount(text, expect=expect)
+
+
+@functools.lru_cache(maxsize=4096)
+def _accepted(text: str, expect: tuple[str, ...]) -> None:
+    parse_amount(text, expect=expect)
+
+
 def kind_of(quantity) -> Optional[str]:
     """The kind name (mass, volume, …) of a pint quantity, or None."""
     dims = quantity.dimensionality
@@ -243,6 +259,28 @@ def magnitude_in(quantity, unit) -> float:
 def to_decimal(quantity, unit: str) -> Decimal:
     """The magnitude of ``quantity`` in ``unit`` as a Decimal (via its shortest repr)."""
     return Decimal(repr(float(magnitude_in(quantity, unit))))
+
+
+def whole_micro(text: str, unit: str, *, expect: str, field: Optional[str] = None) -> int:
+    """``text`` as a whole number of ``unit`` (``uL`` or ``ug``, the units amounts are kept in), rounded half
+    to even: ``int(to_decimal(parse_quantity(text, expect=expect), unit).to_integral_value())``, worked out
+    once per process for each distinct text. An error names ``field`` as :func:`parse_quantity` does.
+
+    >>> whole_micro("0.5 mL", "uL", expect="volume"), whole_micro("2.5 ug", "ug", expect="mass")
+    (500, 2)
+    """
+    if not isinstance(text, str):
+        parse_quantity(text, expect=expect, field=field)  # raises: an amount is a text
+    try:
+        return _whole_micro(text, unit, expect)
+    except QuantityError:
+        parse_quantity(text, expect=expect, field=field)  # the same refusal, naming the field
+        raise
+
+
+@functools.lru_cache(maxsize=4096)
+def _whole_micro(text: str, unit: str, expect: str) -> int:
+    return int(to_decimal(parse_quantity(text, expect=expect), unit).to_integral_value())
 
 
 def mass_g(quantity, *, density_g_per_ml: Optional[float], substance: str, field: Optional[str] = None) -> Decimal:

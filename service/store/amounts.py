@@ -16,7 +16,7 @@ from __future__ import annotations
 from decimal import Decimal
 
 from service.chem.content import round_ug
-from service.chem.units import check_bounds, parse_quantity, to_decimal, ureg
+from service.chem.units import check_bounds, parse_quantity, to_decimal, ureg, whole_micro
 from service.errors import InvalidInput
 from service.schemas import AssayIn, ElementAmountIn
 
@@ -25,7 +25,7 @@ __all__ = ["mass_ug", "assay_ug", "element_masses_ug", "assay_masses_ug", "mg_te
 
 def mass_ug(row: ElementAmountIn, field: str) -> int:
     """The mass of one element row in whole µg (``field`` names it in an error)."""
-    return int(to_decimal(parse_quantity(row.mass, expect="mass", field=f"{field}.mass"), "ug").to_integral_value())
+    return whole_micro(row.mass, "ug", expect="mass", field=f"{field}.mass")
 
 
 def assay_ug(assay: AssayIn, field: str = "assay") -> int:

@@ -21,7 +21,7 @@ from sqlalchemy.orm.attributes import set_committed_value
 
 from service import vocab
 from service.chem.formula import parse_formula
-from service.chem.units import QuantityError, parse_quantity, to_decimal
+from service.chem.units import QuantityError, whole_micro
 from service.errors import Conflict, InvalidInput
 from service.rules.subjects import ContainerComponent, ContainerSubject
 from service.chem.content import round_ug
@@ -99,8 +99,8 @@ def _entry_elements(session: Session, body: EntryIn, run: Optional[Run],
 
 def create_container(session: Session, body: ContainerIn) -> WasteContainer:
     form = "solid" if body.stream in SOLID_STREAMS else "liquid"
-    quantity = parse_quantity(body.capacity, expect="mass" if form == "solid" else "volume", field="capacity")
-    micro = int(to_decimal(quantity, "ug" if form == "solid" else "uL").to_integral_value())
+    micro = whole_micro(body.capacity, "ug" if form == "solid" else "uL", expect="mass" if form == "solid" else "volume",
+                        field="capacity")
     if micro <= 0:
         raise InvalidInput("capacity", "must be above zero")
     reference(session, Location, body.location_id, "location_id", lab_id=body.lab_id)
@@ -335,9 +335,8 @@ def _judge(session: Session, container: WasteContainer, body: EntryIn,
         run = reference(session, Run, body.run_id, "run_id", lab_id=container.lab_id, lock=True)
         if run.state != "open":
             raise Conflict(f"run {run.id} is closed; record a clean-up entry without run_id instead", "run_id")
-    amount = parse_quantity(body.volume if liquid else body.mass, expect="volume" if liquid else "mass",
-                            field="volume" if liquid else "mass")
-    micro = int(to_decimal(amount, "uL" if liquid else "ug").to_integral_value())
+    micro = whole_micro(body.volume if liquid else body.mass, "uL" if liquid else "ug",
+                        expect="volume" if liquid else "mass", field="volume" if liquid else "mass")
     if micro <= 0:
         raise QuantityError(body.volume or body.mass or "", "must be above zero", "volume" if liquid else "mass")
     components = []
@@ -346,8 +345,7 @@ def _judge(session: Session, container: WasteContainer, body: EntryIn,
             raise InvalidInput(f"components[{i}].substance_id", f"substance {comp.substance_id} is given twice; "
                                "give its volume once")
         substance = reference(session, Substance, comp.substance_id, f"components[{i}].substance_id", active=False)
-        ul = int(to_decimal(parse_quantity(comp.volume, expect="volume", field=f"components[{i}].volume"),
-                            "uL").to_integral_value())
+        ul = whole_micro(comp.volume, "uL", expect="volume", field=f"components[{i}].volume")
         components.append(WasteEntryComponent(substance_id=comp.substance_id, volume_ul=ul, substance=substance))
     if sum(c.volume_ul for c in components) > micro:
         raise InvalidInput("components", "the components add up to more than the entry's volume")
