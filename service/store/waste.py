@@ -15,7 +15,7 @@ from decimal import ROUND_HALF_EVEN, Decimal
 from functools import cache
 from typing import Callable, Optional
 
-from sqlalchemy import bindparam, func, insert, select, update
+from sqlalchemy import bindparam, func, insert, literal, select, update
 from sqlalchemy.orm import Session, joinedload, lazyload, make_transient_to_detached
 from sqlalchemy.orm.attributes import set_committed_value
 
@@ -203,21 +203,26 @@ def _store(session: Session, container: WasteContainer, entry: WasteEntry, *, ph
     connection = session.connection()
     table = WasteEntry.__table__
     values = _values(entry)
-    del values["id"]
-    entry.id = connection.execute(_inserting(table, returning="id"), values).scalar_one()
+    if entry.id is None:  # the INSERT gives the id (SQLite); else it goes with the other writes
+        del values["id"]
+        entry.id = connection.execute(_inserting(table, returning="id"), values).scalar_one()
+        values = None
     for row in (*entry.components, *entry.elements):
         row.entry_id = entry.id
     # the rows and totals go with the events, once the chain's head is locked (one round trip on PostgreSQL)
     audit.record(session, [audit.created(table, _values(entry)),
                            *(audit.created(WasteEntryComponent.__table__, _values(c)) for c in entry.components),
                            *(audit.created(WasteEntryElement.__table__, _values(e)) for e in entry.elements)],
-                 with_writes=lambda: _add(session, container, entry, ph))
+                 with_writes=lambda: _add(session, container, entry, ph, values))
     _loaded(session, *entry.components, *entry.elements, entry)
 
 
-def _add(session: Session, container: WasteContainer, entry: WasteEntry, ph) -> None:
-    """The entry's rows, the container's running totals and the monthly totals (:func:`_store`)."""
+def _add(session: Session, container: WasteContainer, entry: WasteEntry, ph, values: Optional[dict]) -> None:
+    """The entry (``values``, unless inserted already), its rows, the container's running totals and the
+    monthly totals (:func:`_store`)."""
     connection = session.connection()
+    if values is not None:
+        connection.execute(_inserting(WasteEntry.__table__), values)
     if entry.components:
         connection.execute(_inserting(WasteEntryComponent.__table__), [_values(c) for c in entry.components])
     if entry.elements:
@@ -275,8 +280,10 @@ def _locked_read():
             .execution_options(populate_existing=True))
 
 
-def _lock(session: Session, container_id: int) -> WasteContainer:
-    """The container, locked, then read afresh with its running totals.
+def _lock(session: Session, container_id: int, *, draw_id: bool = False) -> tuple[WasteContainer, Optional[int]]:
+    """The container, locked, then read afresh with its running totals; with ``draw_id`` also the id the
+    next entry takes where the lock's statement can draw it (PostgreSQL, from the entries' sequence: one
+    round trip fewer), else None (SQLite: the entry's INSERT gives it).
 
     On PostgreSQL two statements, in this order: READ COMMITTED gives each statement its own snapshot,
     so totals read in the statement that waits for the lock would be those from before the lock
@@ -284,12 +291,24 @@ def _lock(session: Session, container_id: int) -> WasteContainer:
     On SQLite a writing session's transaction began IMMEDIATE and holds the database's write lock
     already (``service.store.db``): the read alone.
     """
+    next_id = None
     if session.get_bind().dialect.name != "sqlite":
-        if session.scalar(select(WasteContainer.id).where(WasteContainer.id == container_id)
-                          .with_for_update(of=WasteContainer)) is None:
+        locked = session.execute(_locking(draw_id), {"container": container_id}).one_or_none()
+        if locked is None:
             get(session, WasteContainer, container_id)  # raises NotFound
+        next_id = locked[1]
     found = session.scalars(_locked_read(), {"container": container_id}).unique().one_or_none()
-    return found if found is not None else get(session, WasteContainer, container_id)  # get raises NotFound
+    if found is None:
+        get(session, WasteContainer, container_id)  # raises NotFound
+    return found, next_id
+
+
+@cache
+def _locking(draw_id: bool):
+    """The lock of :func:`_lock` on PostgreSQL, built once (``draw_id``: with the next entry id drawn)."""
+    drawn = func.nextval(func.pg_get_serial_sequence(WasteEntry.__tablename__, "id")) if draw_id else literal(None)
+    return (select(WasteContainer.id, drawn).where(WasteContainer.id == bindparam("container"))
+            .with_for_update(of=WasteContainer))
 
 
 @dataclass(frozen=True)
@@ -385,12 +404,13 @@ def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Opti
     (:func:`service.store.areas.refresh_clock`, same transaction). ``check`` is called with the
     locked container before anything is judged (the caller's own refusal, e.g. of another lab's container).
     """
-    container = _lock(session, container_id)
+    container, entry_id = _lock(session, container_id, draw_id=True)
     if check is not None:
         check(container)
     judged = _judge(session, container, body, balance_elements)
     liquid, micro = container.form == "liquid", judged.amount_micro
-    entry = WasteEntry(container_id=container.id, run_id=body.run_id, actor_id=actor_id, description=body.description,
+    entry = WasteEntry(id=entry_id, container_id=container.id, run_id=body.run_id, actor_id=actor_id,
+                       description=body.description,
                        volume_ul=micro if liquid else 0, mass_ug=0 if liquid else micro,
                        filterable_solids_percent=body.filterable_solids_percent, ph=body.ph,
                        components=list(judged.components), elements=list(judged.elements), at=utcnow())
@@ -407,7 +427,7 @@ def add_entry(session: Session, container_id: int, body: EntryIn, actor_id: Opti
 def reverse_entry(session: Session, container_id: int, entry_id: int, reason: str, actor_id: Optional[int], *,
                   rules: Optional[LayeredRules] = None) -> WasteEntry:
     """A correction: a new entry that negates ``entry_id`` exactly (with ``rules``: the area's clock follows)."""
-    container = _lock(session, container_id)
+    container, new_id = _lock(session, container_id, draw_id=True)
     original = session.get(WasteEntry, entry_id)
     if original is None or original.container_id != container.id:
         raise InvalidInput("entry_id", f"no entry {entry_id} in container {container.label}")
@@ -417,7 +437,7 @@ def reverse_entry(session: Session, container_id: int, entry_id: int, reason: st
         raise Conflict(f"entry {entry_id} is already reversed")
     if container.state == "collected":
         raise Conflict(f"container {container.label} has been collected")
-    entry = WasteEntry(container_id=container.id, run_id=original.run_id, actor_id=actor_id,
+    entry = WasteEntry(id=new_id, container_id=container.id, run_id=original.run_id, actor_id=actor_id,
                        description=f"reverses entry {entry_id}: {reason}", volume_ul=-original.volume_ul,
                        mass_ug=-original.mass_ug, filterable_solids_percent=original.filterable_solids_percent,
                        reverses_entry_id=entry_id, at=utcnow(),
@@ -449,7 +469,7 @@ def determine(session: Session, container_id: int, body: DeterminationIn, actor_
     Determinations are append-only: each is a new row (and an audit event), and the latest is the
     one in force. The container's row is locked, so two determinations are ordered, not interleaved.
     """
-    container = _lock(session, container_id)
+    container, _ = _lock(session, container_id)
     row = WasteDetermination(container_id=container.id, actor_id=actor_id, comment=body.comment, at=utcnow(),
                              codes=[code.model_dump() for code in body.codes])
     session.add(row)
