@@ -14,6 +14,7 @@ are locked with ``SELECT … FOR UPDATE``.
 
 from __future__ import annotations
 
+import functools
 from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Iterator
@@ -24,7 +25,7 @@ from sqlalchemy.engine import Engine
 if TYPE_CHECKING:  # the ORM is imported where sessions are made (a command reading Core tables needs none)
     from sqlalchemy.orm import Session, sessionmaker
 
-__all__ = ["WRITE", "ReadOnlySession", "refuse_when_reading", "sent_together", "make_engine", "make_sessionmaker",
+__all__ = ["WRITE", "ReadOnlySession", "refuse_when_reading", "sent_together", "adding", "make_engine", "make_sessionmaker",
            "new_session", "session_scope", "upgrade", "init_app", "get_session", "end_session"]
 
 MIGRATIONS = Path(__file__).with_name("migrations")
@@ -75,6 +76,19 @@ def make_sessionmaker(engine: Engine) -> sessionmaker[Session]:
     month_totals.install(factory)
     event.listen(factory, "before_flush", _refuse_writes_when_reading)
     return factory
+
+
+@functools.cache
+def adding(dialect: str, table):
+    """INSERT into ``table``, or where its key is there already add each other column to the stored value
+    (``ON CONFLICT … DO UPDATE SET x = x + excluded.x``; SQLite and PostgreSQL), built once per table."""
+    from sqlalchemy.dialects import postgresql, sqlite
+
+    statement = (sqlite.insert if dialect == "sqlite" else postgresql.insert)(table)
+    keys = [column.name for column in table.primary_key.columns]
+    return statement.on_conflict_do_update(
+        index_elements=keys, set_={column.name: column + statement.excluded[column.name]
+                                   for column in table.columns if column.name not in keys})
 
 
 @contextmanager

@@ -26,12 +26,12 @@ from collections import defaultdict
 from functools import cache
 from typing import Optional
 
-from sqlalchemy import BigInteger, String, and_, case, cast, delete, event, func, literal_column, or_, select
-from sqlalchemy.dialects import postgresql, sqlite
+from sqlalchemy import BigInteger, String, and_, case, cast, delete, event, func, insert, literal_column, or_, select
 from sqlalchemy.orm import Session, sessionmaker
 from sqlalchemy.orm.attributes import get_history
 from sqlalchemy.orm.util import identity_key
 
+from service.store import db
 from service.store.models import (
     HoldingChange,
     LedgerMonthTotal,
@@ -156,19 +156,12 @@ def _insert(connection, waste: dict, flows: dict, *, add: bool) -> None:
                                       for (m, e, f), ug in sorted(flows.items())]),
     ):
         if rows:
-            connection.execute(_inserting(connection.dialect.name, table, add), rows)
+            connection.execute(db.adding(connection.dialect.name, table) if add else _inserting(table), rows)
 
 
 @cache
-def _inserting(dialect: str, table, add: bool):
-    """The INSERT of :func:`_insert`, built once (``add``: an UPSERT adding to the row already there)."""
-    statement = (sqlite.insert if dialect == "sqlite" else postgresql.insert)(table)
-    if add:
-        keys = [column.name for column in table.primary_key.columns]
-        summed = [column.name for column in table.columns if column.name not in keys]
-        statement = statement.on_conflict_do_update(
-            index_elements=keys, set_={name: table.c[name] + statement.excluded[name] for name in summed})
-    return statement
+def _inserting(table):
+    return insert(table)
 
 
 def add_waste(connection, waste: dict[tuple[str, int, str], tuple[int, int]]) -> None:

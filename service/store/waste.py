@@ -16,7 +16,7 @@ from functools import cache
 from typing import Callable, Optional
 
 from sqlalchemy import bindparam, func, insert, literal, select, update
-from sqlalchemy.orm import Session, joinedload, lazyload, make_transient_to_detached
+from sqlalchemy.orm import Session, contains_eager, joinedload, lazyload, make_transient_to_detached
 from sqlalchemy.orm.attributes import set_committed_value
 
 from service import vocab
@@ -197,9 +197,6 @@ def _store(session: Session, container: WasteContainer, entry: WasteEntry, *, ph
     flush would have written (:func:`service.store.audit.created`).
     """
     db.refuse_when_reading(session)
-    if container.totals is None:
-        container.totals = _no_totals()
-        session.flush()
     connection = session.connection()
     table = WasteEntry.__table__
     values = _values(entry)
@@ -249,66 +246,54 @@ def _add(session: Session, container: WasteContainer, entry: WasteEntry, ph, val
 
 def _add_rows(session: Session, container: WasteContainer, collection: str, model, key: str, amount: str,
               adding: dict) -> None:
-    """Add ``adding`` ({key: amount}) to one of the container's running-total collections (Core statements)."""
+    """Add ``adding`` ({key: amount}) to one of the container's running-total collections: one upsert that
+    adds to the stored rows (their values as read with the container may predate the lock on PostgreSQL;
+    the database adds to what it holds). The session's rows are expired, to be read again if wanted."""
     if not adding:
         return
-    table = model.__table__
-    rows = {getattr(row, key): row for row in getattr(container, collection)}
-    fresh = []
-    for ident, value in adding.items():
-        row = rows.get(ident)
-        if row is None:
-            row = model(container_id=container.id, **{key: ident, amount: value})
-            session.connection().execute(_inserting(table), _values(row))
-            fresh.append(row)
-        else:
-            total = getattr(row, amount) + value
-            session.connection().execute(_updating(table, "container_id", key),
-                                         {amount: total, "key_container_id": container.id, f"key_{key}": ident})
-            set_committed_value(row, amount, total)
-    if fresh:
-        _loaded(session, *fresh)
-        set_committed_value(container, collection, [*rows.values(), *fresh])
-
-
-@cache
-def _locked_read():
-    """The read of :func:`_lock`, built once."""
-    return (select(WasteContainer).where(WasteContainer.id == bindparam("container"))
-            .options(joinedload(WasteContainer.totals), joinedload(WasteContainer.element_totals),
-                     joinedload(WasteContainer.component_totals), lazyload(WasteContainer.determinations))
-            .execution_options(populate_existing=True))
+    session.connection().execute(db.adding(session.get_bind().dialect.name, model.__table__),
+                                 [{"container_id": container.id, key: ident, amount: value}
+                                  for ident, value in adding.items()])
+    held = getattr(container, collection)
+    for row in held:
+        if getattr(row, key) in adding:
+            session.expire(row, [amount])
+    if any(ident not in {getattr(row, key) for row in held} for ident in adding):
+        session.expire(container, [collection])
 
 
 def _lock(session: Session, container_id: int, *, draw_id: bool = False) -> tuple[WasteContainer, Optional[int]]:
-    """The container, locked, then read afresh with its running totals; with ``draw_id`` also the id the
-    next entry takes where the lock's statement can draw it (PostgreSQL, from the entries' sequence: one
-    round trip fewer), else None (SQLite: the entry's INSERT gives it).
+    """The container with its running totals, locked, in one statement; with ``draw_id`` also the id the
+    next entry takes where that statement can draw it (PostgreSQL, from the entries' sequence), else None
+    (SQLite: the entry's INSERT gives it).
 
-    On PostgreSQL two statements, in this order: READ COMMITTED gives each statement its own snapshot,
-    so totals read in the statement that waits for the lock would be those from before the lock
-    holder's commit (only the locked row itself is re-read); read after the lock, they are current.
-    On SQLite a writing session's transaction began IMMEDIATE and holds the database's write lock
-    already (``service.store.db``): the read alone.
+    PostgreSQL locks the container's row and its totals row (``FOR UPDATE OF`` both): a statement that
+    waits for the lock returns both rows as the lock holder committed them (READ COMMITTED re-reads locked
+    rows), so the volume and mass judged are current. The element and component rows read with them may
+    be older; they are only ever added to (:func:`_add_rows`). On SQLite a writing session's transaction
+    began IMMEDIATE and holds the database's write lock already (``service.store.db``).
     """
-    next_id = None
-    if session.get_bind().dialect.name != "sqlite":
-        locked = session.execute(_locking(draw_id), {"container": container_id}).one_or_none()
-        if locked is None:
-            get(session, WasteContainer, container_id)  # raises NotFound
-        next_id = locked[1]
-    found = session.scalars(_locked_read(), {"container": container_id}).unique().one_or_none()
+    postgres = session.get_bind().dialect.name == "postgresql"
+    found = session.execute(_locked_read(draw_id and postgres), {"container": container_id}).unique().one_or_none()
     if found is None:
-        get(session, WasteContainer, container_id)  # raises NotFound
-    return found, next_id
+        container = get(session, WasteContainer, container_id)  # raises NotFound
+        container.totals = _no_totals()  # a container kept from before the running totals
+        session.flush()
+        return _lock(session, container_id, draw_id=draw_id)
+    return found[0], found[1]
 
 
 @cache
-def _locking(draw_id: bool):
-    """The lock of :func:`_lock` on PostgreSQL, built once (``draw_id``: with the next entry id drawn)."""
-    drawn = func.nextval(func.pg_get_serial_sequence(WasteEntry.__tablename__, "id")) if draw_id else literal(None)
-    return (select(WasteContainer.id, drawn).where(WasteContainer.id == bindparam("container"))
-            .with_for_update(of=WasteContainer))
+def _locked_read(draw_id: bool):
+    """The statement of :func:`_lock`, built once (``draw_id``: with the next entry id drawn)."""
+    # an uncorrelated subquery: drawn once for the statement, not once per joined row
+    drawn = (select(func.nextval(func.pg_get_serial_sequence(WasteEntry.__tablename__, "id"))).scalar_subquery()
+             if draw_id else literal(None))
+    return (select(WasteContainer, drawn).join(WasteContainer.totals).where(WasteContainer.id == bindparam("container"))
+            .options(contains_eager(WasteContainer.totals), joinedload(WasteContainer.element_totals),
+                     joinedload(WasteContainer.component_totals), lazyload(WasteContainer.determinations))
+            .with_for_update(of=[WasteContainer, WasteContainerTotals])
+            .execution_options(populate_existing=True))
 
 
 @dataclass(frozen=True)
