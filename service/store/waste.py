@@ -16,7 +16,7 @@ from functools import cache
 from typing import Callable, Optional
 
 from sqlalchemy import bindparam, func, insert, literal, select, update
-from sqlalchemy.orm import Session, contains_eager, joinedload, lazyload, make_transient_to_detached
+from sqlalchemy.orm import Session, contains_eager, lazyload, make_transient_to_detached
 from sqlalchemy.orm.attributes import set_committed_value
 
 from service import vocab
@@ -247,18 +247,16 @@ def _add(session: Session, container: WasteContainer, entry: WasteEntry, ph, val
 def _add_rows(session: Session, container: WasteContainer, collection: str, model, key: str, amount: str,
               adding: dict) -> None:
     """Add ``adding`` ({key: amount}) to one of the container's running-total collections: one upsert that
-    adds to the stored rows (their values as read with the container may predate the lock on PostgreSQL;
-    the database adds to what it holds). The session's rows are expired, to be read again if wanted."""
+    adds to the stored rows (the database adds to what it holds; nothing read before is written back).
+    Rows the session holds are expired, to be read again when wanted."""
     if not adding:
         return
     session.connection().execute(db.adding(session.get_bind().dialect.name, model.__table__),
                                  [{"container_id": container.id, key: ident, amount: value}
                                   for ident, value in adding.items()])
-    held = getattr(container, collection)
-    for row in held:
-        if getattr(row, key) in adding:
+    if collection in container.__dict__:  # loaded: read again when next wanted
+        for row in container.__dict__[collection]:
             session.expire(row, [amount])
-    if any(ident not in {getattr(row, key) for row in held} for ident in adding):
         session.expire(container, [collection])
 
 
@@ -269,9 +267,9 @@ def _lock(session: Session, container_id: int, *, draw_id: bool = False) -> tupl
 
     PostgreSQL locks the container's row and its totals row (``FOR UPDATE OF`` both): a statement that
     waits for the lock returns both rows as the lock holder committed them (READ COMMITTED re-reads locked
-    rows), so the volume and mass judged are current. The element and component rows read with them may
-    be older; they are only ever added to (:func:`_add_rows`). On SQLite a writing session's transaction
-    began IMMEDIATE and holds the database's write lock already (``service.store.db``).
+    rows), so the volume and mass judged are current. The element and component sums are not read: they
+    are only ever added to (:func:`_add_rows`). On SQLite a writing session's transaction began IMMEDIATE
+    and holds the database's write lock already (``service.store.db``).
     """
     postgres = session.get_bind().dialect.name == "postgresql"
     found = session.execute(_locked_read(draw_id and postgres), {"container": container_id}).unique().one_or_none()
@@ -290,8 +288,8 @@ def _locked_read(draw_id: bool):
     drawn = (select(func.nextval(func.pg_get_serial_sequence(WasteEntry.__tablename__, "id"))).scalar_subquery()
              if draw_id else literal(None))
     return (select(WasteContainer, drawn).join(WasteContainer.totals).where(WasteContainer.id == bindparam("container"))
-            .options(contains_eager(WasteContainer.totals), joinedload(WasteContainer.element_totals),
-                     joinedload(WasteContainer.component_totals), lazyload(WasteContainer.determinations))
+            .options(contains_eager(WasteContainer.totals), lazyload(WasteContainer.element_totals),
+                     lazyload(WasteContainer.component_totals), lazyload(WasteContainer.determinations))
             .with_for_update(of=[WasteContainer, WasteContainerTotals])
             .execution_options(populate_existing=True))
 
@@ -353,8 +351,8 @@ def _judge(session: Session, container: WasteContainer, body: EntryIn,
         components.append(WasteEntryComponent(substance_id=comp.substance_id, volume_ul=ul, substance=substance))
     if sum(c.volume_ul for c in components) > micro:
         raise InvalidInput("components", "the components add up to more than the entry's volume")
-    held = contents_of(session, container)
-    already = held.volume_ul if liquid else held.mass_ug
+    totals = container.totals or _no_totals()
+    already = totals.volume_ul if liquid else totals.mass_ug
     room = max(container.capacity_micro - already, 0)
     if micro > room:
         form = container.form
