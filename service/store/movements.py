@@ -106,7 +106,11 @@ def dispose(session: Session, stock_id: int, body: DisposeIn, actor_id: Optional
     a solid goes into a solids container, a liquid into a liquid one, a gas into none.
     """
     stock = _lock(session, stock_id)
-    container = inventory.reference(session, WasteContainer, body.container_id, "container_id", lab_id=stock.lab_id)
+    # The container is locked before the stock changes: its entry then queues at the container and at the
+    # audit chain's head in the order every entry does (the stock's changes, once flushed, take the head;
+    # waiting for the container after that would close a cycle with an entry holding it).
+    container = inventory.reference(session, WasteContainer, body.container_id, "container_id", lab_id=stock.lab_id,
+                                    lock=True)
     state = stock.substance.state
     if state not in ("solid", "liquid"):
         raise InvalidInput("container_id", f"{stock.label} is a {state}; a {state} is not put into a waste container")
