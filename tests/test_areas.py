@@ -229,9 +229,9 @@ def test_concurrent_crossings_leave_the_clock_as_the_area_stands(area):
     is as the area stood at that step's commit: at the end, everything reversed, it is cleared; one more
     crossing entry starts it."""
     admin, app = area["admin"], area["app"]
-    base, other = (admin.call("POST", "/waste_containers", {"label": label, "lab_id": area["lab"], "location_id": area["saa"],
-                                                           "capacity": "1000 L", "stream": "aqueous_heavy_metals"},
-                              201)["id"] for label in ("A-C1", "A-C2"))
+    body = {"lab_id": area["lab"], "location_id": area["saa"], "capacity": "1000 L", "stream": "aqueous_heavy_metals"}
+    base, other = (admin.call("POST", "/waste_containers", {**body, "label": label}, 201)["id"]
+                   for label in ("A-C1", "A-C2"))
     _add(area, base, "150 L")
     failures = []
 

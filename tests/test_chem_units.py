@@ -6,7 +6,15 @@ from decimal import Decimal
 
 import pytest
 
-from service.chem.units import MissingDensityError, QuantityError, check_amount, kind_of, mass_g, parse_quantity, whole_micro
+from service.chem.units import (
+    MissingDensityError,
+    QuantityError,
+    check_amount,
+    kind_of,
+    mass_g,
+    parse_quantity,
+    whole_micro,
+)
 
 
 @pytest.mark.parametrize(

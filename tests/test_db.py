@@ -143,18 +143,20 @@ def test_statements_sent_together_take_effect_and_a_failure_is_sqlalchemys_own(d
     table = Lab.__table__
     now = dt.datetime(2026, 1, 1, tzinfo=dt.timezone.utc)
     row = {"name": "Pipeline lab", "created_at": now, "updated_at": now}
+    codes = select(table.c.code).order_by(table.c.code)
     try:
         with engine.begin() as connection:
             with sent_together(connection):
                 # keys given: an INSERT whose key the database makes reads it back (RETURNING on PostgreSQL)
                 connection.execute(insert(table), {**row, "id": 901, "code": "P-1"})
-                connection.execute(insert(table), [{**row, "id": 902, "code": "P-2"}, {**row, "id": 903, "code": "P-3"}])
-            assert connection.execute(select(table.c.code).order_by(table.c.code)).scalars().all() == ["P-1", "P-2", "P-3"]
+                connection.execute(insert(table), [{**row, "id": 902, "code": "P-2"},
+                                                   {**row, "id": 903, "code": "P-3"}])
+            assert connection.execute(codes).scalars().all() == ["P-1", "P-2", "P-3"]
         with pytest.raises(IntegrityError), engine.begin() as connection:
             with sent_together(connection):
                 connection.execute(insert(table), {**row, "id": 904, "code": "P-4"})
                 connection.execute(insert(table), {**row, "id": 905, "code": "P-1"})  # lab codes are unique
         with engine.connect() as connection:  # the failed transaction left nothing
-            assert connection.execute(select(table.c.code).order_by(table.c.code)).scalars().all() == ["P-1", "P-2", "P-3"]
+            assert connection.execute(codes).scalars().all() == ["P-1", "P-2", "P-3"]
     finally:
         engine.dispose()

@@ -25,8 +25,8 @@ from sqlalchemy.engine import Engine
 if TYPE_CHECKING:  # the ORM is imported where sessions are made (a command reading Core tables needs none)
     from sqlalchemy.orm import Session, sessionmaker
 
-__all__ = ["WRITE", "ReadOnlySession", "refuse_when_reading", "sent_together", "adding", "make_engine", "make_sessionmaker",
-           "new_session", "session_scope", "upgrade", "init_app", "get_session", "end_session"]
+__all__ = ["WRITE", "ReadOnlySession", "refuse_when_reading", "sent_together", "adding", "make_engine",
+           "make_sessionmaker", "new_session", "session_scope", "upgrade", "init_app", "get_session", "end_session"]
 
 MIGRATIONS = Path(__file__).with_name("migrations")
 # The execution option that marks a writing session's connections (see the module docstring).

@@ -45,7 +45,8 @@ from service.store.models import (
     WasteMonthTotal,
 )
 
-__all__ = ["JSON_FLOWS", "month_of", "sql_month", "month_start", "next_month", "install", "recount", "rebuild", "add_waste"]
+__all__ = ["JSON_FLOWS", "month_of", "sql_month", "month_start", "next_month", "install", "recount", "rebuild",
+           "add_waste"]
 
 # The records whose element masses are a JSON mapping: flow name, model, its time, and a filter.
 JSON_FLOWS = ("run_draw", "run_output", "run_loss", "shipment")

@@ -99,8 +99,8 @@ def _entry_elements(session: Session, body: EntryIn, run: Optional[Run],
 
 def create_container(session: Session, body: ContainerIn) -> WasteContainer:
     form = "solid" if body.stream in SOLID_STREAMS else "liquid"
-    micro = whole_micro(body.capacity, "ug" if form == "solid" else "uL", expect="mass" if form == "solid" else "volume",
-                        field="capacity")
+    solid = form == "solid"
+    micro = whole_micro(body.capacity, "ug" if solid else "uL", expect="mass" if solid else "volume", field="capacity")
     if micro <= 0:
         raise InvalidInput("capacity", "must be above zero")
     reference(session, Location, body.location_id, "location_id", lab_id=body.lab_id)
@@ -232,7 +232,8 @@ def _add(session: Session, container: WasteContainer, entry: WasteEntry, ph, val
            "mass_ug": totals.mass_ug + entry.mass_ug, "ph": ph,
            "solids_percent_ul_e6": totals.solids_percent_ul_e6 + solids_weight(entry.volume_ul,
                                                                                entry.filterable_solids_percent)}
-    connection.execute(_updating(WasteContainerTotals.__table__, "container_id"), {**new, "key_container_id": container.id})
+    connection.execute(_updating(WasteContainerTotals.__table__, "container_id"),
+                       {**new, "key_container_id": container.id})
     for key, value in new.items():
         set_committed_value(totals, key, value)
     _add_rows(session, container, "element_totals", WasteContainerElement, "element", "mass_ug",
@@ -287,7 +288,8 @@ def _locked_read(draw_id: bool):
     # an uncorrelated subquery: drawn once for the statement, not once per joined row
     drawn = (select(func.nextval(func.pg_get_serial_sequence(WasteEntry.__tablename__, "id"))).scalar_subquery()
              if draw_id else literal(None))
-    return (select(WasteContainer, drawn).join(WasteContainer.totals).where(WasteContainer.id == bindparam("container"))
+    return (select(WasteContainer, drawn).join(WasteContainer.totals)
+            .where(WasteContainer.id == bindparam("container"))
             .options(contains_eager(WasteContainer.totals), lazyload(WasteContainer.element_totals),
                      lazyload(WasteContainer.component_totals), lazyload(WasteContainer.determinations))
             .with_for_update(of=[WasteContainer, WasteContainerTotals])
