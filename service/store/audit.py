@@ -261,7 +261,8 @@ def _append(session: Session, changes: list[_Change], with_writes: Optional[Call
 def hold_head(session: Session) -> None:
     """Hold the chain's head row locked to the end of this transaction (at once when a change of this
     transaction was recorded already: recording takes it). Every change to the ledger is recorded, so a
-    transaction holding it sees no other change commit until it has committed itself."""
+    transaction holding it sees no other change commit until it has committed itself. (The service uses no
+    savepoints: rolling one back would release a lock taken inside it while this still counts it held.)"""
     if session.info.get(_HEAD) is session.get_transaction():
         return
     if session.connection().execute(_statements()[0]).one_or_none() is None:
