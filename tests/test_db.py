@@ -136,7 +136,7 @@ def test_statements_sent_together_take_effect_and_a_failure_is_sqlalchemys_own(d
     from sqlalchemy import select
     from sqlalchemy.exc import IntegrityError
 
-    from service.store.db import sent_together
+    from service.store.sql import sent_together
 
     upgrade(database_url)
     engine = make_engine(database_url)

@@ -17,7 +17,7 @@ from typing import Any, Callable, NamedTuple, Optional
 from sqlalchemy import event, func, insert, inspect, or_, select, update
 from sqlalchemy.orm import Session
 
-from service.store import audit_chain, db
+from service.store import audit_chain, sql
 from service.store.audit_chain import GENESIS, ChainReport, event_digest, find_hash, verify_chain  # noqa: F401
 from service.store.models import Base, utcnow
 from service.store.paging import Page, paginate
@@ -225,7 +225,7 @@ def record(session: Session, changes: list[_Change], *, with_writes: Optional[Ca
     """Append events for rows written outside the ORM's flush (:func:`created`), in this transaction.
 
     ``with_writes`` runs once the chain's head is locked, its statements sent with the events' (one round
-    trip on PostgreSQL, :func:`service.store.db.sent_together`): writes whose results are not read."""
+    trip on PostgreSQL, :func:`service.store.sql.sent_together`): writes whose results are not read."""
     if changes:
         _append(session, sorted(changes, key=lambda c: (c.entity, c.key)), with_writes)
 
@@ -251,7 +251,7 @@ def _append(session: Session, changes: list[_Change], with_writes: Optional[Call
                          entity_id=entity_id, action=c.action, before=c.before, after=c.after,
                          prev_hash=last_hash, hash=digest))
         last_hash = digest
-    with db.sent_together(connection):  # one round trip on PostgreSQL
+    with sql.sent_together(connection):  # one round trip on PostgreSQL
         if with_writes is not None:
             with_writes()
         connection.execute(inserting, rows)

@@ -14,7 +14,6 @@ are locked with ``SELECT … FOR UPDATE``.
 
 from __future__ import annotations
 
-import functools
 from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Iterator
@@ -25,8 +24,8 @@ from sqlalchemy.engine import Engine
 if TYPE_CHECKING:  # the ORM is imported where sessions are made (a command reading Core tables needs none)
     from sqlalchemy.orm import Session, sessionmaker
 
-__all__ = ["WRITE", "ReadOnlySession", "refuse_when_reading", "sent_together", "adding", "make_engine",
-           "make_sessionmaker", "new_session", "session_scope", "upgrade", "init_app", "get_session", "end_session"]
+__all__ = ["WRITE", "ReadOnlySession", "refuse_when_reading", "make_engine", "make_sessionmaker", "new_session",
+           "session_scope", "upgrade", "init_app", "get_session", "end_session"]
 
 MIGRATIONS = Path(__file__).with_name("migrations")
 # The execution option that marks a writing session's connections (see the module docstring).
@@ -76,45 +75,6 @@ def make_sessionmaker(engine: Engine) -> sessionmaker[Session]:
     month_totals.install(factory)
     event.listen(factory, "before_flush", _refuse_writes_when_reading)
     return factory
-
-
-@functools.cache
-def adding(dialect: str, table):
-    """INSERT into ``table``, or where its key is there already add each other column to the stored value
-    (``ON CONFLICT … DO UPDATE SET x = x + excluded.x``; SQLite and PostgreSQL), built once per table."""
-    from sqlalchemy.dialects import postgresql, sqlite
-
-    statement = (sqlite.insert if dialect == "sqlite" else postgresql.insert)(table)
-    keys = [column.name for column in table.primary_key.columns]
-    return statement.on_conflict_do_update(
-        index_elements=keys, set_={column.name: column + statement.excluded[column.name]
-                                   for column in table.columns if column.name not in keys})
-
-
-@contextmanager
-def sent_together(connection) -> Iterator[None]:
-    """Statements executed inside go to the server without waiting for each answer (psycopg's pipeline
-    mode on PostgreSQL: one round trip for the lot); elsewhere they run one by one as usual.
-
-    Only for statements whose results are not read (INSERT, UPDATE without RETURNING): inside the block
-    a statement's rows are not there yet. An INSERT must give the row's key: SQLAlchemy reads back a
-    key the database makes (RETURNING on PostgreSQL). A database error of any of them is raised at the end of the
-    block as SQLAlchemy's own exception (an IntegrityError is one still), and the transaction is failed.
-    """
-    if connection.dialect.driver != "psycopg":
-        yield
-        return
-    import psycopg
-    from sqlalchemy.exc import DBAPIError
-
-    if not psycopg.Pipeline.is_supported():  # libpq before 14
-        yield
-        return
-    try:
-        with connection.connection.driver_connection.pipeline():
-            yield
-    except psycopg.Error as exc:
-        raise DBAPIError.instance(None, None, exc, psycopg.Error) from exc
 
 
 def refuse_when_reading(session: Session) -> None:

@@ -31,7 +31,7 @@ from sqlalchemy.orm import Session, sessionmaker
 from sqlalchemy.orm.attributes import get_history
 from sqlalchemy.orm.util import identity_key
 
-from service.store import db
+from service.store import sql
 from service.store.models import (
     HoldingChange,
     LedgerMonthTotal,
@@ -157,7 +157,7 @@ def _insert(connection, waste: dict, flows: dict, *, add: bool) -> None:
                                       for (m, e, f), ug in sorted(flows.items())]),
     ):
         if rows:
-            connection.execute(db.adding(connection.dialect.name, table) if add else _inserting(table), rows)
+            connection.execute(sql.adding(connection.dialect.name, table) if add else _inserting(table), rows)
 
 
 @cache

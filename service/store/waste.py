@@ -27,7 +27,7 @@ from service.rules.subjects import ContainerComponent, ContainerSubject
 from service.chem.content import round_ug
 from service.schemas import ContainerIn, DeterminationIn, EntryIn
 from service.rules import LayeredRules
-from service.store import areas, audit, db, month_totals, runs
+from service.store import areas, audit, db, month_totals, runs, sql
 from service.store.amounts import assay_ug, element_masses_ug, mass_ug, mg_text
 from service.store.inventory import get, reference
 from service.store.paging import Page, paginate
@@ -252,7 +252,7 @@ def _add_rows(session: Session, container: WasteContainer, collection: str, mode
     Rows the session holds are expired, to be read again when wanted."""
     if not adding:
         return
-    session.connection().execute(db.adding(session.get_bind().dialect.name, model.__table__),
+    session.connection().execute(sql.adding(session.get_bind().dialect.name, model.__table__),
                                  [{"container_id": container.id, key: ident, amount: value}
                                   for ident, value in adding.items()])
     if collection in container.__dict__:  # loaded: read again when next wanted
