@@ -23,10 +23,9 @@ from __future__ import annotations
 
 import datetime as dt
 from collections import defaultdict
-from functools import cache
 from typing import Optional
 
-from sqlalchemy import BigInteger, String, and_, case, cast, delete, event, func, insert, literal_column, or_, select
+from sqlalchemy import BigInteger, String, and_, case, cast, delete, event, func, literal_column, or_, select
 from sqlalchemy.orm import Session, sessionmaker
 from sqlalchemy.orm.attributes import get_history
 from sqlalchemy.orm.util import identity_key
@@ -157,12 +156,7 @@ def _insert(connection, waste: dict, flows: dict, *, add: bool) -> None:
                                       for (m, e, f), ug in sorted(flows.items())]),
     ):
         if rows:
-            connection.execute(sql.adding(connection.dialect.name, table) if add else _inserting(table), rows)
-
-
-@cache
-def _inserting(table):
-    return insert(table)
+            connection.execute(sql.adding(connection.dialect.name, table) if add else sql.inserting(table), rows)
 
 
 def add_waste(connection, waste: dict[tuple[str, int, str], tuple[int, int]]) -> None:

@@ -1,4 +1,5 @@
-"""What the store's hot paths share: an adding upsert, and statements sent without waiting for each answer.
+"""What the store's hot paths share: prebuilt INSERTs, an adding upsert, and statements sent without waiting
+for each answer.
 
 Imports nothing of the store, so ``db``, ``audit`` and ``month_totals`` can all use it.
 """
@@ -9,10 +10,19 @@ import functools
 from contextlib import contextmanager
 from typing import Iterator
 
+from sqlalchemy import insert
 from sqlalchemy.dialects import postgresql, sqlite
 from sqlalchemy.exc import DBAPIError
 
-__all__ = ["adding", "sent_together"]
+__all__ = ["inserting", "adding", "sent_together"]
+
+
+@functools.cache
+def inserting(table, returning: str | None = None):
+    """An INSERT into ``table`` built once (its columns are the parameters given; ``returning``: the
+    column it answers with)."""
+    statement = insert(table)
+    return statement if returning is None else statement.returning(table.c[returning])
 
 
 @functools.cache

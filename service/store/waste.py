@@ -15,7 +15,7 @@ from decimal import ROUND_HALF_EVEN, Decimal
 from functools import cache
 from typing import Callable, Optional
 
-from sqlalchemy import bindparam, func, insert, literal, select, update
+from sqlalchemy import bindparam, func, literal, select, update
 from sqlalchemy.orm import Session, contains_eager, lazyload, make_transient_to_detached
 from sqlalchemy.orm.attributes import set_committed_value
 
@@ -174,13 +174,6 @@ _UNCHANGED = object()
 
 
 @cache
-def _inserting(table, returning: Optional[str] = None):
-    """An INSERT into ``table`` built once (its columns are the parameters given)."""
-    statement = insert(table)
-    return statement if returning is None else statement.returning(table.c[returning])
-
-
-@cache
 def _updating(table, *keys: str):
     """An UPDATE of ``table`` built once: the row where each key column equals parameter ``key_<column>``,
     the columns set are the other parameters given."""
@@ -199,18 +192,19 @@ def _store(session: Session, container: WasteContainer, entry: WasteEntry, *, ph
     db.refuse_when_reading(session)
     connection = session.connection()
     table = WasteEntry.__table__
-    values = _values(entry)
-    if entry.id is None:  # the INSERT gives the id (SQLite); else it goes with the other writes
+    inserted = entry.id is None  # the INSERT gives the id (SQLite); else it goes with the other writes
+    if inserted:
+        values = _values(entry)
         del values["id"]
-        entry.id = connection.execute(_inserting(table, returning="id"), values).scalar_one()
-        values = None
+        entry.id = connection.execute(sql.inserting(table, returning="id"), values).scalar_one()
     for row in (*entry.components, *entry.elements):
         row.entry_id = entry.id
+    values = _values(entry)
     # the rows and totals go with the events, once the chain's head is locked (one round trip on PostgreSQL)
-    audit.record(session, [audit.created(table, _values(entry)),
+    audit.record(session, [audit.created(table, values),
                            *(audit.created(WasteEntryComponent.__table__, _values(c)) for c in entry.components),
                            *(audit.created(WasteEntryElement.__table__, _values(e)) for e in entry.elements)],
-                 with_writes=lambda: _add(session, container, entry, ph, values))
+                 with_writes=lambda: _add(session, container, entry, ph, None if inserted else values))
     _loaded(session, *entry.components, *entry.elements, entry)
 
 
@@ -219,11 +213,11 @@ def _add(session: Session, container: WasteContainer, entry: WasteEntry, ph, val
     monthly totals (:func:`_store`)."""
     connection = session.connection()
     if values is not None:
-        connection.execute(_inserting(WasteEntry.__table__), values)
+        connection.execute(sql.inserting(WasteEntry.__table__), values)
     if entry.components:
-        connection.execute(_inserting(WasteEntryComponent.__table__), [_values(c) for c in entry.components])
+        connection.execute(sql.inserting(WasteEntryComponent.__table__), [_values(c) for c in entry.components])
     if entry.elements:
-        connection.execute(_inserting(WasteEntryElement.__table__), [_values(e) for e in entry.elements])
+        connection.execute(sql.inserting(WasteEntryElement.__table__), [_values(e) for e in entry.elements])
 
     totals = container.totals
     if ph is _UNCHANGED:
