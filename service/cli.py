@@ -34,10 +34,11 @@ def _started(start: Callable[[], T], engine_of: Callable[[T], object]) -> T:
     return started
 
 
-def _app():
+def _app(*, routes: bool = False):
+    """The application for a command; with its pages and API (``routes``) only for the one that serves them."""
     from service.app import create_app
 
-    return _started(create_app, lambda app: app.extensions["dotledger.engine"])
+    return _started(lambda: create_app(routes=routes), lambda app: app.extensions["dotledger.engine"])
 
 
 class _Store:
@@ -161,7 +162,7 @@ def serve(host: str, port: int) -> None:
     """Serve the web pages and the API."""
     from waitress import serve as waitress_serve
 
-    app = _app()
+    app = _app(routes=True)
     click.echo(f"dotledger on http://{host}:{port}/ (database {app.config['DATABASE_URL']}); Ctrl-C stops")
     waitress_serve(app, host=host, port=port, threads=8)
 

@@ -104,9 +104,17 @@ def test_print_assessment_from_the_command_line(tmp_path):
     command = [sys.executable, "-c", "from service.console import main; main()"]
     subprocess.run([*command, "demo"], cwd=ROOT, env={**os.environ, **env}, check=True, capture_output=True, timeout=600)
     target = tmp_path / "ra.pdf"
-    done = subprocess.run([*command, "print", "assessment", "1", "--output", str(target)], cwd=ROOT,
-                          env={**os.environ, **env}, capture_output=True, text=True, timeout=300)
+    # ... and what the printing process loaded: a command that serves no request starts without the pages and
+    # the API, and a process on SQLite without PostgreSQL's dialect.
+    probe = ("import sys\nfrom service.console import main\n"
+             f"try:\n    main(['print', 'assessment', '1', '--output', {str(target)!r}])\n"
+             "except SystemExit as exc:\n    assert exc.code in (0, None), exc.code\n"
+             "print(sorted(m for m in ('service.api', 'service.web', 'service.auth', 'sqlalchemy.dialects.postgresql')"
+             " if m in sys.modules))\n")
+    done = subprocess.run([sys.executable, "-c", probe], cwd=ROOT, env={**os.environ, **env}, capture_output=True,
+                          text=True, timeout=300)
     assert done.returncode == 0, done.stderr[-3000:]
     pages, text = _text(target.read_bytes())
-    digest = done.stdout.split("SHA-256 ")[1].strip()
+    digest = done.stdout.split("SHA-256 ")[1].splitlines()[0].strip()
     assert pages >= 1 and digest in text[0] and "Risk assessment" in " ".join(text)
+    assert done.stdout.strip().splitlines()[-1] == "[]"
