@@ -21,12 +21,15 @@ __all__ = ["print_group"]
 def _no_collection() -> Iterator[None]:
     """The cyclic garbage collector paused while the command starts: loading the modules, the rule packs and
     the catalogue makes many objects that live to the end and little garbage, and each collection would walk
-    them all again (about a quarter of a second here). Reference counting frees memory as usual meanwhile."""
+    them all again (about a quarter of a second here). Reference counting frees memory as usual meanwhile.
+    What the start made is then frozen out of later collections (``gc.freeze``): otherwise the first one
+    after the pause walks it all (about 0.13 s here)."""
     enabled = gc.isenabled()
     gc.disable()
     try:
         yield
     finally:
+        gc.freeze()
         if enabled:
             gc.enable()
 
