@@ -183,6 +183,39 @@ def test_document_hash_is_sha256_of_its_data_written_out_by_hand():
     assert doc.sha256 in doc.html  # the footer prints the same hash the header carries
 
 
+def test_compiled_templates_kept_between_processes_render_the_same(tmp_path, monkeypatch):
+    # The documents' templates are compiled once and kept (Jinja's bytecode cache): a template read back from
+    # the cache renders what a freshly compiled one renders, an edited template is compiled afresh, and a
+    # cache folder that cannot be written costs only the time.
+    import service.documents.render as render
+
+    def environment(folder, cache):
+        monkeypatch.setattr(render, "TEMPLATES", folder)
+        monkeypatch.setattr(render, "_compiled_templates", lambda: cache)
+        return render._environment()
+
+    fresh = environment(render.TEMPLATES, None).get_template("manifest.html").render(
+        doc=MANIFEST_DATA, sha256="0" * 64, page_size=None, stylesheet="")
+    cache = render._CompiledTemplates(str(tmp_path))
+    for reading in (False, True):  # the first compiles and writes the cache, the second only reads it
+        env = environment(render.TEMPLATES, cache)
+        if reading:
+            env.compile = None  # Jinja calls it only for a template it did not find in the cache
+        kept = env.get_template("manifest.html")
+        assert kept.render(doc=MANIFEST_DATA, sha256="0" * 64, page_size=None, stylesheet="") == fresh
+    assert len(list(tmp_path.glob("__jinja2_*.cache"))) >= 2  # manifest.html and the templates it extends
+
+    own = tmp_path / "own"
+    own.mkdir()
+    (own / "t.html").write_text("one {{ x }}", encoding="utf-8")
+    assert environment(own, cache).get_template("t.html").render(x=1) == "one 1"
+    (own / "t.html").write_text("two {{ x }}", encoding="utf-8")
+    assert environment(own, cache).get_template("t.html").render(x=1) == "two 1"
+
+    unwritable = render._CompiledTemplates(str(tmp_path / "no-such-folder"))
+    assert environment(own, unwritable).get_template("t.html").render(x=2) == "two 2"
+
+
 def test_researcher_of_another_lab_is_refused(demo):
     app, api, _ = demo
     procs, containers = _ids(api)
