@@ -15,13 +15,16 @@ system-test:
 	@PYTHON=$(PYTHON) bash requirements/system.sh test
 
 # A virtual environment with the exact versions of the lock file (the test extras included),
-# then dotledger itself; rebuilt when pyproject.toml or the lock changes. The last line fails
+# then dotledger itself; rebuilt when pyproject.toml or the lock changes. Its modules are compiled
+# to bytecode as pip does for an installed package (an editable install is not, and where
+# PYTHONDONTWRITEBYTECODE is set each start would compile them again). The last line fails
 # when WeasyPrint warns at import (a missing system library).
 $(VENV)/.installed: pyproject.toml $(LOCK)
 	rm -rf $(VENV)
 	$(PYTHON) -m venv $(VENV)
 	$(PIP) -r $(LOCK)
 	$(PIP) --no-deps --no-build-isolation -e .
+	$(BIN)/python -m compileall -q service
 	$(BIN)/python -W error -c "import weasyprint"
 	touch $@
 
