@@ -160,3 +160,44 @@ def test_statements_sent_together_take_effect_and_a_failure_is_sqlalchemys_own(d
             assert connection.execute(codes).scalars().all() == ["P-1", "P-2", "P-3"]
     finally:
         engine.dispose()
+
+
+def test_rows_read_with_core_join_the_session_as_the_orm_loads_them(database_url):
+    """``sql.as_loaded``: a row read with a Core statement becomes the object the ORM would have loaded (every
+    column equal to ``session.get``'s, nothing for a flush to write), a change to it is flushed and audited
+    with the stored value as "before", the session's own object is answered for a key it holds, and
+    ``refresh`` gives that object the row's values (what ``populate_existing`` does)."""
+    from sqlalchemy import select
+
+    from service.store.audit import AuditEvent
+    from service.store.sql import as_loaded
+
+    upgrade(database_url)
+    engine = make_engine(database_url)
+    factory = make_sessionmaker(engine)
+    try:
+        with session_scope(factory) as session:
+            lab_id = inventory.create_record(session, Lab, LabIn(code="CORE-1", name="Core read lab")).id
+        table = Lab.__table__
+        with session_scope(factory, write=False) as session:
+            expected = {c.name: getattr(session.get(Lab, lab_id), c.name) for c in table.columns}
+        statements = []
+        event.listen(engine, "before_cursor_execute", lambda *args: statements.append(args[2]))
+        with session_scope(factory) as session:
+            row = session.connection().execute(select(table).where(table.c.id == lab_id)).mappings().one()
+            lab = as_loaded(session, Lab, row)
+            assert {c.name: getattr(lab, c.name) for c in table.columns} == expected
+            assert lab in session and not session.new and not session.dirty and not session.is_modified(lab)
+            read = len(statements)
+            session.flush()
+            assert len(statements) == read  # nothing to write
+            assert as_loaded(session, Lab, {**row, "name": "other"}) is lab and lab.name == "Core read lab"
+            lab.name = "Core read lab, renamed"
+            session.flush()
+            change = session.scalars(select(AuditEvent).where(AuditEvent.entity == "labs")
+                                     .order_by(AuditEvent.id.desc())).first()
+            assert change.action == "update"
+            assert change.before["name"] == "Core read lab" and change.after["name"] == "Core read lab, renamed"
+            assert as_loaded(session, Lab, row, refresh=True) is lab and lab.name == "Core read lab"
+    finally:
+        engine.dispose()

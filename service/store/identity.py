@@ -10,11 +10,13 @@ from functools import lru_cache
 from typing import Optional
 
 from sqlalchemy import bindparam, func, select
-from sqlalchemy.orm import Session, joinedload
+from sqlalchemy.orm import Session
+from sqlalchemy.orm.attributes import set_committed_value
 from werkzeug.security import check_password_hash, generate_password_hash
 
 from service.errors import Conflict, InvalidInput, NotFound
 from service.schemas import UserIn, UserPatch
+from service.store import sql
 from service.store.inventory import retire
 from service.store.models import ApiToken, Lab, LoginAttempt, Membership, User, utcnow
 from service.store.paging import Page, paginate
@@ -231,13 +233,24 @@ def user_for_token(session: Session, secret: str) -> Optional[User]:
     """The active user owning an unrevoked token, or None."""
     if not secret.startswith(TOKEN_PREFIX):
         return None
-    # One statement: the token's user with its memberships (what the request's lab scope reads).
-    return session.scalars(_token_user(), {"digest": _digest(secret)}).unique().one_or_none()
+    # One Core statement: the token's user with its memberships (what the request's lab scope reads), one row
+    # per membership; they join the session as the ORM would have loaded them (sql.as_loaded).
+    rows = session.connection().execute(_token_user(), {"digest": _digest(secret)}).mappings().all()
+    if not rows:
+        return None
+    user = sql.as_loaded(session, User, rows[0])
+    if "memberships" not in user.__dict__:
+        memberships = [sql.as_loaded(session, Membership, {"user_id": user.id, "lab_id": row["membership_lab_id"]})
+                       for row in rows if row["membership_lab_id"] is not None]
+        set_committed_value(user, "memberships", memberships)
+    return user
 
 
 @lru_cache(maxsize=None)
 def _token_user():
     """The statement of :func:`user_for_token`, built once."""
-    return (select(User).join(ApiToken, ApiToken.user_id == User.id)
+    return (select(*User.__table__.columns, Membership.lab_id.label("membership_lab_id"))
+            .join(ApiToken, ApiToken.user_id == User.id)
+            .outerjoin(Membership, Membership.user_id == User.id)
             .where(ApiToken.token_hash == bindparam("digest"), ApiToken.revoked_at.is_(None), User.retired_at.is_(None))
-            .options(joinedload(User.memberships)))
+            .order_by(Membership.lab_id))

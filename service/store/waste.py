@@ -16,7 +16,7 @@ from functools import cache
 from typing import Callable, Optional
 
 from sqlalchemy import bindparam, func, literal, select, update
-from sqlalchemy.orm import Session, contains_eager, lazyload, make_transient_to_detached
+from sqlalchemy.orm import Session
 from sqlalchemy.orm.attributes import set_committed_value
 
 from service import vocab
@@ -155,17 +155,6 @@ def solids_weight(volume_ul: int, filterable_solids_percent: Optional[float]) ->
     return int(exact.to_integral_value(ROUND_HALF_EVEN))
 
 
-def _loaded(session: Session, *objects) -> None:
-    """Objects whose rows were just written with Core statements join the session as if read back
-    (every column set; nothing left for a flush to write)."""
-    for obj in objects:
-        for column in type(obj).__table__.columns:  # an unset column would be left expired, to be read back
-            if column.name not in obj.__dict__:
-                setattr(obj, column.name, None)
-        make_transient_to_detached(obj)
-    session.add_all(objects)
-
-
 def _values(obj) -> dict:
     return {column.name: getattr(obj, column.name) for column in type(obj).__table__.columns}
 
@@ -205,7 +194,7 @@ def _store(session: Session, container: WasteContainer, entry: WasteEntry, *, ph
                            *(audit.created(WasteEntryComponent.__table__, _values(c)) for c in entry.components),
                            *(audit.created(WasteEntryElement.__table__, _values(e)) for e in entry.elements)],
                  with_writes=lambda: _add(session, container, entry, ph, None if inserted else values))
-    _loaded(session, *entry.components, *entry.elements, entry)
+    sql.loaded(session, *entry.components, *entry.elements, entry)
 
 
 def _add(session: Session, container: WasteContainer, entry: WasteEntry, ph, values: Optional[dict]) -> None:
@@ -267,27 +256,33 @@ def _lock(session: Session, container_id: int, *, draw_id: bool = False) -> tupl
     and holds the database's write lock already (``service.store.db``).
     """
     postgres = session.get_bind().dialect.name == "postgresql"
-    found = session.execute(_locked_read(draw_id and postgres), {"container": container_id}).unique().one_or_none()
-    if found is None:
+    found = session.connection().execute(_locked_read(draw_id and postgres), {"container": container_id}).mappings()
+    row = found.one_or_none()
+    if row is None:
         container = get(session, WasteContainer, container_id)  # raises NotFound
         container.totals = _no_totals()  # a container kept from before the running totals
         session.flush()
         return _lock(session, container_id, draw_id=draw_id)
-    return found[0], found[1]
+    # the rows join the session as the ORM would load them; an object it holds takes the locked row's values
+    container = sql.as_loaded(session, WasteContainer, row, refresh=True)
+    totals = sql.as_loaded(session, WasteContainerTotals, row, prefix="totals_", refresh=True)
+    set_committed_value(container, "totals", totals)
+    return container, row["drawn"]
 
 
 @cache
 def _locked_read(draw_id: bool):
-    """The statement of :func:`_lock`, built once (``draw_id``: with the next entry id drawn)."""
+    """The statement of :func:`_lock`, built once (``draw_id``: with the next entry id drawn): the container's
+    columns, its totals' as ``totals_<column>``, and ``drawn``."""
     # an uncorrelated subquery: drawn once for the statement, not once per joined row
     drawn = (select(func.nextval(func.pg_get_serial_sequence(WasteEntry.__tablename__, "id"))).scalar_subquery()
              if draw_id else literal(None))
-    return (select(WasteContainer, drawn).join(WasteContainer.totals)
-            .where(WasteContainer.id == bindparam("container"))
-            .options(contains_eager(WasteContainer.totals), lazyload(WasteContainer.element_totals),
-                     lazyload(WasteContainer.component_totals), lazyload(WasteContainer.determinations))
-            .with_for_update(of=[WasteContainer, WasteContainerTotals])
-            .execution_options(populate_existing=True))
+    containers, totals = WasteContainer.__table__, WasteContainerTotals.__table__
+    return (select(*containers.columns, *(column.label(f"totals_{column.name}") for column in totals.columns),
+                   drawn.label("drawn"))
+            .join(totals, totals.c.container_id == containers.c.id)
+            .where(containers.c.id == bindparam("container"))
+            .with_for_update(of=[containers, totals]))
 
 
 @dataclass(frozen=True)
@@ -338,11 +333,15 @@ def _judge(session: Session, container: WasteContainer, body: EntryIn,
     if micro <= 0:
         raise QuantityError(body.volume or body.mass or "", "must be above zero", "volume" if liquid else "mass")
     components = []
+    substances = _substances(session, {comp.substance_id for comp in body.components})
     for i, comp in enumerate(body.components):
         if any(c.substance_id == comp.substance_id for c in components):
             raise InvalidInput(f"components[{i}].substance_id", f"substance {comp.substance_id} is given twice; "
                                "give its volume once")
-        substance = reference(session, Substance, comp.substance_id, f"components[{i}].substance_id", active=False)
+        substance = substances.get(comp.substance_id)
+        if substance is None:  # as inventory.reference answers (substances belong to no lab; retired ones count)
+            raise InvalidInput(f"components[{i}].substance_id", f"no substance with id {comp.substance_id}",
+                               comp.substance_id)
         ul = whole_micro(comp.volume, "uL", expect="volume", field=f"components[{i}].volume")
         components.append(WasteEntryComponent(substance_id=comp.substance_id, volume_ul=ul, substance=substance))
     if sum(c.volume_ul for c in components) > micro:
@@ -358,6 +357,21 @@ def _judge(session: Session, container: WasteContainer, body: EntryIn,
                        "volume" if liquid else "mass", body.volume or body.mass)
     elements = _entry_elements(session, body, run, balance_elements)
     return EntryCheck(container, run, micro, room, tuple(components), tuple(elements))
+
+
+def _substances(session: Session, ids: set[int]) -> dict[int, Substance]:
+    """The substances of an entry's components by id, in one Core statement (those the session holds are
+    not built again); an id without a substance is left out."""
+    if not ids:
+        return {}
+    rows = session.connection().execute(_substances_read(), {"ids": sorted(ids)}).mappings()
+    return {row["id"]: sql.as_loaded(session, Substance, row) for row in rows}
+
+
+@cache
+def _substances_read():
+    table = Substance.__table__
+    return select(table).where(table.c.id.in_(bindparam("ids", expanding=True)))
 
 
 def check_entry(session: Session, container_id: int, body: EntryIn, *,
