@@ -121,3 +121,22 @@ def test_a_session_opened_for_reading_refuses_an_entry_and_nothing_is_written(ap
         session.close()
     with session_scope(app.extensions["dotledger.sessions"], write=False) as fresh:
         assert fresh.scalar(select(func.count()).select_from(WasteEntry)) == 0
+
+
+def test_a_change_pending_in_the_session_is_written_not_overwritten_by_the_locked_read(app, site):
+    # The container and its totals are read under their lock with a Core statement and handed to the session
+    # (sql.as_loaded, refresh=True): a change the session holds for the container must be written first, as
+    # the ORM's own query wrote it (autoflush), not replaced by the row read back.
+    from service.store.models import WasteContainer
+
+    container = _container(site)
+    sessions = app.extensions["dotledger.sessions"]
+    with session_scope(sessions) as session:
+        held = session.get(WasteContainer, container["id"])
+        held.acute_hazardous = not held.acute_hazardous
+        wanted = held.acute_hazardous
+        waste.add_entry(session, container["id"], _body(site, 1), None)
+        assert held.acute_hazardous is wanted
+    with session_scope(sessions, write=False) as session:
+        assert session.get(WasteContainer, container["id"]).acute_hazardous is wanted
+        assert verify_chain(session).ok

@@ -256,6 +256,7 @@ def _lock(session: Session, container_id: int, *, draw_id: bool = False) -> tupl
     and holds the database's write lock already (``service.store.db``).
     """
     postgres = session.get_bind().dialect.name == "postgresql"
+    session.flush()  # what the ORM's query did first (autoflush): a pending change is written, not overwritten below
     found = session.connection().execute(_locked_read(draw_id and postgres), {"container": container_id}).mappings()
     row = found.one_or_none()
     if row is None:
