@@ -118,3 +118,24 @@ def test_print_assessment_from_the_command_line(tmp_path):
     digest = done.stdout.split("SHA-256 ")[1].splitlines()[0].strip()
     assert pages >= 1 and digest in text[0] and "Risk assessment" in " ".join(text)
     assert done.stdout.strip().splitlines()[-1] == "[]"
+
+
+def test_the_warm_up_renders_a_page_in_the_documents_stylesheet(monkeypatch):
+    """The child's warm-up (while the parent gathers the data) renders a real page with print.css; it swallows
+    its errors, so this checks that it does not fail silently (a moved stylesheet, a broken page)."""
+    import service.documents.render as render
+
+    made = []
+
+    def recording(html: str) -> bytes:
+        pdf = render_pdf(html)  # raises here, where the warm-up would swallow it
+        made.append((html, pdf))
+        return pdf
+
+    monkeypatch.setattr(render, "render_pdf", recording)
+    render._warm_up()
+    assert len(made) == 1
+    html, pdf = made[0]
+    assert (render.TEMPLATES / "print.css").read_text(encoding="utf-8") in html
+    pages, text = _text(pdf)
+    assert pages == 1 and "12.5 µg Cd" in text[0]
