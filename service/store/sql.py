@@ -99,6 +99,5 @@ def as_loaded(session: Session, model: type[T], values: Mapping[str, Any], *, pr
     # as the ORM's loading makes it: an instance without __init__, its columns set as committed values
     obj = model.__mapper__.class_manager.new_instance()
     obj.__dict__.update({column.name: values[prefix + column.name] for column in table.columns})
-    make_transient_to_detached(obj)
-    session.add(obj)
+    loaded(session, obj)
     return obj

@@ -181,32 +181,32 @@ def _store(session: Session, container: WasteContainer, entry: WasteEntry, *, ph
     db.refuse_when_reading(session)
     connection = session.connection()
     table = WasteEntry.__table__
+    values = _values(entry)
     inserted = entry.id is None  # the INSERT gives the id (SQLite); else it goes with the other writes
     if inserted:
-        values = _values(entry)
         del values["id"]
-        entry.id = connection.execute(sql.inserting(table, returning="id"), values).scalar_one()
+        entry.id = values["id"] = connection.execute(sql.inserting(table, returning="id"), values).scalar_one()
     for row in (*entry.components, *entry.elements):
         row.entry_id = entry.id
-    values = _values(entry)
+    rows = {WasteEntryComponent.__table__: [_values(c) for c in entry.components],
+            WasteEntryElement.__table__: [_values(e) for e in entry.elements]}
     # the rows and totals go with the events, once the chain's head is locked (one round trip on PostgreSQL)
     audit.record(session, [audit.created(table, values),
-                           *(audit.created(WasteEntryComponent.__table__, _values(c)) for c in entry.components),
-                           *(audit.created(WasteEntryElement.__table__, _values(e)) for e in entry.elements)],
-                 with_writes=lambda: _add(session, container, entry, ph, None if inserted else values))
+                           *(audit.created(model, row) for model, written in rows.items() for row in written)],
+                 with_writes=lambda: _add(session, container, entry, ph, None if inserted else values, rows))
     sql.loaded(session, *entry.components, *entry.elements, entry)
 
 
-def _add(session: Session, container: WasteContainer, entry: WasteEntry, ph, values: Optional[dict]) -> None:
-    """The entry (``values``, unless inserted already), its rows, the container's running totals and the
-    monthly totals (:func:`_store`)."""
+def _add(session: Session, container: WasteContainer, entry: WasteEntry, ph, values: Optional[dict],
+         rows: dict) -> None:
+    """The entry (``values``, unless inserted already), its rows (``rows``: {table: column values of each}),
+    the container's running totals and the monthly totals (:func:`_store`)."""
     connection = session.connection()
     if values is not None:
         connection.execute(sql.inserting(WasteEntry.__table__), values)
-    if entry.components:
-        connection.execute(sql.inserting(WasteEntryComponent.__table__), [_values(c) for c in entry.components])
-    if entry.elements:
-        connection.execute(sql.inserting(WasteEntryElement.__table__), [_values(e) for e in entry.elements])
+    for table, written in rows.items():
+        if written:
+            connection.execute(sql.inserting(table), written)
 
     totals = container.totals
     if ph is _UNCHANGED:
